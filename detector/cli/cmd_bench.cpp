@@ -1,0 +1,146 @@
+// `residue bench`: decode and feature timings on simulated images, and the thread speed-up.
+#include <algorithm>
+#include <chrono>
+#include <cstdio>
+#include <filesystem>
+#include <fstream>
+#include <iostream>
+#include <memory>
+#include <thread>
+
+#include "commands.hpp"
+#include "residue/detector/sample_images.hpp"
+#include "residue/features/families.hpp"
+#include "residue/training/batch.hpp"
+
+namespace residue::cli {
+
+namespace {
+
+using Clock = std::chrono::steady_clock;
+
+struct BenchArgs {
+  int repeats = 5;
+  int batch = 24;
+  std::string workdir;
+};
+
+double ms_since(Clock::time_point start) {
+  return std::chrono::duration<double, std::milli>(Clock::now() - start).count();
+}
+
+template <typename F>
+double median_ms(int repeats, F&& f) {
+  std::vector<double> t;
+  for (int r = 0; r < repeats; ++r) {
+    const auto start = Clock::now();
+    f();
+    t.push_back(ms_since(start));
+  }
+  std::sort(t.begin(), t.end());
+  return t[t.size() / 2];
+}
+
+struct Case {
+  std::string label;
+  std::filesystem::path path;
+};
+
+void bench_case(const Case& c, int repeats) {
+  std::ifstream in(c.path, std::ios::binary);
+  const std::vector<std::uint8_t> bytes((std::istreambuf_iterator<char>(in)),
+                                        std::istreambuf_iterator<char>());
+  const double full_decode = median_ms(repeats, [&] { (void)decode_image(bytes); });
+  const double window_decode = median_ms(repeats, [&] { (void)decode_windows(bytes); });
+  auto decoded = decode_windows(bytes);
+  if (!decoded) {
+    std::cout << c.label << ": " << decoded.error().message << "\n";
+    return;
+  }
+  std::vector<FamilyTimings> runs(repeats);
+  for (auto& t : runs) (void)extract_tiles(decoded->tiles, &t);
+  auto med = [&](double FamilyTimings::*field) {
+    std::vector<double> v;
+    for (const auto& t : runs) v.push_back(t.*field);
+    std::sort(v.begin(), v.end());
+    return v[v.size() / 2];
+  };
+  const double spectral = med(&FamilyTimings::spectral_ms);
+  const double noise = med(&FamilyTimings::noise_ms);
+  const double resampling = med(&FamilyTimings::resampling_ms);
+  const double total = window_decode + spectral + noise + resampling;
+  std::printf(
+      "%-22s %7.1f %8.1f %9.1f %6.1f %8.1f %7.1f %8.1f  %5.2f  %2zu x %d px, %llu of %d rows decoded\n",
+      c.label.c_str(), full_decode, window_decode, spectral, noise, resampling, total, total / full_decode,
+      spectral + noise + resampling > 0 ? (spectral + noise + resampling) / window_decode : 0.0,
+      decoded->layout.origins.size(), decoded->layout.size,
+      static_cast<unsigned long long>(decoded->decoded_rows), decoded->header.height);
+}
+
+int run_bench(const BenchArgs& args) {
+  namespace fs = std::filesystem;
+  const fs::path dir =
+      args.workdir.empty() ? fs::temp_directory_path() / "residue-bench" : fs::path(args.workdir);
+  fs::create_directories(dir);
+  std::cout << "residue bench: simulated scenes (smooth colour structure + noise sigma 2), written to "
+            << dir.string() << "\nthreads available: " << std::thread::hardware_concurrency()
+            << ", repeats per figure: " << args.repeats << " (median)\n\n";
+  const struct {
+    const char* label;
+    const char* file;
+    int w, h;
+    ImageFormat format;
+  } specs[] = {{"png 512x512", "scene-512.png", 512, 512, ImageFormat::kPng},
+               {"png 1024x1024", "scene-1024.png", 1024, 1024, ImageFormat::kPng},
+               {"jpeg 4000x3000 q90", "scene-12mp.jpg", 4000, 3000, ImageFormat::kJpeg}};
+  std::vector<Case> cases;
+  for (const auto& s : specs) {
+    const auto encoded = encode_image(simulated_scene(s.w, s.h, 7), s.format, 90);
+    if (!encoded) {
+      std::cerr << "residue bench: " << encoded.error().message << "\n";
+      return 1;
+    }
+    const fs::path path = dir / s.file;
+    std::ofstream(path, std::ios::binary)
+        .write(reinterpret_cast<const char*>(encoded->data()), static_cast<std::streamsize>(encoded->size()));
+    cases.push_back({s.label, path});
+  }
+  std::printf("%-22s %7s %8s %9s %6s %8s %7s %8s  %5s\n", "image (ms)", "decode", "windows", "spectral",
+              "noise", "resampl", "total", "tot/dec", "feat/win");
+  for (const auto& c : cases) bench_case(c, args.repeats);
+  std::printf(
+      "\ndecode = whole image decoded; windows = only the analysis windows' pixels decoded;\n"
+      "total = windows + the three families; tot/dec = total / whole decode;\n"
+      "feat/win = feature time / window-decode time.\n\n");
+
+  std::vector<std::string> batch;
+  for (int i = 0; i < args.batch; ++i) batch.push_back(cases[i % 2].path.string());
+  double one = 0.0;
+  for (int jobs : {1, 2}) {
+    const auto start = Clock::now();
+    extract_batch(batch, {}, jobs, [](size_t, const std::string&, const Result<Extraction>&) {});
+    const double ms = ms_since(start);
+    if (jobs == 1) one = ms;
+    std::printf("batch of %d PNGs (512 and 1024 px), %d thread%s: %8.1f ms, %6.1f images/s, speed-up %.2f\n",
+                args.batch, jobs, jobs == 1 ? " " : "s", ms, 1000.0 * args.batch / ms, one / ms);
+  }
+  return 0;
+}
+
+}  // namespace
+
+void add_bench_command(CLI::App& app, int& exit_code) {
+  auto args = std::make_shared<BenchArgs>();
+  auto* cmd = app.add_subcommand("bench", "Measure decode and feature-extraction speed on simulated images");
+  cmd->add_option("--repeats", args->repeats, "runs per figure; the median is printed")
+      ->check(CLI::Range(1, 100))
+      ->capture_default_str();
+  cmd->add_option("--batch", args->batch, "images in the thread speed-up batch")
+      ->check(CLI::Range(2, 10000))
+      ->capture_default_str();
+  cmd->add_option("--workdir", args->workdir,
+                  "folder for the generated test images (default: a temp folder)");
+  cmd->callback([args, &exit_code] { exit_code = run_bench(*args); });
+}
+
+}  // namespace residue::cli

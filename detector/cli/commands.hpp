@@ -1,0 +1,13 @@
+// The subcommands of `residue`: each registers its options and a callback that calls the libraries.
+#pragma once
+
+#include <CLI/CLI.hpp>
+
+namespace residue::cli {
+
+// Each adds one subcommand to `app`; its callback stores the process exit code in `exit_code`.
+void add_features_command(CLI::App& app, int& exit_code);
+void add_bench_command(CLI::App& app, int& exit_code);
+void add_demo_command(CLI::App& app, int& exit_code);
+
+}  // namespace residue::cli

@@ -1,0 +1,26 @@
+// residue: tells camera photographs from generated images by the traces generators leave.
+#include <exception>
+#include <iostream>
+
+#include "commands.hpp"
+#include "residue/detector/record.hpp"
+
+int main(int argc, char** argv) {
+  CLI::App app{"residue: screens images for traces of generative models (advisory evidence, not proof)"};
+  app.require_subcommand(1);
+  app.set_version_flag("--version", "residue 0.1.0");
+  int exit_code = 0;
+  residue::cli::add_features_command(app, exit_code);
+  residue::cli::add_bench_command(app, exit_code);
+  residue::cli::add_demo_command(app, exit_code);
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    const int code = app.exit(e);
+    return code == 0 ? 0 : static_cast<int>(residue::ExitCode::kUsage);
+  } catch (const std::exception& e) {
+    std::cerr << "residue: " << e.what() << "\n";
+    return static_cast<int>(residue::ExitCode::kFailure);
+  }
+  return exit_code;
+}

@@ -1,0 +1,31 @@
+// Command-line flags for the settings structs shared by several subcommands.
+#pragma once
+
+#include <CLI/CLI.hpp>
+
+#include "residue/features/extract.hpp"
+
+namespace residue::cli {
+
+// Registers --max-pixels, --max-file-mb and --min-window on `command`, bound to `options`.
+inline void add_extract_options(CLI::App& command, ExtractOptions& options) {
+  command
+      .add_option("--max-pixels", options.limits.max_pixels,
+                  "refuse images whose header declares more pixels than this")
+      ->capture_default_str();
+  command
+      .add_option_function<double>(
+          "--max-file-mb",
+          [&options](double mb) {
+            options.limits.max_file_bytes = static_cast<std::uint64_t>(mb * 1048576.0);
+          },
+          "refuse files larger than this many MiB (default 256)")
+      ->check(CLI::PositiveNumber);
+  command
+      .add_option("--min-window", options.windows.min_size,
+                  "smallest analysis window in px (power of two, 32..256); smaller images are refused")
+      ->check(CLI::IsMember({32, 64, 128, 256}))
+      ->capture_default_str();
+}
+
+}  // namespace residue::cli

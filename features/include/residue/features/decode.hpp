@@ -1,0 +1,68 @@
+// Guarded decode: file bytes -> header -> limits -> pixels of the analysis windows.
+//
+// Formats: JPEG (libjpeg-turbo, decoding only the rows and columns the windows need), PNG, WebP,
+// TIFF and BMP (OpenCV); 8- and 16-bit; grey, grey+alpha, RGB, RGBA (alpha dropped and said so).
+// The pixel count is checked from the header before any pixel buffer is allocated, so a
+// decompression bomb is refused cheaply. Every failure is a typed Error; nothing throws or aborts.
+// Thread safety: all functions are reentrant.
+#pragma once
+
+#include <array>
+#include <cstdint>
+#include <filesystem>
+#include <optional>
+#include <span>
+#include <vector>
+
+#include "residue/features/image.hpp"
+#include "residue/features/status.hpp"
+#include "residue/features/windows.hpp"
+
+namespace residue {
+
+struct DecodeLimits {
+  std::uint64_t max_file_bytes = 256ULL << 20;  // 256 MiB
+  std::uint64_t max_pixels = 120'000'000;       // 120 megapixels, from the header
+};
+
+// JPEG quantisation tables as stored in the file, natural (row-major) coefficient order.
+struct JpegQuantTables {
+  std::array<int, 64> luma{};
+  std::optional<std::array<int, 64>> chroma;
+};
+
+// The analysis input of one file.
+struct DecodedWindows {
+  ImageHeader header;
+  int channels = 0;            // analysed channels: 1 (grey) or 3 (RGB)
+  bool alpha_dropped = false;  // the file had an alpha channel, ignored by the analysis
+  WindowLayout layout;
+  std::vector<Tile> tiles;
+  std::optional<JpegQuantTables> jpeg_tables;  // JPEG files only
+  std::uint64_t decoded_rows = 0;              // image rows actually decoded (JPEG skips the others)
+  int decoder_warnings = 0;                    // recoverable data errors the decoder reported
+};
+
+// Reads a whole file, refusing one over the size limit before reading it.
+Result<std::vector<std::uint8_t>> read_file(const std::filesystem::path& path,
+                                            const DecodeLimits& limits = {});
+
+// Identifies the container from its signature bytes.
+ImageFormat sniff_format(std::span<const std::uint8_t> bytes);
+
+// Parses just the header (size, channels, bit depth) without decoding pixels.
+Result<ImageHeader> read_header(std::span<const std::uint8_t> bytes);
+
+// Decodes the whole image (alpha dropped). For pictures and tests; analysis uses decode_windows.
+Result<Image> decode_image(std::span<const std::uint8_t> bytes, const DecodeLimits& limits = {});
+
+// Decodes the pixels of the planned analysis windows. With `skip_unused_rows` (the default) a
+// JPEG decodes only the scanlines and column span that the windows cover.
+Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const DecodeLimits& limits = {},
+                                      const WindowPolicy& policy = {}, bool skip_unused_rows = true);
+
+// Encodes an image (values rounded and clamped to 0..255, 8-bit) as JPEG at `quality` (IJG
+// scale, 4:2:0 chroma as libjpeg's default) or as PNG. For the demo, benchmarks and tests.
+Result<std::vector<std::uint8_t>> encode_image(const Image& image, ImageFormat format, int quality = 90);
+
+}  // namespace residue

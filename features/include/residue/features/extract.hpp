@@ -1,0 +1,73 @@
+// The feature pipeline: file -> guarded decode -> windows -> three families -> named vector.
+//
+// Basic use:
+//   residue::ExtractOptions options;                       // defaults shared by CLI and service
+//   auto result = residue::extract_file("photo.jpg", options);
+//   if (!result) std::cerr << residue::error_code_name(result.error().code) << ": "
+//                          << result.error().message;
+//   else for (size_t i = 0; i < result->features.values.size(); ++i)
+//     std::cout << residue::feature_names()[i] << " " << result->features.values[i] << "\n";
+// Thread safety: every function may be called from many threads at once.
+#pragma once
+
+#include <filesystem>
+#include <span>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "residue/features/compression.hpp"
+#include "residue/features/decode.hpp"
+
+namespace residue {
+
+// Bump when any value's definition changes; models record it and refuse a mismatch.
+inline constexpr std::string_view kExtractorVersion = "1.0.0";
+
+// Names of the learned values, in vector order (`family.group.name[.mean|.max]`).
+const std::vector<std::string>& feature_names();
+// Short fingerprint of extractor version and names (FNV-1a, hex): equal schemas, equal ids.
+const std::string& feature_schema_id();
+// The family ("spectral", "noise", "resampling") of each value, in vector order.
+const std::vector<std::string>& feature_families();
+
+struct FeatureVector {
+  std::vector<double> values;  // aligned with feature_names()
+};
+
+struct ExtractOptions {
+  DecodeLimits limits;
+  WindowPolicy windows;
+  bool skip_unused_rows = true;  // JPEG: decode only the rows the windows need
+};
+
+struct FamilyTimings {
+  double decode_ms = 0;
+  double spectral_ms = 0;
+  double noise_ms = 0;
+  double resampling_ms = 0;
+  double total_ms = 0;
+};
+
+struct Extraction {
+  ImageHeader header;
+  int channels = 0;
+  bool alpha_dropped = false;
+  WindowLayout layout;
+  std::uint64_t decoded_rows = 0;
+  int decoder_warnings = 0;
+  FeatureVector features;
+  CompressionHistory compression;
+  FamilyTimings timings;
+};
+
+// Features of tiles already in memory (all the same size), with per-family timings.
+FeatureVector extract_tiles(const std::vector<Tile>& tiles, FamilyTimings* timings = nullptr,
+                            double* grid_strength = nullptr);
+
+Result<Extraction> extract_bytes(std::span<const std::uint8_t> bytes, const ExtractOptions& options = {});
+Result<Extraction> extract_file(const std::filesystem::path& path, const ExtractOptions& options = {});
+// For images made in memory (tests, the demo's simulations): plan, cut, extract.
+Result<Extraction> extract_image(const Image& image, const ExtractOptions& options = {});
+
+}  // namespace residue

@@ -1,0 +1,65 @@
+// Residual filters and the statistics built on them: rich-model kernels, quantised co-occurrences,
+// SPAM transition probabilities and Immerkaer's noise estimate. Pure functions of pixels.
+//
+// Images are row-major float arrays on a 0..255 scale. Filtering is correlation in "valid" mode
+// (no padding): an image of w x h and a kernel of kw x kh give (w - kw + 1) x (h - kh + 1) values.
+#pragma once
+
+#include <span>
+#include <string_view>
+#include <vector>
+
+namespace residue {
+
+struct Kernel {
+  std::string_view name;
+  int width = 0;
+  int height = 0;
+  std::vector<double> taps;  // row-major
+  double step = 1.0;         // quantisation step q = c, the kernel's central coefficient magnitude
+  bool directional = false;  // applied horizontally and, transposed, vertically
+
+  [[nodiscard]] Kernel transposed() const;
+};
+
+// The five rich-model residual kernels of Fridrich & Kodovsky (2012): first, second and third
+// order (horizontal form) and the SQUARE 3x3 and 5x5 ("KV") kernels.
+const std::vector<Kernel>& rich_model_kernels();
+
+struct Plane {
+  int width = 0;
+  int height = 0;
+  std::vector<float> values;
+};
+
+Plane correlate_valid(const float* image, int width, int height, const Kernel& kernel);
+
+// Number of classes of (a, b) in [-T, T]^2 folded by sign, (a, b) ~ (-a, -b), and by order,
+// (a, b) ~ (b, a): 9 for T = 2.
+int folded_pair_classes(int t);
+
+// Histogram of pairs of neighbouring quantised residuals, clamp(round(r / step), -T, T), folded by
+// sign and order symmetry and normalised to sum 1. Pairs run along rows when `along_rows`, else
+// along columns. Adds into `histogram` (size folded_pair_classes(t)) and returns the pair count.
+long add_folded_pairs(const Plane& residual, double step, int t, bool along_rows,
+                      std::vector<double>& histogram);
+
+// First-order SPAM features (Pevny, Bas & Fridrich 2010): transition probabilities
+// M(u, v) = Pr(D(i, j+1) = u | D(i, j) = v) of pixel differences D truncated to [-T, T], averaged
+// over the four straight directions (first (2T+1)^2 values, index (u+T)(2T+1) + (v+T)) and the
+// four diagonal ones (next (2T+1)^2 values). Pixels are rounded to integers first.
+std::vector<double> spam_first_order(const float* image, int width, int height, int t);
+
+// Immerkaer (1996) fast noise estimate: sigma = sqrt(pi/2) / (6 (W-2)(H-2)) * sum |I * N|,
+// N = [[1,-2,1],[-2,4,-2],[1,-2,1]]. In the image's units.
+double immerkaer_sigma(const float* image, int width, int height);
+
+// Sample moments of a residual: variance and excess kurtosis (Fisher's definition, 0 for a
+// Gaussian), population (biased) estimators as in scipy.stats.kurtosis(bias=True).
+struct Moments {
+  double variance = 0.0;
+  double excess_kurtosis = 0.0;
+};
+Moments moments(std::span<const float> values);
+
+}  // namespace residue

@@ -1,0 +1,33 @@
+// Private adapters: the only places that speak libjpeg, OpenCV and FFTW.
+#pragma once
+
+#include <span>
+
+#include "residue/features/decode.hpp"
+
+namespace residue::detail {
+
+struct JpegOutput {
+  Image full;               // filled when no layout is given
+  std::vector<Tile> tiles;  // filled when a layout is given
+  JpegQuantTables tables;
+  std::uint64_t decoded_rows = 0;
+  int warnings = 0;
+};
+
+// Decodes a JPEG with libjpeg-turbo. With a layout, only the scanlines the windows cover are
+// decoded (others skipped) and only the column span they cover (cropped scanlines).
+Result<JpegOutput> decode_jpeg(std::span<const std::uint8_t> bytes, const DecodeLimits& limits,
+                               const WindowLayout* layout);
+
+// Decodes PNG, WebP, TIFF and BMP with OpenCV's imgcodecs; drops alpha and reports it.
+Result<Image> decode_with_opencv(std::span<const std::uint8_t> bytes, const ImageHeader& header,
+                                 bool* alpha_dropped);
+
+// Encodes with OpenCV's imgcodecs (libjpeg-turbo, libpng).
+Result<std::vector<std::uint8_t>> encode(const Image& image, ImageFormat format, int quality);
+
+// 3 x 3 median filter with replicated borders (OpenCV medianBlur), in place of a copy.
+void median3(const float* src, float* dst, int width, int height);
+
+}  // namespace residue::detail

@@ -1,0 +1,126 @@
+#include "residue/features/decode.hpp"
+
+#include <cerrno>
+#include <cstring>
+#include <fstream>
+#include <string>
+#include <system_error>
+
+#include "adapters.hpp"
+
+namespace residue {
+
+Image Image::zeros(int width, int height, int channels) {
+  return Image{width, height, channels, std::vector<float>(static_cast<size_t>(channels) * width * height)};
+}
+
+namespace {
+
+std::vector<float> luma_of(const float* r, const float* g, const float* b, size_t n) {
+  std::vector<float> y(n);
+  for (size_t i = 0; i < n; ++i) y[i] = 0.299F * r[i] + 0.587F * g[i] + 0.114F * b[i];
+  return y;
+}
+
+// Header checks shared by both decode paths: known format, plausible size, under the pixel limit.
+Result<ImageHeader> checked_header(std::span<const std::uint8_t> bytes, const DecodeLimits& limits) {
+  auto header = read_header(bytes);
+  if (!header) return header;
+  const std::uint64_t pixels = std::uint64_t(header->width) * std::uint64_t(header->height);
+  if (pixels > limits.max_pixels) {
+    return make_error(ErrorCode::kTooLarge, "header declares " + std::to_string(header->width) + "x" +
+                                                std::to_string(header->height) + " px, over the limit of " +
+                                                std::to_string(limits.max_pixels) +
+                                                " pixels; refused before decoding");
+  }
+  return header;
+}
+
+}  // namespace
+
+std::vector<float> Tile::luma() const {
+  const size_t n = static_cast<size_t>(size) * size;
+  if (channels == 1) return {samples.begin(), samples.begin() + static_cast<std::ptrdiff_t>(n)};
+  return luma_of(plane(0), plane(1), plane(2), n);
+}
+
+std::vector<float> luma(const Image& image) {
+  const size_t n = static_cast<size_t>(image.width) * image.height;
+  if (image.channels == 1)
+    return {image.samples.begin(), image.samples.begin() + static_cast<std::ptrdiff_t>(n)};
+  return luma_of(image.plane(0), image.plane(1), image.plane(2), n);
+}
+
+Result<std::vector<std::uint8_t>> read_file(const std::filesystem::path& path, const DecodeLimits& limits) {
+  std::error_code ec;
+  const auto status = std::filesystem::status(path, ec);
+  if (ec || !std::filesystem::exists(status)) {
+    return make_error(ErrorCode::kUnreadable, "cannot open: no such file");
+  }
+  if (!std::filesystem::is_regular_file(status)) {
+    return make_error(ErrorCode::kUnreadable, "not a regular file");
+  }
+  const auto size = std::filesystem::file_size(path, ec);
+  if (ec) return make_error(ErrorCode::kUnreadable, "cannot read size: " + ec.message());
+  if (size > limits.max_file_bytes) {
+    return make_error(ErrorCode::kTooLarge, "file of " + std::to_string(size) +
+                                                " bytes is over the limit of " +
+                                                std::to_string(limits.max_file_bytes) + " bytes");
+  }
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return make_error(ErrorCode::kUnreadable, std::string("cannot open: ") + std::strerror(errno));
+  std::vector<std::uint8_t> bytes(size);
+  in.read(reinterpret_cast<char*>(bytes.data()), static_cast<std::streamsize>(size));
+  if (static_cast<std::uint64_t>(in.gcount()) != size) {
+    return make_error(ErrorCode::kUnreadable, "read fewer bytes than the file size");
+  }
+  return bytes;
+}
+
+Result<Image> decode_image(std::span<const std::uint8_t> bytes, const DecodeLimits& limits) {
+  auto header = checked_header(bytes, limits);
+  if (!header) return header.error();
+  if (header->format == ImageFormat::kJpeg) {
+    auto out = detail::decode_jpeg(bytes, limits, nullptr);
+    if (!out) return out.error();
+    return std::move(out->full);
+  }
+  bool alpha_dropped = false;
+  return detail::decode_with_opencv(bytes, *header, &alpha_dropped);
+}
+
+Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const DecodeLimits& limits,
+                                      const WindowPolicy& policy, bool skip_unused_rows) {
+  auto header = checked_header(bytes, limits);
+  if (!header) return header.error();
+  auto layout = plan_windows(header->width, header->height, policy);
+  if (!layout) return layout.error();
+
+  DecodedWindows out;
+  out.header = *header;
+  out.layout = *layout;
+  if (header->format == ImageFormat::kJpeg) {
+    auto jpeg = detail::decode_jpeg(bytes, limits, skip_unused_rows ? &out.layout : nullptr);
+    if (!jpeg) return jpeg.error();
+    out.jpeg_tables = jpeg->tables;
+    out.decoded_rows = jpeg->decoded_rows;
+    out.decoder_warnings = jpeg->warnings;
+    out.tiles = skip_unused_rows ? std::move(jpeg->tiles) : cut_tiles(jpeg->full, out.layout);
+  } else {
+    auto image = detail::decode_with_opencv(bytes, *header, &out.alpha_dropped);
+    if (!image) return image.error();
+    if (image->width != header->width || image->height != header->height) {
+      return make_error(ErrorCode::kCorrupt, "decoded size differs from the header's");
+    }
+    out.decoded_rows = static_cast<std::uint64_t>(image->height);
+    out.tiles = cut_tiles(*image, out.layout);
+  }
+  out.channels = out.tiles.empty() ? 0 : out.tiles.front().channels;
+  return out;
+}
+
+Result<std::vector<std::uint8_t>> encode_image(const Image& image, ImageFormat format, int quality) {
+  return detail::encode(image, format, quality);
+}
+
+}  // namespace residue

@@ -1,0 +1,148 @@
+#include "residue/features/extract.hpp"
+
+#include <chrono>
+#include <cstdio>
+
+#include "residue/features/families.hpp"
+
+namespace residue {
+
+namespace {
+
+using Clock = std::chrono::steady_clock;
+
+double ms_since(Clock::time_point start) {
+  return std::chrono::duration<double, std::milli>(Clock::now() - start).count();
+}
+
+bool is_peak(const std::string& name) { return name.ends_with(".peak"); }
+
+struct Family {
+  std::string_view name;
+  const std::vector<std::string>& (*names)();
+  std::vector<double> (*window)(const WindowInput&);
+  double FamilyTimings::*timing;
+};
+
+const Family kFamilies[] = {
+    {"spectral", spectral_names, spectral_window, &FamilyTimings::spectral_ms},
+    {"noise", noise_names, noise_window, &FamilyTimings::noise_ms},
+    {"resampling", resampling_names, resampling_window, &FamilyTimings::resampling_ms},
+};
+
+struct Schema {
+  std::vector<std::string> names;
+  std::vector<std::string> families;
+  std::string id;
+};
+
+const Schema& schema() {
+  static const Schema s = [] {
+    Schema out;
+    for (const auto& f : kFamilies) {
+      for (const auto& name : f.names()) {
+        if (is_peak(name)) {
+          out.names.push_back(name + ".mean");
+          out.names.push_back(name + ".max");
+          out.families.insert(out.families.end(), 2, std::string(f.name));
+        } else {
+          out.names.push_back(name);
+          out.families.emplace_back(f.name);
+        }
+      }
+    }
+    std::uint64_t h = 1469598103934665603ULL;  // FNV-1a 64
+    auto mix = [&](std::string_view text) {
+      for (unsigned char ch : text) h = (h ^ ch) * 1099511628211ULL;
+      h = (h ^ 0xFF) * 1099511628211ULL;
+    };
+    mix(kExtractorVersion);
+    for (const auto& n : out.names) mix(n);
+    char buf[17];
+    std::snprintf(buf, sizeof buf, "%016llx", static_cast<unsigned long long>(h));
+    out.id = buf;
+    return out;
+  }();
+  return s;
+}
+
+}  // namespace
+
+const std::vector<std::string>& feature_names() { return schema().names; }
+const std::vector<std::string>& feature_families() { return schema().families; }
+const std::string& feature_schema_id() { return schema().id; }
+
+FeatureVector extract_tiles(const std::vector<Tile>& tiles, FamilyTimings* timings, double* grid_strength) {
+  FamilyTimings local;
+  FamilyTimings& t = timings != nullptr ? *timings : local;
+  std::vector<WindowInput> inputs;
+  inputs.reserve(tiles.size());
+  double grid = 0.0;
+  for (const auto& tile : tiles) {
+    inputs.push_back({tile, tile.luma()});
+    grid += block_grid_strength(inputs.back().luma.data(), tile.size);
+  }
+  if (grid_strength != nullptr)
+    *grid_strength = tiles.empty() ? 1.0 : grid / static_cast<double>(tiles.size());
+
+  FeatureVector out;
+  out.values.reserve(feature_names().size());
+  for (const auto& family : kFamilies) {
+    const auto start = Clock::now();
+    const auto& names = family.names();
+    std::vector<double> mean(names.size(), 0.0);
+    std::vector<double> max(names.size(), -1e300);
+    for (const auto& input : inputs) {
+      const auto values = family.window(input);
+      for (size_t i = 0; i < values.size(); ++i) {
+        mean[i] += values[i] / static_cast<double>(inputs.size());
+        max[i] = std::max(max[i], values[i]);
+      }
+    }
+    for (size_t i = 0; i < names.size(); ++i) {
+      out.values.push_back(mean[i]);
+      if (is_peak(names[i])) out.values.push_back(max[i]);
+    }
+    t.*(family.timing) += ms_since(start);
+  }
+  return out;
+}
+
+Result<Extraction> extract_bytes(std::span<const std::uint8_t> bytes, const ExtractOptions& options) {
+  const auto start = Clock::now();
+  auto decoded = decode_windows(bytes, options.limits, options.windows, options.skip_unused_rows);
+  if (!decoded) return decoded.error();
+  Extraction out;
+  out.timings.decode_ms = ms_since(start);
+  out.header = decoded->header;
+  out.channels = decoded->channels;
+  out.alpha_dropped = decoded->alpha_dropped;
+  out.layout = decoded->layout;
+  out.decoded_rows = decoded->decoded_rows;
+  out.decoder_warnings = decoded->decoder_warnings;
+  if (decoded->jpeg_tables) out.compression.jpeg = estimate_jpeg_quality(*decoded->jpeg_tables);
+  out.features = extract_tiles(decoded->tiles, &out.timings, &out.compression.block_grid_strength);
+  out.timings.total_ms = ms_since(start);
+  return out;
+}
+
+Result<Extraction> extract_file(const std::filesystem::path& path, const ExtractOptions& options) {
+  auto bytes = read_file(path, options.limits);
+  if (!bytes) return bytes.error();
+  return extract_bytes(*bytes, options);
+}
+
+Result<Extraction> extract_image(const Image& image, const ExtractOptions& options) {
+  auto layout = plan_windows(image.width, image.height, options.windows);
+  if (!layout) return layout.error();
+  Extraction out;
+  out.header = {ImageFormat::kUnknown, image.width, image.height, image.channels, 8};
+  out.channels = image.channels;
+  out.layout = *layout;
+  out.decoded_rows = static_cast<std::uint64_t>(image.height);
+  out.features = extract_tiles(cut_tiles(image, *layout), &out.timings, &out.compression.block_grid_strength);
+  out.timings.total_ms = out.timings.spectral_ms + out.timings.noise_ms + out.timings.resampling_ms;
+  return out;
+}
+
+}  // namespace residue

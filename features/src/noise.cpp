@@ -1,0 +1,136 @@
+// Noise-residual family: rich-model co-occurrences (Fridrich & Kodovsky 2012), SPAM (Pevny, Bas
+// & Fridrich 2010), moments, Immerkaer (1996) noise level, CFA traces (Popescu & Farid 2005).
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+
+#include "residue/features/families.hpp"
+#include "residue/features/filters.hpp"
+
+namespace residue {
+
+namespace {
+
+constexpr int kCoocT = 2;  // truncation of the quantised residuals
+constexpr int kSpamT = 2;  // truncation of the SPAM differences (the paper uses 4; see docs)
+
+std::string signed_label(int k) { return (k < 0 ? "m" : "p") + std::to_string(std::abs(k)); }
+
+}  // namespace
+
+CfaTraces cfa_traces(const Tile& tile) {
+  const int n = tile.size;
+  const int channels = tile.channels;
+  // residual of each channel on the interior, with the 2 x 2 lattice position of each sample
+  std::vector<std::vector<float>> e(channels);
+  CfaTraces out;
+  for (int c = 0; c < channels; ++c) {
+    const float* x = tile.plane(c);
+    e[c].reserve(static_cast<size_t>(n - 2) * (n - 2));
+    double energy[4] = {0, 0, 0, 0};
+    for (int y = 1; y < n - 1; ++y) {
+      for (int i = 1; i < n - 1; ++i) {
+        const size_t k = static_cast<size_t>(y) * n + i;
+        const float r = x[k] - 0.25F * (x[k - 1] + x[k + 1] + x[k - n] + x[k + n]);
+        e[c].push_back(r);
+        energy[(y % 2) * 2 + (i % 2)] += static_cast<double>(r) * r;
+      }
+    }
+    const auto [lo, hi] = std::minmax_element(energy, energy + 4);
+    out.lattice_contrast[c] = std::log10((*hi + 1e-9) / (*lo + 1e-9));
+  }
+  if (channels == 1) {
+    out.lattice_contrast[1] = out.lattice_contrast[2] = out.lattice_contrast[0];
+    return out;  // grey: the three channels are one, correlations stay 1
+  }
+  auto corr = [](const std::vector<float>& a, const std::vector<float>& b) {
+    double sa = 0, sb = 0, saa = 0, sbb = 0, sab = 0;
+    const double m = static_cast<double>(a.size());
+    for (size_t i = 0; i < a.size(); ++i) {
+      sa += a[i];
+      sb += b[i];
+      saa += static_cast<double>(a[i]) * a[i];
+      sbb += static_cast<double>(b[i]) * b[i];
+      sab += static_cast<double>(a[i]) * b[i];
+    }
+    const double va = saa - sa * sa / m;
+    const double vb = sbb - sb * sb / m;
+    return va > 1e-9 && vb > 1e-9 ? (sab - sa * sb / m) / std::sqrt(va * vb) : 1.0;
+  };
+  out.residual_corr_rg = corr(e[0], e[1]);
+  out.residual_corr_bg = corr(e[2], e[1]);
+  return out;
+}
+
+const std::vector<std::string>& noise_names() {
+  static const std::vector<std::string> names = [] {
+    std::vector<std::string> v;
+    const int classes = folded_pair_classes(kCoocT);
+    for (const auto& k : rich_model_kernels()) {
+      for (int c = 0; c < classes; ++c)
+        v.push_back("noise.cooc_" + std::string(k.name) + ".c" + std::to_string(c));
+    }
+    for (const char* group : {"straight", "diagonal"}) {
+      for (int u = -kSpamT; u <= kSpamT; ++u) {
+        for (int w = -kSpamT; w <= kSpamT; ++w) {
+          v.push_back(std::string("noise.spam_") + group + ".u" + signed_label(u) + "_v" + signed_label(w));
+        }
+      }
+    }
+    for (const auto& k : rich_model_kernels()) {
+      v.push_back("noise.moments_" + std::string(k.name) + ".log_variance");
+      v.push_back("noise.moments_" + std::string(k.name) + ".log_kurtosis");
+    }
+    v.emplace_back("noise.level.immerkaer_sigma");
+    v.emplace_back("noise.cfa.lattice_contrast_r");
+    v.emplace_back("noise.cfa.lattice_contrast_g");
+    v.emplace_back("noise.cfa.lattice_contrast_b");
+    v.emplace_back("noise.cfa.residual_corr_rg");
+    v.emplace_back("noise.cfa.residual_corr_bg");
+    return v;
+  }();
+  return names;
+}
+
+std::vector<double> noise_window(const WindowInput& window) {
+  const int n = window.tile.size;
+  const float* y = window.luma.data();
+  std::vector<double> values;
+  values.reserve(noise_names().size());
+  std::vector<Moments> kernel_moments;
+
+  const int classes = folded_pair_classes(kCoocT);
+  for (const auto& k : rich_model_kernels()) {
+    std::vector<double> histogram(classes, 0.0);
+    long pairs = 0;
+    std::vector<float> all;
+    const Plane h = correlate_valid(y, n, n, k);
+    if (k.directional) {
+      // Horizontal kernel with pairs along rows, vertical kernel with pairs along columns.
+      const Plane v = correlate_valid(y, n, n, k.transposed());
+      pairs += add_folded_pairs(h, k.step, kCoocT, true, histogram);
+      pairs += add_folded_pairs(v, k.step, kCoocT, false, histogram);
+      all = h.values;
+      all.insert(all.end(), v.values.begin(), v.values.end());
+    } else {
+      pairs += add_folded_pairs(h, k.step, kCoocT, true, histogram);
+      pairs += add_folded_pairs(h, k.step, kCoocT, false, histogram);
+      all = h.values;
+    }
+    for (double c : histogram) values.push_back(pairs > 0 ? c / static_cast<double>(pairs) : 0.0);
+    kernel_moments.push_back(moments(all));
+  }
+  const auto spam = spam_first_order(y, n, n, kSpamT);
+  values.insert(values.end(), spam.begin(), spam.end());
+  for (const auto& m : kernel_moments) {
+    values.push_back(std::log10(m.variance + 1e-6));
+    values.push_back(std::log10(m.excess_kurtosis + 3.0));  // log of the (non-excess) kurtosis, >= 0
+  }
+  values.push_back(immerkaer_sigma(y, n, n));
+  const CfaTraces cfa = cfa_traces(window.tile);
+  values.insert(values.end(), {cfa.lattice_contrast[0], cfa.lattice_contrast[1], cfa.lattice_contrast[2],
+                               cfa.residual_corr_rg, cfa.residual_corr_bg});
+  return values;
+}
+
+}  // namespace residue

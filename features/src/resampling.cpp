@@ -1,0 +1,72 @@
+// Resampling family: Kirchner (2008) fixed-predictor p-map and the peak strength of its spectrum.
+#include <algorithm>
+#include <cmath>
+
+#include "residue/features/families.hpp"
+#include "residue/features/spectrum.hpp"
+
+namespace residue {
+
+namespace {
+
+constexpr double kMinFrequency = 0.05;  // cycles/pixel; below, scene content dominates the p-map
+
+}  // namespace
+
+std::vector<float> kirchner_pmap(const float* luma, int n) {
+  // Kirchner's preset predictor: 0.5 for the 4-neighbours, -0.25 for the diagonals.
+  std::vector<float> p(static_cast<size_t>(n) * n);
+  auto at = [&](int y, int x) {
+    return luma[static_cast<size_t>(std::clamp(y, 0, n - 1)) * n + std::clamp(x, 0, n - 1)];
+  };
+  for (int y = 0; y < n; ++y) {
+    for (int x = 0; x < n; ++x) {
+      const float predicted =
+          0.5F * (at(y - 1, x) + at(y + 1, x) + at(y, x - 1) + at(y, x + 1)) -
+          0.25F * (at(y - 1, x - 1) + at(y - 1, x + 1) + at(y + 1, x - 1) + at(y + 1, x + 1));
+      const float e = at(y, x) - predicted;
+      p[static_cast<size_t>(y) * n + x] = std::exp(-e * e);  // lambda = 1, sigma = 1, tau = 2
+    }
+  }
+  return p;
+}
+
+SpectralPeak projected_peak(const std::vector<double>& power, int n, double min_frequency) {
+  const int k_min = std::max(1, static_cast<int>(std::ceil(min_frequency * n)));
+  std::vector<double> profile;
+  for (int k = k_min; k <= n / 2; ++k) {
+    double s = 0.0;
+    for (int j = 0; j < n; ++j) {
+      s += power[static_cast<size_t>(j) * n + k] + power[static_cast<size_t>(k) * n + j];
+    }
+    profile.push_back(s / (2.0 * n));
+  }
+  const auto peak = std::max_element(profile.begin(), profile.end());
+  std::vector<double> sorted = profile;
+  std::nth_element(sorted.begin(), sorted.begin() + static_cast<std::ptrdiff_t>(sorted.size() / 2),
+                   sorted.end());
+  const double median = sorted[sorted.size() / 2];
+  return {(*peak + 1e-12) / (median + 1e-12), static_cast<double>(k_min + (peak - profile.begin())) / n};
+}
+
+const std::vector<std::string>& resampling_names() {
+  static const std::vector<std::string> names = {"resampling.pmap.projected.peak",
+                                                 "resampling.pmap.grid_n8.peak"};
+  return names;
+}
+
+std::vector<double> resampling_window(const WindowInput& window) {
+  const int n = window.tile.size;
+  auto p = kirchner_pmap(window.luma.data(), n);
+  double mean = 0.0;
+  for (float v : p) mean += v;
+  mean /= static_cast<double>(p.size());
+  for (float& v : p) v -= static_cast<float>(mean);
+  const auto power = hann_power_spectrum(p.data(), n);
+  const SpectralPeak peak = projected_peak(power, n, kMinFrequency);
+  // JPEG's 8 x 8 blocks and 8x upsampling leave p-map periodicity at multiples of 1/8.
+  const GridPeaks grid = grid_peaks(power, n, 8);
+  return {std::log10(peak.ratio), std::log10(0.5 * (grid.axis + grid.diagonal))};
+}
+
+}  // namespace residue

@@ -1,0 +1,30 @@
+#!/usr/bin/env bash
+# Installs residue's build and test dependencies from Debian's packages, then builds.
+# Usage: scripts/setup.sh [--no-build]
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+packages=(
+  build-essential cmake pkg-config
+  libfftw3-dev libsvm-dev doctest-dev libcli11-dev nlohmann-json3-dev
+  libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev
+  libjpeg62-turbo-dev libpng-dev libwebp-dev libtiff-dev
+  # reference libraries for the tests (Debian's, used by /usr/bin/python3)
+  python3 python3-numpy python3-scipy python3-skimage python3-pil
+)
+
+missing=()
+for p in "${packages[@]}"; do
+  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "ok installed" || missing+=("$p")
+done
+if [ ${#missing[@]} -gt 0 ]; then
+  sudo_cmd=()
+  [ "$(id -u)" -ne 0 ] && sudo_cmd=(sudo)
+  "${sudo_cmd[@]}" apt-get update -qq
+  DEBIAN_FRONTEND=noninteractive "${sudo_cmd[@]}" apt-get install -y -qq --no-install-recommends "${missing[@]}"
+fi
+
+if [ "${1:-}" != "--no-build" ]; then
+  cmake -S . -B build -DCMAKE_BUILD_TYPE=Release
+  cmake --build build -j"$(nproc)"
+fi

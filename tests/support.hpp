@@ -1,0 +1,38 @@
+// Test helpers: sample photographs, a scratch folder, and running the Python reference scripts.
+#pragma once
+
+#include <filesystem>
+#include <string>
+#include <vector>
+
+#include "residue/features/image.hpp"
+
+namespace residue::test {
+
+// scikit-image's sample image `name` (python3-skimage, public domain / CC0 photographs).
+std::filesystem::path sample(const std::string& name);
+
+// A scratch folder for this test process, removed at exit.
+std::filesystem::path scratch();
+
+// Runs tests/reference/<script> with Debian's /usr/bin/python3 and returns its stdout.
+// Fails the test (throws) when the script exits non-zero.
+std::string python(const std::string& script, const std::vector<std::string>& args);
+
+// Decodes a file completely (fails the test on error).
+Image load(const std::filesystem::path& path);
+
+// A w x h crop of `image` at (x, y).
+Image crop(const Image& image, int x, int y, int w, int h);
+
+// A grey image from its luma.
+Image grey_of(const Image& image);
+
+// Raw little-endian float32 files, row-major, as numpy.fromfile reads them.
+void write_floats(const std::filesystem::path& path, const std::vector<float>& values);
+std::vector<float> read_floats(const std::filesystem::path& path);
+
+// Writes bytes to a file.
+void write_bytes(const std::filesystem::path& path, const std::vector<std::uint8_t>& bytes);
+
+}  // namespace residue::test
