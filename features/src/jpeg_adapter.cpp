@@ -1,14 +1,16 @@
 // libjpeg-turbo adapter. Errors leave libjpeg by longjmp to the setjmp in decode_jpeg; no C++
 // object with a destructor lives in a frame that the jump crosses.
-// jpeglib.h needs size_t and FILE declared first.
-#include <jerror.h>
-#include <jpeglib.h>
-
 #include <algorithm>
 #include <csetjmp>
 #include <cstddef>
 #include <cstdio>
 #include <string>
+
+// jpeglib.h needs size_t and FILE declared before it, and jerror.h after it.
+// clang-format off
+#include <jpeglib.h>
+#include <jerror.h>
+// clang-format on
 
 #include "adapters.hpp"
 
