@@ -51,7 +51,10 @@ std::filesystem::path scratch() {
 std::string python(const std::string& script, const std::vector<std::string>& args) {
   std::string cmd =
       std::string(RESIDUE_PYTHON) + " " + quote(std::string(RESIDUE_REFERENCE_DIR) + "/" + script);
-  for (const auto& a : args) cmd += " " + quote(a);
+  for (const auto& a : args) {
+    cmd.push_back(' ');
+    cmd.append(quote(a));
+  }
   FILE* pipe = ::popen(cmd.c_str(), "r");
   if (pipe == nullptr) throw std::runtime_error("cannot run " + cmd);
   std::string out;
