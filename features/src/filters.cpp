@@ -78,9 +78,18 @@ std::vector<int> folded_index(int t) {
   return index;
 }
 
-int quantise(float r, double step, int t) {
-  const long q = std::lround(r / step);
-  return static_cast<int>(std::clamp<long>(q, -t, t));
+// Round half away from zero (as std::lround) without a library call, then truncate to [-T, T].
+int round_clamped(float v, int t) {
+  const float c = std::clamp(v, -static_cast<float>(t) - 1.0F, static_cast<float>(t) + 1.0F);
+  return std::clamp(static_cast<int>(c >= 0 ? c + 0.5F : c - 0.5F), -t, t);
+}
+
+const std::vector<int>& folded_index_cached(int t) {
+  static const std::vector<int> t2 = folded_index(2);
+  static thread_local std::vector<int> other;
+  if (t == 2) return t2;
+  other = folded_index(t);
+  return other;
 }
 
 }  // namespace
@@ -92,23 +101,26 @@ int folded_pair_classes(int t) {
 
 long add_folded_pairs(const Plane& residual, double step, int t, bool along_rows,
                       std::vector<double>& histogram) {
-  const auto index = folded_index(t);
+  const auto& index = folded_index_cached(t);
   const int side = 2 * t + 1;
   const int w = residual.width;
   const int h = residual.height;
+  const auto inverse = static_cast<float>(1.0 / step);
   std::vector<int> q(residual.values.size());
-  for (size_t i = 0; i < q.size(); ++i) q[i] = quantise(residual.values[i], step, t);
+  for (size_t i = 0; i < q.size(); ++i) q[i] = round_clamped(residual.values[i] * inverse, t);
+  // Count raw pairs first, fold once at the end.
+  std::vector<long> raw(static_cast<size_t>(side) * side, 0);
   long pairs = 0;
   const int dx = along_rows ? 1 : 0;
   const int dy = along_rows ? 0 : 1;
   for (int y = 0; y + dy < h; ++y) {
-    for (int x = 0; x + dx < w; ++x) {
-      const int a = q[static_cast<size_t>(y) * w + x];
-      const int b = q[static_cast<size_t>(y + dy) * w + x + dx];
-      histogram[index[(a + t) * side + (b + t)]] += 1.0;
-      ++pairs;
-    }
+    const int* row = q.data() + static_cast<size_t>(y) * w;
+    const int* next = row + static_cast<size_t>(dy) * w + dx;
+    const int count = w - dx;
+    for (int x = 0; x < count; ++x) ++raw[(row[x] + t) * side + (next[x] + t)];
+    pairs += count;
   }
+  for (size_t i = 0; i < raw.size(); ++i) histogram[index[i]] += static_cast<double>(raw[i]);
   return pairs;
 }
 
@@ -116,34 +128,43 @@ std::vector<double> spam_first_order(const float* image, int width, int height, 
   const int side = 2 * t + 1;
   const size_t cells = static_cast<size_t>(side) * side;
   std::vector<int> px(static_cast<size_t>(width) * height);
-  for (size_t i = 0; i < px.size(); ++i) px[i] = static_cast<int>(std::lround(image[i]));
+  for (size_t i = 0; i < px.size(); ++i) px[i] = round_clamped(image[i], 1 << 20);
   auto at = [&](int y, int x) { return px[static_cast<size_t>(y) * width + x]; };
-  // The eight directions of SPAM: right, left, down, up, then the four diagonals.
-  static constexpr int kDirs[8][2] = {{0, 1}, {0, -1}, {1, 0}, {-1, 0}, {1, 1}, {-1, -1}, {1, -1}, {-1, 1}};
+  // Each of the four axes (rows, columns, two diagonals) is walked once, forwards: J(a, b) counts
+  // consecutive truncated differences a = D(k), b = D(k+1), D(k) = I(k) - I(k+1). The backward
+  // direction on the same axis sees the differences negated and in reverse order, so its
+  // transitions v -> u are J(-u, -v). SPAM's eight directions come from these four counts.
+  static constexpr int kAxes[4][2] = {{0, 1}, {1, 0}, {1, 1}, {1, -1}};
   std::vector<double> features(2 * cells, 0.0);
-  for (int d = 0; d < 8; ++d) {
-    const int dy = kDirs[d][0];
-    const int dx = kDirs[d][1];
+  for (int a = 0; a < 4; ++a) {
+    const int dy = kAxes[a][0];
+    const int dx = kAxes[a][1];
     std::vector<double> joint(cells, 0.0);
-    std::vector<double> marginal(side, 0.0);
-    // Needs pixels (y, x), (y+dy, x+dx), (y+2dy, x+2dx) inside the image.
-    for (int y = 0; y < height; ++y) {
-      const int y2 = y + 2 * dy;
-      if (y2 < 0 || y2 >= height) continue;
-      for (int x = 0; x < width; ++x) {
-        const int x2 = x + 2 * dx;
-        if (x2 < 0 || x2 >= width) continue;
-        const int d0 = std::clamp(at(y, x) - at(y + dy, x + dx), -t, t);
-        const int d1 = std::clamp(at(y + dy, x + dx) - at(y2, x2), -t, t);
-        joint[(d1 + t) * side + (d0 + t)] += 1.0;  // (u = next, v = current)
-        marginal[d0 + t] += 1.0;
+    const int x_lo = dx < 0 ? 2 : 0;
+    const int x_hi = dx > 0 ? width - 2 : width;
+    for (int y = 0; y + 2 * dy < height; ++y) {
+      for (int x = x_lo; x < x_hi; ++x) {
+        const int p0 = at(y, x);
+        const int p1 = at(y + dy, x + dx);
+        const int p2 = at(y + 2 * dy, x + 2 * dx);
+        const int d0 = std::clamp(p0 - p1, -t, t);
+        const int d1 = std::clamp(p1 - p2, -t, t);
+        joint[(d0 + t) * side + (d1 + t)] += 1.0;
       }
     }
-    const size_t offset = d < 4 ? 0 : cells;
-    for (int u = 0; u < side; ++u) {
-      for (int v = 0; v < side; ++v) {
-        const double m = marginal[v] > 0 ? joint[u * side + v] / marginal[v] : 0.0;
-        features[offset + u * side + v] += m / 4.0;
+    const size_t offset = a < 2 ? 0 : cells;
+    for (int backward = 0; backward < 2; ++backward) {
+      // M(u | v) = J(v, u) / sum_u J(v, u) forwards; J(-u, -v) / sum_u J(-u, -v) backwards.
+      for (int v = -t; v <= t; ++v) {
+        double marginal = 0.0;
+        for (int u = -t; u <= t; ++u) {
+          marginal += backward ? joint[(-u + t) * side + (-v + t)] : joint[(v + t) * side + (u + t)];
+        }
+        if (marginal == 0.0) continue;
+        for (int u = -t; u <= t; ++u) {
+          const double j = backward ? joint[(-u + t) * side + (-v + t)] : joint[(v + t) * side + (u + t)];
+          features[offset + (u + t) * side + (v + t)] += j / marginal / 4.0;
+        }
       }
     }
   }
@@ -158,21 +179,34 @@ double immerkaer_sigma(const float* image, int width, int height) {
   return std::sqrt(std::numbers::pi / 2.0) * sum / (6.0 * (width - 2.0) * (height - 2.0));
 }
 
-Moments moments(std::span<const float> values) {
-  if (values.empty()) return {};
-  double mean = 0.0;
-  for (float v : values) mean += v;
-  mean /= static_cast<double>(values.size());
-  double m2 = 0.0;
-  double m4 = 0.0;
+void MomentSums::add(std::span<const float> values) {
   for (float v : values) {
-    const double d = v - mean;
-    m2 += d * d;
-    m4 += d * d * d * d;
+    const double d = v;
+    const double d2 = d * d;
+    s1 += d;
+    s2 += d2;
+    s3 += d2 * d;
+    s4 += d2 * d2;
   }
-  m2 /= static_cast<double>(values.size());
-  m4 /= static_cast<double>(values.size());
+  count += values.size();
+}
+
+Moments MomentSums::moments() const {
+  if (count == 0) return {};
+  const double n = static_cast<double>(count);
+  const double mu = s1 / n;
+  const double e2 = s2 / n;
+  const double e3 = s3 / n;
+  const double e4 = s4 / n;
+  const double m2 = e2 - mu * mu;
+  const double m4 = e4 - 4 * mu * e3 + 6 * mu * mu * e2 - 3 * mu * mu * mu * mu;
   return {m2, m2 > 1e-12 ? m4 / (m2 * m2) - 3.0 : 0.0};
+}
+
+Moments moments(std::span<const float> values) {
+  MomentSums sums;
+  sums.add(values);
+  return sums.moments();
 }
 
 }  // namespace residue

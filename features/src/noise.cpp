@@ -14,7 +14,12 @@ namespace {
 constexpr int kCoocT = 2;  // truncation of the quantised residuals
 constexpr int kSpamT = 2;  // truncation of the SPAM differences (the paper uses 4; see docs)
 
-std::string signed_label(int k) { return (k < 0 ? "m" : "p") + std::to_string(std::abs(k)); }
+// "m2" for -2, "p1" for +1: signs spelled out so names stay plain identifiers.
+std::string signed_label(int k) {
+  char buf[16];
+  std::snprintf(buf, sizeof buf, "%c%d", k < 0 ? 'm' : 'p', std::abs(k));
+  return buf;
+}
 
 }  // namespace
 
@@ -103,22 +108,21 @@ std::vector<double> noise_window(const WindowInput& window) {
   for (const auto& k : rich_model_kernels()) {
     std::vector<double> histogram(classes, 0.0);
     long pairs = 0;
-    std::vector<float> all;
+    MomentSums sums;
     const Plane h = correlate_valid(y, n, n, k);
+    sums.add(h.values);
     if (k.directional) {
       // Horizontal kernel with pairs along rows, vertical kernel with pairs along columns.
       const Plane v = correlate_valid(y, n, n, k.transposed());
+      sums.add(v.values);
       pairs += add_folded_pairs(h, k.step, kCoocT, true, histogram);
       pairs += add_folded_pairs(v, k.step, kCoocT, false, histogram);
-      all = h.values;
-      all.insert(all.end(), v.values.begin(), v.values.end());
     } else {
       pairs += add_folded_pairs(h, k.step, kCoocT, true, histogram);
       pairs += add_folded_pairs(h, k.step, kCoocT, false, histogram);
-      all = h.values;
     }
     for (double c : histogram) values.push_back(pairs > 0 ? c / static_cast<double>(pairs) : 0.0);
-    kernel_moments.push_back(moments(all));
+    kernel_moments.push_back(sums.moments());
   }
   const auto spam = spam_first_order(y, n, n, kSpamT);
   values.insert(values.end(), spam.begin(), spam.end());

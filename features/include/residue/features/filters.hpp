@@ -62,4 +62,13 @@ struct Moments {
 };
 Moments moments(std::span<const float> values);
 
+// Power sums for moments over several arrays in one pass each (residuals have mean near 0, so
+// the raw-moment formulas lose no precision that matters here).
+struct MomentSums {
+  double s1 = 0, s2 = 0, s3 = 0, s4 = 0;
+  size_t count = 0;
+  void add(std::span<const float> values);
+  [[nodiscard]] Moments moments() const;
+};
+
 }  // namespace residue
