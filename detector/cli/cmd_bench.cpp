@@ -61,6 +61,7 @@ void bench_case(const Case& c, int repeats) {
   for (auto& t : runs) (void)extract_tiles(decoded->tiles, &t);
   auto med = [&](double FamilyTimings::*field) {
     std::vector<double> v;
+    v.reserve(runs.size());
     for (const auto& t : runs) v.push_back(t.*field);
     std::sort(v.begin(), v.end());
     return v[v.size() / 2];
@@ -114,6 +115,7 @@ int run_bench(const BenchArgs& args) {
       "feat/win = feature time / window-decode time.\n\n");
 
   std::vector<std::string> batch;
+  batch.reserve(static_cast<size_t>(args.batch));
   for (int i = 0; i < args.batch; ++i) batch.push_back(cases[i % 2].path.string());
   double one = 0.0;
   for (int jobs : {1, 2}) {

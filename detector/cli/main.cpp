@@ -5,7 +5,7 @@
 #include "commands.hpp"
 #include "residue/detector/record.hpp"
 
-int main(int argc, char** argv) {
+int main(int argc, char** argv) try {
   CLI::App app{"residue: screens images for traces of generative models (advisory evidence, not proof)"};
   app.require_subcommand(1);
   app.set_version_flag("--version", "residue 0.1.0");
@@ -23,4 +23,7 @@ int main(int argc, char** argv) {
     return static_cast<int>(residue::ExitCode::kFailure);
   }
   return exit_code;
+} catch (const std::exception& e) {
+  std::cerr << "residue: " << e.what() << "\n";
+  return static_cast<int>(residue::ExitCode::kFailure);
 }

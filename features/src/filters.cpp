@@ -163,7 +163,7 @@ std::vector<double> spam_first_order(const float* image, int width, int height, 
         if (marginal == 0.0) continue;
         for (int u = -t; u <= t; ++u) {
           const double j = backward ? joint[(-u + t) * side + (-v + t)] : joint[(v + t) * side + (u + t)];
-          features[offset + (u + t) * side + (v + t)] += j / marginal / 4.0;
+          features[offset + static_cast<size_t>((u + t) * side + (v + t))] += j / marginal / 4.0;
         }
       }
     }
@@ -193,7 +193,7 @@ void MomentSums::add(std::span<const float> values) {
 
 Moments MomentSums::moments() const {
   if (count == 0) return {};
-  const double n = static_cast<double>(count);
+  const auto n = static_cast<double>(count);
   const double mu = s1 / n;
   const double e2 = s2 / n;
   const double e3 = s3 / n;

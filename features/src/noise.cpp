@@ -50,7 +50,7 @@ CfaTraces cfa_traces(const Tile& tile) {
   }
   auto corr = [](const std::vector<float>& a, const std::vector<float>& b) {
     double sa = 0, sb = 0, saa = 0, sbb = 0, sab = 0;
-    const double m = static_cast<double>(a.size());
+    const auto m = static_cast<double>(a.size());
     for (size_t i = 0; i < a.size(); ++i) {
       sa += a[i];
       sb += b[i];

@@ -126,7 +126,7 @@ std::vector<double> spectral_window(const WindowInput& window) {
   // (transposed convolution) and a periodic variance (interpolation) both show there as points.
   std::vector<float> magnitude(residual.size());
   double mean_magnitude = 0.0;
-  for (size_t i = 0; i < residual.size(); ++i) mean_magnitude += std::fabs(residual[i]);
+  for (float r : residual) mean_magnitude += std::fabs(r);
   mean_magnitude /= static_cast<double>(residual.size());
   for (size_t i = 0; i < residual.size(); ++i) {
     magnitude[i] = std::fabs(residual[i]) - static_cast<float>(mean_magnitude);

@@ -1,6 +1,7 @@
 #include "residue/features/windows.hpp"
 
 #include <algorithm>
+#include <cmath>
 #include <cstring>
 #include <string>
 
@@ -23,7 +24,7 @@ std::vector<int> spread(int extent, int size, int count) {
   }
   const double step = static_cast<double>(extent - size) / (count - 1);
   for (int i = 0; i < count; ++i) {
-    origins.push_back(static_cast<int>(i * step + 0.5) / 8 * 8);
+    origins.push_back(static_cast<int>(std::lround(i * step)) / 8 * 8);
   }
   return origins;
 }

@@ -80,6 +80,7 @@ void extract_batch(const std::vector<std::string>& paths, const ExtractOptions& 
     }
   };
   std::vector<std::thread> threads;
+  threads.reserve(static_cast<size_t>(jobs));
   for (int j = 0; j < jobs; ++j) threads.emplace_back(worker);
   for (auto& t : threads) t.join();
 }
