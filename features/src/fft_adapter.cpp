@@ -23,18 +23,33 @@ using ComplexBuffer = std::unique_ptr<fftw_complex[], FftwFree>;
 RealBuffer alloc_real(size_t n) { return RealBuffer(fftw_alloc_real(n)); }
 ComplexBuffer alloc_complex(size_t n) { return ComplexBuffer(fftw_alloc_complex(n)); }
 
-// The FFTW planner is not thread-safe; executing a plan on new arrays is (FFTW manual 5.4).
+// Plans by size. The FFTW planner is not thread-safe; executing a plan on new arrays is (FFTW
+// manual 5.4). Plans live until exit, when they are destroyed so leak checkers stay quiet.
+class PlanCache {
+ public:
+  ~PlanCache() {
+    for (auto& [n, plan] : plans_) fftw_destroy_plan(plan);
+    fftw_cleanup();
+  }
+  fftw_plan get(int n) {
+    std::lock_guard lock(mutex_);
+    auto it = plans_.find(n);
+    if (it != plans_.end()) return it->second;
+    auto in = alloc_real(static_cast<size_t>(n) * n);
+    auto out = alloc_complex(static_cast<size_t>(n) * (n / 2 + 1));
+    fftw_plan plan = fftw_plan_dft_r2c_2d(n, n, in.get(), out.get(), FFTW_ESTIMATE);
+    plans_.emplace(n, plan);
+    return plan;
+  }
+
+ private:
+  std::mutex mutex_;
+  std::map<int, fftw_plan> plans_;
+};
+
 fftw_plan plan_for(int n) {
-  static std::mutex mutex;
-  static std::map<int, fftw_plan> plans;
-  std::lock_guard lock(mutex);
-  auto it = plans.find(n);
-  if (it != plans.end()) return it->second;
-  auto in = alloc_real(static_cast<size_t>(n) * n);
-  auto out = alloc_complex(static_cast<size_t>(n) * (n / 2 + 1));
-  fftw_plan plan = fftw_plan_dft_r2c_2d(n, n, in.get(), out.get(), FFTW_ESTIMATE);
-  plans.emplace(n, plan);
-  return plan;
+  static PlanCache cache;
+  return cache.get(n);
 }
 
 const std::vector<double>& hann(int n) {
