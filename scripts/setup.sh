@@ -7,10 +7,11 @@ cd "$(dirname "$0")/.."
 packages=(
   build-essential cmake pkg-config
   libfftw3-dev libsvm-dev doctest-dev libcli11-dev nlohmann-json3-dev
+  libexiv2-dev libssl-dev libsqlite3-dev
   libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev
   libjpeg62-turbo-dev libpng-dev libwebp-dev libtiff-dev
   # reference libraries for the tests (Debian's, used by /usr/bin/python3)
-  python3 python3-numpy python3-scipy python3-skimage python3-pil
+  python3 python3-numpy python3-scipy python3-skimage python3-pil python3-sklearn
 )
 
 missing=()

@@ -6,9 +6,9 @@
 #include <memory>
 
 #include "commands.hpp"
-#include "residue/detector/atomic_file.hpp"
 #include "residue/detector/record.hpp"
 #include "residue/detector/sample_images.hpp"
+#include "residue/training/atomic_file.hpp"
 #include "residue/training/batch.hpp"
 
 namespace residue::cli {

@@ -6,8 +6,8 @@
 
 #include "commands.hpp"
 #include "options.hpp"
-#include "residue/detector/atomic_file.hpp"
 #include "residue/detector/record.hpp"
+#include "residue/training/atomic_file.hpp"
 #include "residue/training/batch.hpp"
 
 namespace residue::cli {

@@ -9,5 +9,8 @@ namespace residue::cli {
 void add_features_command(CLI::App& app, int& exit_code);
 void add_bench_command(CLI::App& app, int& exit_code);
 void add_demo_command(CLI::App& app, int& exit_code);
+void add_train_command(CLI::App& app, int& exit_code);
+void add_audit_command(CLI::App& app, int& exit_code);
+void add_evaluate_command(CLI::App& app, int& exit_code);
 
 }  // namespace residue::cli

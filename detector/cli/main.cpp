@@ -10,6 +10,9 @@ int main(int argc, char** argv) try {
   app.require_subcommand(1);
   app.set_version_flag("--version", "residue 0.1.0");
   int exit_code = 0;
+  residue::cli::add_train_command(app, exit_code);
+  residue::cli::add_audit_command(app, exit_code);
+  residue::cli::add_evaluate_command(app, exit_code);
   residue::cli::add_features_command(app, exit_code);
   residue::cli::add_bench_command(app, exit_code);
   residue::cli::add_demo_command(app, exit_code);

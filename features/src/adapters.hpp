@@ -17,8 +17,10 @@ struct JpegOutput {
 
 // Decodes a JPEG with libjpeg-turbo. With a layout, only the scanlines the windows cover are
 // decoded (others skipped) and only the column span they cover (cropped scanlines).
+// Without a layout, `scale_denominator` (1, 2, 4 or 8) decodes a reduced image with libjpeg's
+// DCT scaling, for previews and fingerprints.
 Result<JpegOutput> decode_jpeg(std::span<const std::uint8_t> bytes, const DecodeLimits& limits,
-                               const WindowLayout* layout);
+                               const WindowLayout* layout, int scale_denominator = 1);
 
 // Decodes PNG, WebP, TIFF and BMP with OpenCV's imgcodecs; drops alpha and reports it.
 Result<Image> decode_with_opencv(std::span<const std::uint8_t> bytes, const ImageHeader& header,

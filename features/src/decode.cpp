@@ -89,6 +89,18 @@ Result<Image> decode_image(std::span<const std::uint8_t> bytes, const DecodeLimi
   return detail::decode_with_opencv(bytes, *header, &alpha_dropped);
 }
 
+Result<Image> decode_preview(std::span<const std::uint8_t> bytes, const DecodeLimits& limits) {
+  auto header = checked_header(bytes, limits);
+  if (!header) return header.error();
+  if (header->format == ImageFormat::kJpeg) {
+    auto out = detail::decode_jpeg(bytes, limits, nullptr, 8);
+    if (!out) return out.error();
+    return std::move(out->full);
+  }
+  bool alpha_dropped = false;
+  return detail::decode_with_opencv(bytes, *header, &alpha_dropped);
+}
+
 Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const DecodeLimits& limits,
                                       const WindowPolicy& policy, bool skip_unused_rows) {
   auto header = checked_header(bytes, limits);

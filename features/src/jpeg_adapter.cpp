@@ -70,7 +70,7 @@ int next_needed_row(int y, int height, const std::vector<Tile>& tiles) {
 }  // namespace
 
 Result<JpegOutput> decode_jpeg(std::span<const std::uint8_t> bytes, const DecodeLimits& limits,
-                               const WindowLayout* layout) {
+                               const WindowLayout* layout, int scale_denominator) {
   JpegOutput out;
   jpeg_decompress_struct cinfo{};
   ErrorManager err{};
@@ -118,6 +118,10 @@ Result<JpegOutput> decode_jpeg(std::span<const std::uint8_t> bytes, const Decode
     if (table_of(1, chroma)) out.tables.chroma = chroma;
   }
 
+  if (layout == nullptr) {
+    cinfo.scale_num = 1;
+    cinfo.scale_denom = static_cast<unsigned int>(scale_denominator);
+  }
   jpeg_start_decompress(&cinfo);
   const int height = static_cast<int>(cinfo.output_height);
   if (layout == nullptr) {

@@ -56,6 +56,10 @@ Result<ImageHeader> read_header(std::span<const std::uint8_t> bytes);
 // Decodes the whole image (alpha dropped). For pictures and tests; analysis uses decode_windows.
 Result<Image> decode_image(std::span<const std::uint8_t> bytes, const DecodeLimits& limits = {});
 
+// Decodes a picture for fingerprints and thumbnails: a JPEG at 1/8 scale through libjpeg's DCT
+// scaling (fast), other formats whole. Not for analysis: scaling erases the traces.
+Result<Image> decode_preview(std::span<const std::uint8_t> bytes, const DecodeLimits& limits = {});
+
 // Decodes the pixels of the planned analysis windows. With `skip_unused_rows` (the default) a
 // JPEG decodes only the scanlines and column span that the windows cover.
 Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const DecodeLimits& limits = {},

@@ -1,4 +1,4 @@
-#include "residue/detector/atomic_file.hpp"
+#include "residue/training/atomic_file.hpp"
 
 #include <unistd.h>
 

@@ -1,0 +1,91 @@
+#include "dataset_options.hpp"
+
+#include <unistd.h>
+
+#include <cstdio>
+#include <cstdlib>
+#include <filesystem>
+#include <iostream>
+#include <thread>
+
+#include "options.hpp"
+
+namespace residue::cli {
+
+std::string default_cache_path() {
+  std::filesystem::path base;
+  if (const char* xdg = std::getenv("XDG_CACHE_HOME"); xdg != nullptr && *xdg != '\0') {
+    base = xdg;
+  } else if (const char* home = std::getenv("HOME"); home != nullptr && *home != '\0') {
+    base = std::filesystem::path(home) / ".cache";
+  } else {
+    base = std::filesystem::temp_directory_path();
+  }
+  return (base / "residue" / "features.sqlite").string();
+}
+
+void add_dataset_options(CLI::App& command, DatasetArgs& args, const std::string& root_help) {
+  command.add_option("root", args.root, root_help)->required();
+  command.add_option("--cache", args.cache_path,
+                     "feature cache file (SQLite; default " + default_cache_path() + ")");
+  command.add_flag("--no-cache", args.no_cache, "extract every file again and store nothing");
+  command.add_option("-j,--jobs", args.jobs, "parallel extraction threads (default: cores)")
+      ->check(CLI::Range(1, 256));
+  add_extract_options(command, args.extract);
+}
+
+std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const char* command) {
+  auto dataset = load_dataset(args.root);
+  if (!dataset) {
+    std::cerr << "residue " << command << ": " << dataset.error().message << "\n";
+    return std::nullopt;
+  }
+  std::unique_ptr<FeatureCache> cache;
+  if (!args.no_cache) {
+    const std::string path = args.cache_path.empty() ? default_cache_path() : args.cache_path;
+    std::error_code ec;
+    std::filesystem::create_directories(std::filesystem::path(path).parent_path(), ec);
+    auto opened = FeatureCache::open(path);
+    if (opened) {
+      cache = std::move(*opened);
+    } else {
+      std::cerr << "residue " << command << ": " << opened.error().message
+                << " (continuing without a cache)\n";
+    }
+  }
+  const bool terminal = ::isatty(STDERR_FILENO) != 0;
+  const auto start = std::chrono::steady_clock::now();
+  ProgressFn progress;
+  if (terminal) {
+    progress = [start](size_t done, size_t total) {
+      const double s = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+      const double rate = s > 0 ? static_cast<double>(done) / s : 0.0;
+      const double eta = rate > 0 ? static_cast<double>(total - done) / rate : 0.0;
+      const int width = 30;
+      const int filled = total > 0 ? static_cast<int>(width * done / total) : width;
+      std::fprintf(stderr, "\r[%-*s] %zu/%zu  %.1f images/s  ETA %.0f s ", width,
+                   std::string(filled, '#').c_str(), done, total, rate, eta);
+      if (done == total) std::fprintf(stderr, "\n");
+    };
+  }
+  const int jobs =
+      args.jobs > 0 ? args.jobs : static_cast<int>(std::max(1U, std::thread::hardware_concurrency()));
+  PreparedDataset out{std::move(*dataset), {}};
+  out.report = prepare_dataset(out.dataset, args.extract, cache.get(), jobs, progress);
+  std::cerr << "residue " << command << ": " << out.report.items.size() << " images ready ("
+            << out.report.extracted << " extracted, " << out.report.cached << " from the feature cache) in "
+            << static_cast<int>(out.report.seconds * 10) / 10.0 << " s";
+  if (!out.report.failed.empty() || !out.dataset.skipped.empty()) {
+    std::cerr << "; " << out.report.failed.size() + out.dataset.skipped.size() << " skipped:";
+  }
+  std::cerr << "\n";
+  for (const auto& [path, reason] : out.dataset.skipped)
+    std::cerr << "  skipped " << path << ": " << reason << "\n";
+  for (const auto& [file, error] : out.report.failed) {
+    std::cerr << "  skipped " << file.path << ": " << error_code_name(error.code) << ": " << error.message
+              << "\n";
+  }
+  return out;
+}
+
+}  // namespace residue::cli

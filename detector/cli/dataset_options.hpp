@@ -1,0 +1,37 @@
+// Shared by train, audit and evaluate: where the feature cache lives, threads, the progress bar,
+// and turning a labelled folder (or manifest) into prepared items.
+#pragma once
+
+#include <CLI/CLI.hpp>
+#include <memory>
+#include <string>
+
+#include "residue/training/cache.hpp"
+#include "residue/training/prepare.hpp"
+
+namespace residue::cli {
+
+struct DatasetArgs {
+  std::string root;        // ROOT folder or CSV manifest
+  std::string cache_path;  // empty: the default location
+  bool no_cache = false;
+  int jobs = 0;  // 0: one per core
+  ExtractOptions extract;
+};
+
+// Registers ROOT plus --cache, --no-cache, --jobs and the extraction limits.
+void add_dataset_options(CLI::App& command, DatasetArgs& args, const std::string& root_help);
+
+// Loads the dataset and prepares it (cache, parallel extraction, progress bar on a terminal).
+// Prints a one-line summary and the unreadable files to stderr. Returns nullopt after printing
+// the error when the dataset itself cannot be read.
+struct PreparedDataset {
+  Dataset dataset;
+  PrepareReport report;
+};
+std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const char* command);
+
+// The default cache file: $XDG_CACHE_HOME/residue/features.sqlite or ~/.cache/residue/...
+std::string default_cache_path();
+
+}  // namespace residue::cli

@@ -1,0 +1,78 @@
+// exiv2 adapter: the only file that includes exiv2.
+#include <algorithm>
+#include <exiv2/exiv2.hpp>
+
+#include "residue/features/metadata.hpp"
+
+namespace residue {
+
+namespace {
+
+bool looks_like_generation_settings(const std::string& text) {
+  static const char* const kMarkers[] = {
+      "parameters", "prompt", "Steps:", "Sampler:", "workflow", "Negative prompt"};
+  return std::any_of(std::begin(kMarkers), std::end(kMarkers),
+                     [&](const char* m) { return text.find(m) != std::string::npos; });
+}
+
+// Keywords and (uncompressed) text of a PNG's tEXt and iTXt chunks, walked by the chunk layout
+// of ISO/IEC 15948 section 5.3; exiv2 keeps only the ones it knows (XMP, EXIF, comments).
+std::string png_text(std::span<const std::uint8_t> b) {
+  std::string text;
+  size_t i = 8;
+  while (i + 12 <= b.size()) {
+    const size_t length =
+        (size_t{b[i]} << 24) | (size_t{b[i + 1]} << 16) | (size_t{b[i + 2]} << 8) | b[i + 3];
+    const std::string type(b.begin() + static_cast<std::ptrdiff_t>(i + 4),
+                           b.begin() + static_cast<std::ptrdiff_t>(i + 8));
+    if (i + 12 + length > b.size()) break;
+    if (type == "tEXt" || type == "iTXt" || type == "zTXt") {
+      const auto* start = b.data() + i + 8;
+      text.append(reinterpret_cast<const char*>(start), std::min<size_t>(length, 4096));
+      text.push_back('\n');
+    }
+    if (type == "IEND") break;
+    i += 12 + length;
+  }
+  return text;
+}
+
+std::string value_of(const Exiv2::ExifData& exif, const char* key) {
+  const auto it = exif.findKey(Exiv2::ExifKey(key));
+  return it == exif.end() ? std::string() : it->toString();
+}
+
+}  // namespace
+
+DeclaredMetadata read_metadata(std::span<const std::uint8_t> bytes) {
+  DeclaredMetadata out;
+  try {
+    Exiv2::LogMsg::setLevel(Exiv2::LogMsg::mute);
+    auto image = Exiv2::ImageFactory::open(bytes.data(), static_cast<long>(bytes.size()));
+    if (image.get() == nullptr) {
+      out.readable = false;
+      return out;
+    }
+    image->readMetadata();
+    const auto& exif = image->exifData();
+    out.has_exif = !exif.empty();
+    out.camera_make = value_of(exif, "Exif.Image.Make");
+    out.camera_model = value_of(exif, "Exif.Image.Model");
+    const auto& xmp = image->xmpData();
+    out.has_xmp = !xmp.empty();
+    const auto dst = xmp.findKey(Exiv2::XmpKey("Xmp.iptcExt.DigitalSourceType"));
+    if (dst != xmp.end()) {
+      const std::string uri = dst->toString();
+      out.digital_source_type = uri.substr(uri.find_last_of('/') + 1);
+    }
+    out.generation_text = looks_like_generation_settings(image->comment());
+    if (image->imageType() == Exiv2::ImageType::png) {
+      out.generation_text = out.generation_text || looks_like_generation_settings(png_text(bytes));
+    }
+  } catch (const std::exception&) {
+    out.readable = false;
+  }
+  return out;
+}
+
+}  // namespace residue

@@ -1,0 +1,70 @@
+// The model file: one self-describing JSON document (format "residue-model", version 1) with the
+// feature schema, scaler, linear weights, Platt calibration, thresholds and training provenance.
+// Written atomically; loading refuses another format, version, extractor or schema.
+//
+// Scoring: z = (x - mean) / scale on the model's features; margin m = w . z + b (positive towards
+// "generated"); P(generated) = 1 / (1 + exp(A m + B)) at the training base rate, optionally moved
+// to a deployment base rate (calibration.hpp, shift_prior). Bands: "likely-generated" when
+// P >= thresholds.likely_generated, "likely-camera" when P < thresholds.likely_camera,
+// "inconclusive" between.
+#pragma once
+
+#include <filesystem>
+#include <map>
+#include <nlohmann/json.hpp>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "residue/features/extract.hpp"
+#include "residue/training/calibration.hpp"
+#include "residue/training/linear.hpp"
+
+namespace residue {
+
+inline constexpr const char* kModelFormat = "residue-model";
+inline constexpr int kModelFormatVersion = 1;
+
+struct Thresholds {
+  double likely_generated = 0.5;  // P at or above: "likely-generated" (chosen for target_fpr)
+  double likely_camera = 0.5;     // P below: "likely-camera"
+  double target_fpr = 0.01;       // share of camera images allowed at or above likely_generated
+  double generated_miss = 0.05;   // share of generated images allowed below likely_camera
+};
+
+struct Model {
+  std::string id;       // content fingerprint, e.g. "m-3fa2c1d09e8b7a65"
+  std::string created;  // UTC, ISO 8601
+  std::string extractor_version;
+  std::string schema_id;
+  std::vector<std::string> features;  // names used, in weight order (all, or a subset)
+  std::vector<std::string> families;  // family of each used feature
+  std::vector<size_t> feature_index;  // position of each used feature in the full vector
+  Scaler scaler;
+  LinearModel linear;
+  PlattSigmoid calibration;
+  double training_prior = 0.5;  // share of generated images in the calibration data
+  Thresholds thresholds;
+  nlohmann::ordered_json provenance;  // counts, audit warnings, CV metrics, settings, lineage
+};
+
+struct Score {
+  double margin = 0.0;
+  double p_generated = 0.0;
+  std::string band;
+  std::map<std::string, double> contributions;  // per family: sum of w_j z_j (bias excluded)
+};
+
+Score score(const Model& model, const FeatureVector& features, std::optional<double> prior = std::nullopt);
+std::string band_of(const Thresholds& thresholds, double p);
+
+nlohmann::ordered_json model_to_json(const Model& model);
+Result<Model> model_from_json(const nlohmann::json& json);
+Result<bool> save_model(const Model& model, const std::filesystem::path& path);
+Result<Model> load_model(const std::filesystem::path& path);
+
+// Positions of the named features in the full vector, for a subset selected by name prefixes
+// (empty: all). Fails on a prefix that matches nothing.
+Result<std::vector<size_t>> select_features(const std::vector<std::string>& prefixes);
+
+}  // namespace residue

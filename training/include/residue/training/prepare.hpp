@@ -1,0 +1,57 @@
+// Preparing a labelled dataset for training: hash each file, take its features from the cache or
+// extract them (in parallel), and collect the file facts the audit needs.
+#pragma once
+
+#include <cstdint>
+#include <functional>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "residue/features/extract.hpp"
+#include "residue/features/metadata.hpp"
+#include "residue/training/dataset.hpp"
+
+namespace residue {
+
+// What the audit looks at besides pixels: container, size, compression, metadata, fingerprint.
+struct FileFacts {
+  std::string format;
+  int width = 0;
+  int height = 0;
+  int channels = 0;
+  bool alpha_dropped = false;
+  std::optional<int> jpeg_quality;
+  double block_grid_strength = 1.0;
+  std::uint64_t file_bytes = 0;
+  std::uint64_t dhash = 0;  // difference hash of the picture (near duplicates)
+  DeclaredMetadata metadata;
+};
+
+struct PreparedItem {
+  LabelledFile file;
+  std::string sha256;
+  FileFacts facts;
+  FeatureVector features;
+  bool from_cache = false;
+};
+
+struct PrepareReport {
+  std::vector<PreparedItem> items;                     // in dataset order, failures left out
+  std::vector<std::pair<LabelledFile, Error>> failed;  // unreadable or undecodable files
+  size_t extracted = 0;
+  size_t cached = 0;
+  double seconds = 0.0;
+};
+
+class FeatureCache;
+
+// Called after each file with (done, total); from one thread at a time.
+using ProgressFn = std::function<void(size_t done, size_t total)>;
+
+// Extracts with `jobs` threads. With a cache, files whose content hash and extractor version are
+// already stored are not decoded again, and new extractions are stored.
+PrepareReport prepare_dataset(const Dataset& dataset, const ExtractOptions& options, FeatureCache* cache,
+                              int jobs, const ProgressFn& progress = {});
+
+}  // namespace residue

@@ -1,0 +1,43 @@
+// Training: grouped k-fold cross-validation chooses C and gives out-of-fold margins; Platt's
+// sigmoid is fitted on those margins; thresholds come from the out-of-fold probabilities; the
+// final linear SVM is trained on every example with the chosen C.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include "residue/training/audit.hpp"
+#include "residue/training/evaluation.hpp"
+#include "residue/training/groups.hpp"
+#include "residue/training/model.hpp"
+
+namespace residue {
+
+struct TrainSettings {
+  int folds = 5;
+  std::vector<double> c_grid = {0.001, 0.01, 0.1, 1.0, 10.0};
+  double target_fpr = 0.01;      // on camera images, for the likely-generated threshold
+  double generated_miss = 0.05;  // on generated images, for the likely-camera threshold
+  GroupBy group_by = GroupBy::kDuplicates;
+  std::vector<std::string> feature_prefixes;  // empty: every feature
+};
+
+struct CrossValidation {
+  double chosen_c = 1.0;
+  std::vector<std::pair<double, double>> auc_by_c;  // (C, pooled out-of-fold ROC AUC)
+  std::vector<int> fold;                            // fold of each example
+  size_t groups = 0;
+  std::vector<double> margins;        // out-of-fold, at the chosen C
+  std::vector<double> probabilities;  // Platt on those margins
+  EvaluationReport report;            // out-of-fold metrics at the stored threshold
+};
+
+struct TrainOutcome {
+  Model model;
+  CrossValidation cv;
+};
+
+Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const TrainSettings& settings,
+                                 const AuditReport& audit);
+
+}  // namespace residue

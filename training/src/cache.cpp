@@ -1,0 +1,136 @@
+// SQLite adapter for the feature cache.
+#include "residue/training/cache.hpp"
+
+#include <sqlite3.h>
+
+#include <cstring>
+#include <nlohmann/json.hpp>
+
+namespace residue {
+
+namespace {
+
+nlohmann::json facts_to_json(const FileFacts& f) {
+  return {{"format", f.format},
+          {"width", f.width},
+          {"height", f.height},
+          {"channels", f.channels},
+          {"alpha_dropped", f.alpha_dropped},
+          {"jpeg_quality", f.jpeg_quality ? nlohmann::json(*f.jpeg_quality) : nlohmann::json(nullptr)},
+          {"block_grid_strength", f.block_grid_strength},
+          {"file_bytes", f.file_bytes},
+          {"dhash", f.dhash},
+          {"has_exif", f.metadata.has_exif},
+          {"camera_make", f.metadata.camera_make},
+          {"camera_model", f.metadata.camera_model},
+          {"has_xmp", f.metadata.has_xmp},
+          {"digital_source_type", f.metadata.digital_source_type},
+          {"generation_text", f.metadata.generation_text}};
+}
+
+FileFacts facts_from_json(const nlohmann::json& j) {
+  FileFacts f;
+  f.format = j.at("format");
+  f.width = j.at("width");
+  f.height = j.at("height");
+  f.channels = j.at("channels");
+  f.alpha_dropped = j.at("alpha_dropped");
+  if (!j.at("jpeg_quality").is_null()) f.jpeg_quality = j.at("jpeg_quality").get<int>();
+  f.block_grid_strength = j.at("block_grid_strength");
+  f.file_bytes = j.at("file_bytes");
+  f.dhash = j.at("dhash");
+  f.metadata.has_exif = j.at("has_exif");
+  f.metadata.camera_make = j.at("camera_make");
+  f.metadata.camera_model = j.at("camera_model");
+  f.metadata.has_xmp = j.at("has_xmp");
+  f.metadata.digital_source_type = j.at("digital_source_type");
+  f.metadata.generation_text = j.at("generation_text");
+  return f;
+}
+
+struct Statement {
+  sqlite3_stmt* stmt = nullptr;
+  ~Statement() { sqlite3_finalize(stmt); }
+};
+
+}  // namespace
+
+Result<std::unique_ptr<FeatureCache>> FeatureCache::open(const std::filesystem::path& path) {
+  sqlite3* db = nullptr;
+  const int rc = sqlite3_open_v2(path.c_str(), &db,
+                                 SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX, nullptr);
+  if (rc != SQLITE_OK) {
+    std::string message = db != nullptr ? sqlite3_errmsg(db) : "out of memory";
+    sqlite3_close(db);
+    return make_error(ErrorCode::kUnreadable, "cannot open feature cache " + path.string() + ": " + message);
+  }
+  char* err = nullptr;
+  const char* schema =
+      "PRAGMA journal_mode=WAL;"
+      "CREATE TABLE IF NOT EXISTS vectors ("
+      "  sha256 TEXT NOT NULL, extractor TEXT NOT NULL, facts TEXT NOT NULL, features BLOB NOT NULL,"
+      "  PRIMARY KEY (sha256, extractor));";
+  if (sqlite3_exec(db, schema, nullptr, nullptr, &err) != SQLITE_OK) {
+    std::string message = err != nullptr ? err : "unknown error";
+    sqlite3_free(err);
+    sqlite3_close(db);
+    return make_error(ErrorCode::kCorrupt, "feature cache " + path.string() + " is not usable: " + message);
+  }
+  return std::unique_ptr<FeatureCache>(new FeatureCache(db));
+}
+
+FeatureCache::~FeatureCache() { sqlite3_close(db_); }
+
+std::optional<FeatureCache::Entry> FeatureCache::find(const std::string& sha256) {
+  std::lock_guard lock(mutex_);
+  Statement s;
+  sqlite3_prepare_v2(db_, "SELECT facts, features FROM vectors WHERE sha256 = ?1 AND extractor = ?2", -1,
+                     &s.stmt, nullptr);
+  const std::string version = std::string(kExtractorVersion) + "/" + feature_schema_id();
+  sqlite3_bind_text(s.stmt, 1, sha256.c_str(), -1, SQLITE_TRANSIENT);
+  sqlite3_bind_text(s.stmt, 2, version.c_str(), -1, SQLITE_TRANSIENT);
+  if (sqlite3_step(s.stmt) != SQLITE_ROW) return std::nullopt;
+  Entry e;
+  try {
+    e.facts =
+        facts_from_json(nlohmann::json::parse(reinterpret_cast<const char*>(sqlite3_column_text(s.stmt, 0))));
+  } catch (const std::exception&) {
+    return std::nullopt;  // a damaged row is re-extracted
+  }
+  const auto bytes = static_cast<size_t>(sqlite3_column_bytes(s.stmt, 1));
+  if (bytes != feature_names().size() * sizeof(double)) return std::nullopt;
+  e.features.values.resize(feature_names().size());
+  std::memcpy(e.features.values.data(), sqlite3_column_blob(s.stmt, 1), bytes);
+  return e;
+}
+
+Result<bool> FeatureCache::store(const std::string& sha256, const Entry& entry) {
+  std::lock_guard lock(mutex_);
+  Statement s;
+  sqlite3_prepare_v2(
+      db_, "INSERT OR REPLACE INTO vectors (sha256, extractor, facts, features) VALUES (?1, ?2, ?3, ?4)", -1,
+      &s.stmt, nullptr);
+  const std::string version = std::string(kExtractorVersion) + "/" + feature_schema_id();
+  const std::string facts = facts_to_json(entry.facts).dump();
+  sqlite3_bind_text(s.stmt, 1, sha256.c_str(), -1, SQLITE_TRANSIENT);
+  sqlite3_bind_text(s.stmt, 2, version.c_str(), -1, SQLITE_TRANSIENT);
+  sqlite3_bind_text(s.stmt, 3, facts.c_str(), -1, SQLITE_TRANSIENT);
+  sqlite3_bind_blob(s.stmt, 4, entry.features.values.data(),
+                    static_cast<int>(entry.features.values.size() * sizeof(double)), SQLITE_TRANSIENT);
+  if (sqlite3_step(s.stmt) != SQLITE_DONE) {
+    return make_error(ErrorCode::kInternal,
+                      std::string("feature cache write failed: ") + sqlite3_errmsg(db_));
+  }
+  return true;
+}
+
+size_t FeatureCache::size() {
+  std::lock_guard lock(mutex_);
+  Statement s;
+  sqlite3_prepare_v2(db_, "SELECT COUNT(*) FROM vectors WHERE extractor = ?1", -1, &s.stmt, nullptr);
+  const std::string version = std::string(kExtractorVersion) + "/" + feature_schema_id();
+  sqlite3_bind_text(s.stmt, 1, version.c_str(), -1, SQLITE_TRANSIENT);
+  return sqlite3_step(s.stmt) == SQLITE_ROW ? static_cast<size_t>(sqlite3_column_int64(s.stmt, 0)) : 0;
+}
+
+}  // namespace residue

@@ -1,0 +1,110 @@
+// libsvm adapter (the only file that includes svm.h) and standardisation.
+#include "residue/training/linear.hpp"
+
+#include <svm.h>
+
+#include <cmath>
+#include <memory>
+
+namespace residue {
+
+Scaler Scaler::fit(const Matrix& x) {
+  Scaler s;
+  s.mean.assign(x.cols, 0.0);
+  s.scale.assign(x.cols, 0.0);
+  for (size_t i = 0; i < x.rows; ++i) {
+    for (size_t j = 0; j < x.cols; ++j) s.mean[j] += x.row(i)[j];
+  }
+  for (double& m : s.mean) m /= static_cast<double>(std::max<size_t>(x.rows, 1));
+  for (size_t i = 0; i < x.rows; ++i) {
+    for (size_t j = 0; j < x.cols; ++j) s.scale[j] += std::pow(x.row(i)[j] - s.mean[j], 2);
+  }
+  for (double& v : s.scale) {
+    v = std::sqrt(v / static_cast<double>(std::max<size_t>(x.rows, 1)));
+    if (v < 1e-12) v = 1.0;
+  }
+  return s;
+}
+
+void Scaler::apply_row(const double* in, double* out) const {
+  for (size_t j = 0; j < mean.size(); ++j) out[j] = (in[j] - mean[j]) / scale[j];
+}
+
+Matrix Scaler::apply(const Matrix& x) const {
+  Matrix z{x.rows, x.cols, std::vector<double>(x.data.size())};
+  for (size_t i = 0; i < x.rows; ++i) apply_row(x.row(i), z.row(i));
+  return z;
+}
+
+double LinearModel::margin(const double* z) const {
+  double m = bias;
+  for (size_t j = 0; j < weights.size(); ++j) m += weights[j] * z[j];
+  return m;
+}
+
+SvmSettings balanced_settings(const std::vector<int>& labels, double c) {
+  double positives = 0;
+  for (int y : labels) positives += y;
+  const auto n = static_cast<double>(labels.size());
+  SvmSettings s;
+  s.c = c;
+  s.weight_generated = positives > 0 ? n / (2.0 * positives) : 1.0;
+  s.weight_camera = n > positives ? n / (2.0 * (n - positives)) : 1.0;
+  return s;
+}
+
+Result<LinearModel> train_linear_svm(const Matrix& x, const std::vector<int>& labels,
+                                     const SvmSettings& settings) {
+  bool seen[2] = {false, false};
+  for (int y : labels) seen[y != 0] = true;
+  if (!seen[0] || !seen[1]) {
+    return make_error(ErrorCode::kInternal, "training needs both camera and generated examples");
+  }
+  // Dense rows as libsvm nodes: index 1..d, then the terminator -1.
+  std::vector<svm_node> nodes(x.rows * (x.cols + 1));
+  std::vector<svm_node*> rows(x.rows);
+  std::vector<double> y(x.rows);
+  for (size_t i = 0; i < x.rows; ++i) {
+    svm_node* r = nodes.data() + i * (x.cols + 1);
+    for (size_t j = 0; j < x.cols; ++j) r[j] = {static_cast<int>(j + 1), x.row(i)[j]};
+    r[x.cols] = {-1, 0.0};
+    rows[i] = r;
+    y[i] = labels[i] != 0 ? 1.0 : 0.0;
+  }
+  svm_problem problem{static_cast<int>(x.rows), y.data(), rows.data()};
+  int weight_labels[2] = {1, 0};
+  double weights[2] = {settings.weight_generated, settings.weight_camera};
+  svm_parameter param{};
+  param.svm_type = C_SVC;
+  param.kernel_type = LINEAR;
+  param.C = settings.c;
+  param.eps = settings.tolerance;
+  param.cache_size = 200;
+  param.shrinking = 1;
+  param.probability = 0;
+  param.nr_weight = 2;
+  param.weight_label = weight_labels;
+  param.weight = weights;
+  if (const char* problem_text = svm_check_parameter(&problem, &param)) {
+    return make_error(ErrorCode::kInternal, std::string("libsvm: ") + problem_text);
+  }
+  svm_set_print_string_function([](const char*) {});
+  std::unique_ptr<svm_model, void (*)(svm_model*)> model(
+      svm_train(&problem, &param), [](svm_model* m) { svm_free_and_destroy_model(&m); });
+  // w = sum_i coef_i x_i over the support vectors; decision = w . x - rho, positive towards
+  // model->label[0] (the first label libsvm met in the data).
+  LinearModel out;
+  out.weights.assign(x.cols, 0.0);
+  for (int i = 0; i < model->l; ++i) {
+    const double coef = model->sv_coef[0][i];
+    for (const svm_node* n = model->SV[i]; n->index != -1; ++n) out.weights[n->index - 1] += coef * n->value;
+  }
+  out.bias = -model->rho[0];
+  if (model->label[0] != 1) {
+    for (double& w : out.weights) w = -w;
+    out.bias = -out.bias;
+  }
+  return out;
+}
+
+}  // namespace residue

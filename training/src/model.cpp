@@ -1,0 +1,142 @@
+#include "residue/training/model.hpp"
+
+#include <fstream>
+#include <sstream>
+
+#include "residue/features/fingerprint.hpp"
+#include "residue/training/atomic_file.hpp"
+
+namespace residue {
+
+std::string band_of(const Thresholds& t, double p) {
+  if (p >= t.likely_generated) return "likely-generated";
+  if (p < t.likely_camera) return "likely-camera";
+  return "inconclusive";
+}
+
+Score score(const Model& model, const FeatureVector& features, std::optional<double> prior) {
+  Score s;
+  s.margin = model.linear.bias;
+  for (size_t k = 0; k < model.feature_index.size(); ++k) {
+    const double z = (features.values[model.feature_index[k]] - model.scaler.mean[k]) / model.scaler.scale[k];
+    const double c = model.linear.weights[k] * z;
+    s.margin += c;
+    s.contributions[model.families[k]] += c;
+  }
+  s.p_generated = model.calibration.probability(s.margin);
+  if (prior) s.p_generated = shift_prior(s.p_generated, model.training_prior, *prior);
+  s.band = band_of(model.thresholds, s.p_generated);
+  return s;
+}
+
+Result<std::vector<size_t>> select_features(const std::vector<std::string>& prefixes) {
+  const auto& names = feature_names();
+  std::vector<size_t> index;
+  for (size_t i = 0; i < names.size(); ++i) {
+    bool keep = prefixes.empty();
+    for (const auto& p : prefixes) keep = keep || names[i].starts_with(p);
+    if (keep) index.push_back(i);
+  }
+  for (const auto& p : prefixes) {
+    bool matched = false;
+    for (const auto& n : names) matched = matched || n.starts_with(p);
+    if (!matched) return make_error(ErrorCode::kUnsupported, "no feature name starts with '" + p + "'");
+  }
+  return index;
+}
+
+nlohmann::ordered_json model_to_json(const Model& m) {
+  nlohmann::ordered_json j;
+  j["format"] = kModelFormat;
+  j["format_version"] = kModelFormatVersion;
+  j["id"] = m.id;
+  j["created"] = m.created;
+  j["schema"] = {
+      {"extractor_version", m.extractor_version}, {"schema_id", m.schema_id}, {"features", m.features}};
+  j["scaler"] = {{"mean", m.scaler.mean}, {"scale", m.scaler.scale}};
+  j["linear"] = {{"weights", m.linear.weights}, {"bias", m.linear.bias}};
+  j["calibration"] = {{"method", "platt-lin-lin-weng-2007"},
+                      {"a", m.calibration.a},
+                      {"b", m.calibration.b},
+                      {"training_prior", m.training_prior}};
+  j["thresholds"] = {{"likely_generated", m.thresholds.likely_generated},
+                     {"likely_camera", m.thresholds.likely_camera},
+                     {"target_fpr", m.thresholds.target_fpr},
+                     {"generated_miss", m.thresholds.generated_miss}};
+  j["provenance"] = m.provenance;
+  return j;
+}
+
+Result<Model> model_from_json(const nlohmann::json& j) {
+  try {
+    if (j.at("format") != kModelFormat)
+      return make_error(ErrorCode::kUnsupported, "not a residue model file");
+    if (j.at("format_version") != kModelFormatVersion) {
+      return make_error(ErrorCode::kUnsupported, "model format version " + j.at("format_version").dump() +
+                                                     " is not supported (this residue reads version " +
+                                                     std::to_string(kModelFormatVersion) + ")");
+    }
+    Model m;
+    m.id = j.at("id");
+    m.created = j.at("created");
+    m.extractor_version = j.at("schema").at("extractor_version");
+    m.schema_id = j.at("schema").at("schema_id");
+    if (m.extractor_version != kExtractorVersion || m.schema_id != feature_schema_id()) {
+      return make_error(ErrorCode::kUnsupported,
+                        "model was trained with feature extractor " + m.extractor_version + " (schema " +
+                            m.schema_id + "); this residue extracts " + std::string(kExtractorVersion) +
+                            " (schema " + feature_schema_id() +
+                            "): retrain the model (the feature cache makes it quick)");
+    }
+    m.features = j.at("schema").at("features").get<std::vector<std::string>>();
+    const auto& names = feature_names();
+    const auto& families = feature_families();
+    for (const auto& f : m.features) {
+      const auto it = std::find(names.begin(), names.end(), f);
+      if (it == names.end())
+        return make_error(ErrorCode::kCorrupt, "model names an unknown feature '" + f + "'");
+      m.feature_index.push_back(static_cast<size_t>(it - names.begin()));
+      m.families.push_back(families[m.feature_index.back()]);
+    }
+    m.scaler.mean = j.at("scaler").at("mean").get<std::vector<double>>();
+    m.scaler.scale = j.at("scaler").at("scale").get<std::vector<double>>();
+    m.linear.weights = j.at("linear").at("weights").get<std::vector<double>>();
+    m.linear.bias = j.at("linear").at("bias");
+    m.calibration.a = j.at("calibration").at("a");
+    m.calibration.b = j.at("calibration").at("b");
+    m.training_prior = j.at("calibration").at("training_prior");
+    m.thresholds.likely_generated = j.at("thresholds").at("likely_generated");
+    m.thresholds.likely_camera = j.at("thresholds").at("likely_camera");
+    m.thresholds.target_fpr = j.at("thresholds").at("target_fpr");
+    m.thresholds.generated_miss = j.at("thresholds").at("generated_miss");
+    m.provenance = j.value("provenance", nlohmann::ordered_json::object());
+    const size_t d = m.features.size();
+    if (m.scaler.mean.size() != d || m.scaler.scale.size() != d || m.linear.weights.size() != d) {
+      return make_error(ErrorCode::kCorrupt, "model arrays do not match its feature list");
+    }
+    for (double s : m.scaler.scale) {
+      if (!(s > 0)) return make_error(ErrorCode::kCorrupt, "model scaler has a non-positive scale");
+    }
+    return m;
+  } catch (const nlohmann::json::exception& e) {
+    return make_error(ErrorCode::kCorrupt, std::string("model file is incomplete or damaged: ") + e.what());
+  }
+}
+
+Result<bool> save_model(const Model& model, const std::filesystem::path& path) {
+  return write_file_atomically(path, model_to_json(model).dump(2) + "\n");
+}
+
+Result<Model> load_model(const std::filesystem::path& path) {
+  std::ifstream in(path);
+  if (!in) return make_error(ErrorCode::kUnreadable, "cannot open model " + path.string());
+  std::stringstream text;
+  text << in.rdbuf();
+  nlohmann::json j = nlohmann::json::parse(text.str(), nullptr, false);
+  if (j.is_discarded()) return make_error(ErrorCode::kCorrupt, path.string() + " is not valid JSON");
+  auto model = model_from_json(j);
+  if (!model) return make_error(model.error().code, path.string() + ": " + model.error().message);
+  return model;
+}
+
+}  // namespace residue

@@ -1,0 +1,167 @@
+#include "residue/training/trainer.hpp"
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <ctime>
+
+#include "residue/features/fingerprint.hpp"
+
+namespace residue {
+
+namespace {
+
+Matrix design_matrix(const std::vector<PreparedItem>& items, const std::vector<size_t>& columns,
+                     const std::vector<size_t>& rows) {
+  Matrix x{rows.size(), columns.size(), std::vector<double>(rows.size() * columns.size())};
+  for (size_t r = 0; r < rows.size(); ++r) {
+    const auto& v = items[rows[r]].features.values;
+    for (size_t c = 0; c < columns.size(); ++c) x.row(r)[c] = v[columns[c]];
+  }
+  return x;
+}
+
+std::vector<int> labels_of(const std::vector<PreparedItem>& items, const std::vector<size_t>& rows) {
+  std::vector<int> y;
+  y.reserve(rows.size());
+  for (size_t r : rows) y.push_back(items[r].file.label == Label::kGenerated ? 1 : 0);
+  return y;
+}
+
+// Scaler + SVM on the given rows; margins for `test` rows.
+Result<std::vector<double>> fit_and_score(const std::vector<PreparedItem>& items,
+                                          const std::vector<size_t>& columns,
+                                          const std::vector<size_t>& train, const std::vector<size_t>& test,
+                                          double c) {
+  const Matrix x = design_matrix(items, columns, train);
+  const auto y = labels_of(items, train);
+  const Scaler scaler = Scaler::fit(x);
+  auto model = train_linear_svm(scaler.apply(x), y, balanced_settings(y, c));
+  if (!model) return model.error();
+  std::vector<double> margins;
+  std::vector<double> z(columns.size());
+  const Matrix xt = design_matrix(items, columns, test);
+  for (size_t r = 0; r < test.size(); ++r) {
+    scaler.apply_row(xt.row(r), z.data());
+    margins.push_back(model->margin(z.data()));
+  }
+  return margins;
+}
+
+std::string utc_now() {
+  const std::time_t t = std::time(nullptr);
+  std::tm tm{};
+  gmtime_r(&t, &tm);
+  char buf[32];
+  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm);
+  return buf;
+}
+
+}  // namespace
+
+Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const TrainSettings& settings,
+                                 const AuditReport& audit) {
+  auto columns = select_features(settings.feature_prefixes);
+  if (!columns) return columns.error();
+  std::vector<size_t> all(items.size());
+  for (size_t i = 0; i < items.size(); ++i) all[i] = i;
+  const auto labels = labels_of(items, all);
+  const size_t positives = static_cast<size_t>(std::count(labels.begin(), labels.end(), 1));
+  if (positives < 2 || items.size() - positives < 2) {
+    return make_error(ErrorCode::kTooSmall, "training needs at least two camera and two generated images");
+  }
+
+  TrainOutcome out;
+  CrossValidation& cv = out.cv;
+  const auto groups = assign_groups(items, settings.group_by);
+  cv.groups = static_cast<size_t>(*std::max_element(groups.begin(), groups.end()) + 1);
+  const int k = std::clamp(settings.folds, 2, static_cast<int>(cv.groups));
+  if (cv.groups < 2)
+    return make_error(ErrorCode::kTooSmall, "all images fall into one group: cannot cross-validate");
+  cv.fold = grouped_folds(groups, labels, k);
+
+  double best_auc = -1.0;
+  for (double c : settings.c_grid) {
+    std::vector<double> margins(items.size(), 0.0);
+    for (int f = 0; f < k; ++f) {
+      std::vector<size_t> train, test;
+      for (size_t i = 0; i < items.size(); ++i) (cv.fold[i] == f ? test : train).push_back(i);
+      if (test.empty()) continue;
+      auto m = fit_and_score(items, *columns, train, test, c);
+      if (!m) {
+        return make_error(m.error().code, "fold " + std::to_string(f + 1) + " of " + std::to_string(k) +
+                                              ": " + m.error().message +
+                                              " (too few images of one class in the other folds)");
+      }
+      for (size_t r = 0; r < test.size(); ++r) margins[test[r]] = (*m)[r];
+    }
+    const double auc = roc_auc(margins, labels);
+    cv.auc_by_c.emplace_back(c, auc);
+    if (auc > best_auc + 1e-9) {  // ties keep the smaller C (stronger regularisation)
+      best_auc = auc;
+      cv.chosen_c = c;
+      cv.margins = margins;
+    }
+  }
+
+  Model& model = out.model;
+  model.calibration = fit_platt(cv.margins, labels);
+  for (double m : cv.margins) cv.probabilities.push_back(model.calibration.probability(m));
+  model.training_prior = static_cast<double>(positives) / static_cast<double>(items.size());
+
+  std::vector<double> camera_p, generated_p;
+  for (size_t i = 0; i < items.size(); ++i)
+    (labels[i] ? generated_p : camera_p).push_back(cv.probabilities[i]);
+  model.thresholds.target_fpr = settings.target_fpr;
+  model.thresholds.generated_miss = settings.generated_miss;
+  model.thresholds.likely_generated = std::min(1.0, threshold_for_fpr(camera_p, settings.target_fpr));
+  std::sort(generated_p.begin(), generated_p.end());
+  const auto miss =
+      static_cast<size_t>(std::floor(settings.generated_miss * static_cast<double>(generated_p.size())));
+  model.thresholds.likely_camera =
+      std::min(generated_p[std::min(miss, generated_p.size() - 1)], model.thresholds.likely_generated);
+
+  std::vector<std::string> generators;
+  for (const auto& it : items) generators.push_back(it.file.generator);
+  cv.report = evaluate_scores(cv.probabilities, labels, generators, model.thresholds.likely_generated);
+
+  // Final model on everything.
+  const Matrix x = design_matrix(items, *columns, all);
+  model.scaler = Scaler::fit(x);
+  auto linear = train_linear_svm(model.scaler.apply(x), labels, balanced_settings(labels, cv.chosen_c));
+  if (!linear) return linear.error();
+  model.linear = std::move(*linear);
+
+  model.extractor_version = std::string(kExtractorVersion);
+  model.schema_id = feature_schema_id();
+  model.feature_index = *columns;
+  for (size_t c : *columns) {
+    model.features.push_back(feature_names()[c]);
+    model.families.push_back(feature_families()[c]);
+  }
+  model.created = utc_now();
+
+  nlohmann::ordered_json counts = {{"camera", items.size() - positives}, {"generated", positives}};
+  nlohmann::ordered_json per_generator = nlohmann::ordered_json::object();
+  for (const auto& g : audit.generators) per_generator[g.name] = g.count;
+  counts["per_generator"] = per_generator;
+  nlohmann::ordered_json grid = nlohmann::ordered_json::array();
+  for (const auto& [c, auc] : cv.auc_by_c) grid.push_back({{"c", c}, {"oof_roc_auc", auc}});
+  const char* group_names[] = {"duplicates", "folder", "manifest"};
+  model.provenance = {{"counts", counts},
+                      {"audit_warnings", audit.warnings},
+                      {"cross_validation",
+                       {{"folds", k},
+                        {"groups", cv.groups},
+                        {"group_by", group_names[static_cast<int>(settings.group_by)]},
+                        {"c_grid", grid},
+                        {"chosen_c", cv.chosen_c},
+                        {"metrics", report_to_json(cv.report)}}}};
+  const std::string body = model_to_json(model).dump();
+  model.id =
+      "m-" +
+      sha256_hex(std::span(reinterpret_cast<const std::uint8_t*>(body.data()), body.size())).substr(0, 16);
+  return out;
+}
+
+}  // namespace residue
