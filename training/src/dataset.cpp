@@ -22,7 +22,12 @@ void walk(const fs::path& dir, std::vector<fs::path>& out,
       skipped.emplace_back(dir.string(), "error while listing: " + ec.message());
       break;
     }
-    if (it->is_regular_file(ec) && it->path().filename().string().front() != '.') out.push_back(it->path());
+    if (!it->is_regular_file(ec)) continue;
+    if (it->path().filename().string().front() == '.') {
+      skipped.emplace_back(it->path().string(), "hidden file (name starts with '.'); rename it to include it");
+      continue;
+    }
+    out.push_back(it->path());
   }
 }
 
