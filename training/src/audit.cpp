@@ -96,17 +96,21 @@ void add_warnings(AuditReport& r) {
   std::map<std::string, bool> formats;
   for (const auto& [f, n] : c.formats) formats[f] = true;
   for (const auto& [f, n] : g.formats) formats[f] = true;
+  std::string gaps;
   for (const auto& [f, unused] : formats) {
     const double sc = share_of(c, f);
     const double sg = share_of(g, f);
     if (std::fabs(sc - sg) >= 0.5) {
-      warn("Container confound: " + percent(sc) + " of camera images but " + percent(sg) +
-           " of generated images are " + f +
-           ". A detector can learn the file format and its compression instead of generator traces "
-           "(Grommelt et al. 2024). Evaluate on copies recompressed to one JPEG quality, or collect both "
-           "classes "
-           "in the same format.");
+      gaps += (gaps.empty() ? "" : "; ") + f + " makes up " + percent(sc) + " of camera and " + percent(sg) +
+              " of generated images";
     }
+  }
+  if (!gaps.empty()) {
+    warn("Container confound: " + gaps +
+         ". A detector can learn the file format and its compression instead of "
+         "generator traces (Grommelt et al. 2024). Evaluate on copies recompressed to one JPEG quality, or "
+         "collect "
+         "both classes in the same format.");
   }
   if (c.jpeg_count > 0 && g.jpeg_count > 0 && std::abs(c.jpeg_quality_median - g.jpeg_quality_median) >= 10) {
     warn("JPEG quality differs: median " + std::to_string(c.jpeg_quality_median) + " for camera, " +

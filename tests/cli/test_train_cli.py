@@ -1,0 +1,97 @@
+"""End-to-end test of audit, train and evaluate as a user runs them, on a small labelled set of
+scikit-image photo crops and SIMULATED generator output (tests/cli/make_labelled.py).
+
+The training set plants a container confound (camera all JPEG, generated all PNG); the audit
+must say so. A second set flips the containers (camera PNG, generated JPEG): a model that learned
+upsampling traces keeps its ranking there, one that learned the container would not.
+
+Usage: test_train_cli.py PATH/TO/residue
+"""
+import json
+import os
+import re
+import subprocess
+import sys
+import tempfile
+
+residue = sys.argv[1]
+here = os.path.dirname(os.path.abspath(__file__))
+checks = {"passed": 0, "failed": 0}
+
+
+def check(condition, what):
+    checks["passed" if condition else "failed"] += 1
+    if not condition:
+        print("FAILED:", what)
+
+
+def run(args):
+    return subprocess.run([residue] + args, capture_output=True, text=True, timeout=600)
+
+
+def make(root, seed, camera_format, generated_format, count):
+    subprocess.run(["/usr/bin/python3", os.path.join(here, "make_labelled.py"), root, str(seed), camera_format,
+                    generated_format, str(count)], check=True)
+
+
+with tempfile.TemporaryDirectory() as tmp:
+    train, flip = os.path.join(tmp, "train"), os.path.join(tmp, "flip")
+    make(train, 1, "jpeg", "png", 40)
+    make(flip, 2, "png", "jpeg", 30)
+    cache = os.path.join(tmp, "cache.sqlite")
+    model = os.path.join(tmp, "model.json")
+
+    audit = run(["audit", train, "--cache", cache])
+    check(audit.returncode == 0, f"audit exits 0, got {audit.returncode}: {audit.stderr}")
+    check("Container confound" in audit.stdout, "audit names the planted container confound")
+    check(run(["audit", train, "--cache", cache, "--strict"]).returncode == 1, "audit --strict exits 1 on a warning")
+    audit_json = json.loads(run(["audit", train, "--cache", cache, "--json"]).stdout)
+    check(audit_json["camera"]["formats"] == {"jpeg": 40}, "audit JSON counts camera formats")
+    check(audit_json["generated"]["count"] == 40, "audit JSON counts generated images")
+
+    strict = run(["train", train, "-o", model, "--cache", cache, "--strict"])
+    check(strict.returncode == 1 and not os.path.exists(model), "train --strict refuses and writes nothing")
+
+    trained = run(["train", train, "-o", model, "--cache", cache])
+    check(trained.returncode == 0, f"train exits 0, got {trained.returncode}: {trained.stderr[-500:]}")
+    check("out-of-fold ROC AUC" in trained.stdout, "train prints the cross-validated metrics")
+    check("0 extracted, 80 from the feature cache" in trained.stderr, "train reuses the cache filled by audit")
+    check("Advisory:" in trained.stdout, "train prints the advisory notice")
+    with open(model) as f:
+        m = json.load(f)
+    check(m["format"] == "residue-model" and m["format_version"] == 1, "model file names its format")
+    check(re.fullmatch(r"m-[0-9a-f]{16}", m["id"]) is not None, "model id is a content fingerprint")
+    check(len(m["schema"]["features"]) == len(m["linear"]["weights"]) == len(m["scaler"]["mean"]),
+          "schema, weights and scaler align")
+    check(any("Container confound" in w for w in m["provenance"]["audit_warnings"]), "audit warnings stored in model")
+    cv = m["provenance"]["cross_validation"]["metrics"]["overall"]
+    check(cv["roc_auc"] >= 0.95, f"cross-validated AUC on simulated upsampling >= 0.95, got {cv['roc_auc']}")
+    check(0.0 <= cv["ece"] <= 0.15, f"cross-validated ECE in range, got {cv['ece']}")
+    check(m["provenance"]["counts"]["per_generator"] == {"sim-bilinear": 20, "sim-tconv": 20}, "counts per generator")
+    check(0 < m["thresholds"]["likely_camera"] <= m["thresholds"]["likely_generated"] <= 1, "thresholds ordered")
+
+    page = os.path.join(tmp, "evaluation.html")
+    evaluated = run(["evaluate", model, flip, "--cache", cache, "--json", "--html", page])
+    check(evaluated.returncode == 0, f"evaluate exits 0, got {evaluated.returncode}: {evaluated.stderr[-500:]}")
+    result = json.loads(evaluated.stdout)
+    flipped_auc = result["metrics"]["overall"]["roc_auc"]
+    check(flipped_auc >= 0.9, f"ranking survives flipped containers (traces, not format): AUC {flipped_auc}")
+    check(set(result["metrics"]["per_generator"]) == {"sim-bilinear", "sim-tconv"}, "per-generator rows")
+    check("advisory" in result, "JSON carries the advisory notice")
+    with open(page) as f:
+        html = f.read()
+    check(html.count("<svg") == 2, "page draws the ROC curve and the reliability diagram")
+    check("must never be the sole basis" in html, "page carries the advisory notice")
+    external = re.findall(r"(?:src|href)\s*=|<link|@import|url\(", html)
+    check(not external, f"page has no external references: {external}")
+
+    m["schema"]["extractor_version"] = "0.0.0"
+    old = os.path.join(tmp, "old.json")
+    with open(old, "w") as f:
+        json.dump(m, f)
+    refused = run(["evaluate", old, flip, "--cache", cache])
+    check(refused.returncode == 1 and "retrain" in refused.stderr, "a model from another extractor is refused")
+    check(run(["train", os.path.join(tmp, "nowhere"), "-o", model]).returncode == 1, "missing ROOT fails cleanly")
+
+print(f"{checks['passed']} passed, {checks['failed']} failed")
+sys.exit(1 if checks["failed"] else 0)
