@@ -133,6 +133,12 @@ std::string evaluation_page(const EvaluationReport& r, const Model& model, const
        fmt("%.3f", model.thresholds.likely_generated) + " (chosen for " +
        fmt("%.1f", 100 * model.thresholds.target_fpr) +
        " % false positives on the training camera images).</p>";
+  const MetricSet& all = r.overall;
+  h += "<p style='font-size:1.15em'><b>Overall:</b> ROC AUC " +
+       (all.has_both_classes() ? fmt("%.3f", all.roc_auc) : std::string("–")) + ". At the threshold, " +
+       std::to_string(all.confusion.true_positive) + " of " + std::to_string(all.generated) +
+       " generated images were flagged and " + std::to_string(all.confusion.false_positive) + " of " +
+       std::to_string(all.camera) + " camera images were wrongly flagged.</p>";
   h += "<h2>Metrics</h2><table><tr><th>generator</th><th>camera</th><th>generated</th><th>ROC "
        "AUC</th><th>AP</th>"
        "<th>TPR at 1 % FPR</th><th>TPR at 5 % FPR</th><th>ECE</th><th>Brier</th><th>false pos.</th>"
@@ -159,9 +165,23 @@ std::string evaluation_page(const EvaluationReport& r, const Model& model, const
     for (const auto& w : warnings) h += "<li>" + html_escape(w.get<std::string>()) + "</li>";
     h += "</ul>";
   }
-  h += "<h2>Model provenance</h2><pre>" +
-       html_escape(model.provenance.value("counts", nlohmann::ordered_json{}).dump(2)) +
-       "</pre></body></html>\n";
+  h += "<h2>Model provenance</h2><table>";
+  const auto counts = model.provenance.value("counts", nlohmann::ordered_json::object());
+  h += "<tr><th>camera images</th><td>" + counts.value("camera", nlohmann::ordered_json(0)).dump() +
+       "</td></tr>";
+  const auto per_generator = counts.value("per_generator", nlohmann::ordered_json::object());
+  for (const auto& [name, n] : per_generator.items()) {
+    h += "<tr><th>generated: " + html_escape(name) + "</th><td>" + n.dump() + "</td></tr>";
+  }
+  const auto cv = model.provenance.value("cross_validation", nlohmann::ordered_json::object());
+  if (cv.contains("metrics")) {
+    h += "<tr><th>cross-validated ROC AUC (" + cv.value("folds", nlohmann::ordered_json(0)).dump() +
+         " folds, grouped by " + html_escape(cv.value("group_by", std::string("?"))) + ")</th><td>" +
+         fmt("%.3f", cv["metrics"]["overall"].value("roc_auc", 0.0)) + "</td></tr>";
+    h += "<tr><th>cross-validated ECE</th><td>" + fmt("%.3f", cv["metrics"]["overall"].value("ece", 0.0)) +
+         "</td></tr>";
+  }
+  h += "</table></body></html>\n";
   return h;
 }
 

@@ -1,0 +1,162 @@
+#!/usr/bin/python3
+"""Quality benchmark on the team's development set (reads ../shared/data/dev; copies nothing
+into the project). Prints the tables of docs/quality.md.
+
+What it does:
+  1. Cuts the sample grids in grids/ into their cells where the manifest gives the layout (strips
+     and grids of equal tiles; collages and padded grids are left out) and writes the cells,
+     losslessly as PNG, under a scratch folder (default /tmp/residue-quality).
+  2. Writes CSV manifests (path,label,generator,group) for two groupings:
+       in-distribution  groups = one source picture (a grid's cells stay together; camera sets
+                        that share scenes, LIVE1 + Kodak24 and Set5/Set14 + OpenCV's samples,
+                        are one group each; DreamBooth objects one group per object)
+       unseen-generator groups for generated images = their generator family, so every fold
+                        tests generators its model never saw
+  3. Repeats everything with every image recompressed to JPEG quality 85 (Pillow), so a model
+     cannot tell the classes apart by container or compression.
+  4. Trains with `residue train --group-by manifest` (grouped 5-fold cross-validation) with all
+     features and with the 1-D azimuthal spectrum alone (Durall et al. 2020 baseline,
+     `--only spectral.azimuthal`), and reads the out-of-fold metrics from the model files.
+
+Usage: bench/quality.py [--residue build/residue] [--dev ../shared/data/dev] [--work /tmp/residue-quality]
+"""
+import argparse
+import csv
+import json
+import os
+import re
+import subprocess
+import sys
+
+from PIL import Image
+
+parser = argparse.ArgumentParser()
+parser.add_argument("--residue", default="build/residue")
+parser.add_argument("--dev", default="../shared/data/dev")
+parser.add_argument("--work", default="/tmp/residue-quality")
+args = parser.parse_args()
+dev = os.path.abspath(args.dev)
+work = os.path.abspath(args.work)
+os.makedirs(work, exist_ok=True)
+
+with open(os.path.join(dev, "manifest.tsv")) as f:
+    rows = list(csv.DictReader(f, delimiter="\t"))
+
+
+def family_of(path):
+    parts = path.split("/")
+    return parts[2] if parts[0] == "grids" else (parts[1] if parts[0] == "generated" else "camera")
+
+
+def camera_group(row):
+    src = row["path_in_source"]
+    if "LIVE1" in src or "Kodak24" in src:
+        return "scenes:live1-kodak"
+    if "Set5" in src or "Set14" in src or row["source"] == "debian:opencv-doc":
+        return "scenes:classic-test-images"
+    if row["source"] == "google/dreambooth":
+        return "object:" + src.split("/")[-2]
+    return "file:" + row["path"]
+
+
+def cells(row):
+    """Yields (x, y, w, h) cells of a grid whose layout the note gives; nothing otherwise."""
+    w, h, note = int(row["width"]), int(row["height"]), row["note"]
+    m = re.search(r"(\d+)x(\d+) grid of (\d+)px tiles", note) or re.search(r"(\d+) tiles of (\d+)", note) \
+        or re.search(r"(\d+)px tiles", note) or re.search(r"(\d+)x(\d+) tile grid", note) \
+        or re.search(r"strip, (\d+) tiles$", note) or re.search(r"strip of (\d+) ", note)
+    if "padding" in note or "collage" in note or "SeFa" in note or m is None:
+        return
+    if "tile grid" in note:
+        nx, ny = int(m.group(1)), int(m.group(2))
+        tw, th = w // nx, h // ny
+    elif "grid of" in note:
+        tw = th = int(m.group(3))
+    elif "tiles of" in note:
+        tw = th = int(m.group(2))
+    elif "px tiles" in note:
+        tw = th = int(m.group(1))
+    else:  # a strip of n tiles separated by thin gaps
+        n = int(m.group(1))
+        tw, th = w // n, h
+    for y in range(0, h - th + 1, th):
+        for x in range(0, w - tw + 1, tw):
+            yield x, y, tw, th
+
+
+items = []  # (path, label, generator, group_in_distribution, group_unseen)
+cut_dir = os.path.join(work, "cells")
+for row in rows:
+    fam = family_of(row["path"])
+    src = os.path.join(dev, row["path"])
+    if row["grid"] == "1":
+        image = None
+        for k, (x, y, tw, th) in enumerate(cells(row)):
+            out = os.path.join(cut_dir, fam, os.path.basename(row["path"]).rsplit(".", 1)[0] + f"__cell{k:02d}.png")
+            if not os.path.exists(out):
+                image = image or Image.open(src).convert("RGB")
+                os.makedirs(os.path.dirname(out), exist_ok=True)
+                image.crop((x, y, x + tw, y + th)).save(out)
+            items.append((out, "generated", fam, "grid:" + row["path"], "family:" + fam))
+    elif row["class"] == "camera":
+        items.append((src, "camera", "camera", camera_group(row), camera_group(row)))
+    else:
+        items.append((src, "generated", fam, "file:" + row["path"], "family:" + fam))
+
+
+def recompressed(path):
+    out = os.path.join(work, "q85", os.path.relpath(path, "/").rsplit(".", 1)[0] + ".jpg")
+    if not os.path.exists(out):
+        os.makedirs(os.path.dirname(out), exist_ok=True)
+        Image.open(path).convert("RGB").save(out, quality=85)
+    return out
+
+
+def manifest(name, variant, grouping):
+    path = os.path.join(work, f"{name}.csv")
+    with open(path, "w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(["path", "label", "generator", "group"])
+        for p, label, gen, g_in, g_un in items:
+            w.writerow([recompressed(p) if variant == "q85" else p, label, gen, g_in if grouping == "in" else g_un])
+    return path
+
+
+results = {}
+for variant in ("as-is", "q85"):
+    for grouping in ("in", "unseen"):
+        m = manifest(f"{variant}-{grouping}", variant, grouping)
+        for features in ("all", "baseline"):
+            model = os.path.join(work, f"model-{variant}-{grouping}-{features}.json")
+            cmd = [args.residue, "train", m, "-o", model, "--group-by", "manifest",
+                   "--cache", os.path.join(work, "cache.sqlite")]
+            if features == "baseline":
+                cmd += ["--only", "spectral.azimuthal"]
+            run = subprocess.run(cmd, capture_output=True, text=True)
+            if run.returncode != 0:
+                sys.exit(f"{' '.join(cmd)} failed:\n{run.stderr[-2000:]}")
+            with open(model) as f:
+                results[(variant, grouping, features)] = json.load(f)["provenance"]
+
+print(f"{len(items)} images: {sum(1 for i in items if i[1] == 'camera')} camera, "
+      f"{sum(1 for i in items if i[1] == 'generated')} generated (grid cells included)\n")
+for variant in ("as-is", "q85"):
+    for grouping in ("in", "unseen"):
+        title = {"in": "in-distribution (grouped by source picture)",
+                 "unseen": "unseen generator (generated images grouped by family)"}[grouping]
+        a = results[(variant, grouping, "all")]["cross_validation"]
+        b = results[(variant, grouping, "baseline")]["cross_validation"]
+        print(f"### {'as published' if variant == 'as-is' else 'all recompressed to JPEG q85'}, {title}\n")
+        print(f"C chosen: {a['chosen_c']} (all features), {b['chosen_c']} (baseline); "
+              f"{a['groups']} groups, {a['folds']} folds\n")
+        print("| generator | camera | generated | AUC | TPR@1%FPR | ECE | baseline AUC | baseline TPR@1% |")
+        print("|---|---:|---:|---:|---:|---:|---:|---:|")
+        rows_a = dict(a["metrics"]["per_generator"])
+        rows_a["**all**"] = a["metrics"]["overall"]
+        rows_b = dict(b["metrics"]["per_generator"])
+        rows_b["**all**"] = b["metrics"]["overall"]
+        for gen, ma in rows_a.items():
+            mb = rows_b[gen]
+            print(f"| {gen} | {ma['camera']} | {ma['generated']} | {ma['roc_auc']:.3f} | {ma['tpr_at_fpr_1pct']:.3f} "
+                  f"| {ma['ece']:.3f} | {mb['roc_auc']:.3f} | {mb['tpr_at_fpr_1pct']:.3f} |")
+        print()
