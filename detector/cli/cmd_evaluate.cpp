@@ -1,6 +1,7 @@
 // `residue evaluate MODEL ROOT`: metrics of a model on labelled folders it did not see.
 #include <iostream>
 #include <memory>
+#include <optional>
 
 #include "commands.hpp"
 #include "dataset_options.hpp"
@@ -19,6 +20,7 @@ struct EvaluateArgs {
   DatasetArgs data;
   bool json = false;
   std::string html;
+  std::optional<double> prior;
 };
 
 int run_evaluate(const EvaluateArgs& args) {
@@ -33,7 +35,7 @@ int run_evaluate(const EvaluateArgs& args) {
   std::vector<int> labels;
   std::vector<std::string> generators;
   for (const auto& item : prepared->report.items) {
-    p.push_back(score(*model, item.features).p_generated);
+    p.push_back(score(*model, item.features, args.prior).p_generated);
     labels.push_back(item.file.label == Label::kGenerated ? 1 : 0);
     generators.push_back(item.file.generator);
   }
@@ -70,6 +72,10 @@ void add_evaluate_command(CLI::App& app, int& exit_code) {
   add_dataset_options(*cmd, args->data, "labelled folder ROOT, or a CSV manifest");
   cmd->add_flag("--json", args->json, "print the metrics as JSON");
   cmd->add_option("--html", args->html, "also write a page with the ROC curve and reliability diagram");
+  cmd->add_option("--prior", args->prior,
+                  "shift probabilities to this share of generated images (deployment base rate) before "
+                  "measuring; see docs/training.md")
+      ->check(CLI::Range(0.0001, 0.9999));
   cmd->footer("Exit status: 0 done, 1 failure, 2 usage error.");
   cmd->callback([args, &exit_code] { exit_code = run_evaluate(*args); });
 }

@@ -38,6 +38,8 @@ with tempfile.TemporaryDirectory() as tmp:
     train, flip = os.path.join(tmp, "train"), os.path.join(tmp, "flip")
     make(train, 1, "jpeg", "png", 40)
     make(flip, 2, "png", "jpeg", 30)
+    with open(os.path.join(train, "camera", "broken.jpg"), "wb") as f:
+        f.write(b"\xff\xd8\xff\xe0 truncated")  # a JPEG signature and nothing else
     cache = os.path.join(tmp, "cache.sqlite")
     model = os.path.join(tmp, "model.json")
 
@@ -56,6 +58,7 @@ with tempfile.TemporaryDirectory() as tmp:
     check(trained.returncode == 0, f"train exits 0, got {trained.returncode}: {trained.stderr[-500:]}")
     check("out-of-fold ROC AUC" in trained.stdout, "train prints the cross-validated metrics")
     check("0 extracted, 80 from the feature cache" in trained.stderr, "train reuses the cache filled by audit")
+    check("skipped" in trained.stderr and "broken.jpg" in trained.stderr, "an unreadable file is reported and skipped")
     check("Advisory:" in trained.stdout, "train prints the advisory notice")
     with open(model) as f:
         m = json.load(f)
@@ -77,6 +80,9 @@ with tempfile.TemporaryDirectory() as tmp:
     flipped_auc = result["metrics"]["overall"]["roc_auc"]
     check(flipped_auc >= 0.9, f"ranking survives flipped containers (traces, not format): AUC {flipped_auc}")
     check(set(result["metrics"]["per_generator"]) == {"sim-bilinear", "sim-tconv"}, "per-generator rows")
+    shifted = json.loads(run(["evaluate", model, flip, "--cache", cache, "--json", "--prior", "0.01"]).stdout)
+    check(shifted["metrics"]["overall"]["roc_auc"] == flipped_auc, "a prior shift keeps the ranking (monotone)")
+    check(shifted["metrics"]["overall"]["brier"] != result["metrics"]["overall"]["brier"], "a prior shift moves P")
     check("advisory" in result, "JSON carries the advisory notice")
     with open(page) as f:
         html = f.read()
