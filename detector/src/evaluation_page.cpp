@@ -42,13 +42,17 @@ std::string axes(const std::string& x_label, const std::string& y_label) {
   return s;
 }
 
+// Opens a square chart with its axes and the dashed diagonal (chance / perfect calibration).
+std::string chart_with_diagonal(const std::string& label, const std::string& x_label,
+                                const std::string& y_label) {
+  return "<svg xmlns='http://www.w3.org/2000/svg' width='360' height='355' role='img' aria-label='" + label +
+         "'>" + axes(x_label, y_label) + "<line x1='" + px(0, false) + "' y1='" + px(0, true) + "' x2='" +
+         px(1, false) + "' y2='" + px(1, true) + "' stroke='#999' stroke-dasharray='4 4'/>";
+}
+
 std::string roc_svg(const EvaluationReport& r) {
   std::string s =
-      "<svg xmlns='http://www.w3.org/2000/svg' width='360' height='355' role='img' "
-      "aria-label='ROC curve'>" +
-      axes("false-positive rate (camera called generated)", "true-positive rate");
-  s += "<line x1='" + px(0, false) + "' y1='" + px(0, true) + "' x2='" + px(1, false) + "' y2='" +
-       px(1, true) + "' stroke='#999' stroke-dasharray='4 4'/>";
+      chart_with_diagonal("ROC curve", "false-positive rate (camera called generated)", "true-positive rate");
   std::string points;
   for (const auto& p : r.roc) points += px(p.fpr, false) + "," + px(p.tpr, true) + " ";
   s += "<polyline fill='none' stroke='#1f5fa8' stroke-width='2' points='" + points + "'/></svg>";
@@ -57,11 +61,7 @@ std::string roc_svg(const EvaluationReport& r) {
 
 std::string reliability_svg(const EvaluationReport& r) {
   std::string s =
-      "<svg xmlns='http://www.w3.org/2000/svg' width='360' height='355' role='img' "
-      "aria-label='Reliability diagram'>" +
-      axes("predicted P(generated)", "observed share generated");
-  s += "<line x1='" + px(0, false) + "' y1='" + px(0, true) + "' x2='" + px(1, false) + "' y2='" +
-       px(1, true) + "' stroke='#999' stroke-dasharray='4 4'/>";
+      chart_with_diagonal("Reliability diagram", "predicted P(generated)", "observed share generated");
   for (const auto& b : r.reliability) {
     if (b.count == 0) continue;
     const double x0 = b.low + 0.01;
