@@ -12,7 +12,7 @@ std::string sha256_hex(std::span<const std::uint8_t> bytes) {
   unsigned int length = 0;
   EVP_Digest(bytes.data(), bytes.size(), digest, &length, EVP_sha256(), nullptr);
   std::string hex;
-  hex.reserve(2 * length);
+  hex.reserve(2 * static_cast<size_t>(length));
   char buf[3];
   for (unsigned int i = 0; i < length; ++i) {
     std::snprintf(buf, sizeof buf, "%02x", digest[i]);

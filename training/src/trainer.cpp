@@ -74,7 +74,7 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   TrainOutcome out;
   CrossValidation& cv = out.cv;
   const auto groups = assign_groups(items, settings.group_by);
-  cv.groups = static_cast<size_t>(*std::max_element(groups.begin(), groups.end()) + 1);
+  cv.groups = static_cast<size_t>(*std::max_element(groups.begin(), groups.end())) + 1;
   const int k = std::clamp(settings.folds, 2, static_cast<int>(cv.groups));
   if (cv.groups < 2)
     return make_error(ErrorCode::kTooSmall, "all images fall into one group: cannot cross-validate");
@@ -122,6 +122,7 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
       std::min(generated_p[std::min(miss, generated_p.size() - 1)], model.thresholds.likely_generated);
 
   std::vector<std::string> generators;
+  generators.reserve(items.size());
   for (const auto& it : items) generators.push_back(it.file.generator);
   cv.report = evaluate_scores(cv.probabilities, labels, generators, model.thresholds.likely_generated);
 

@@ -40,7 +40,7 @@ struct EvaluationReport {
 };
 
 // `generators[i]` is "camera" for camera images.
-EvaluationReport evaluate_scores(const std::vector<double>& probabilities, const std::vector<int>& labels,
+EvaluationReport evaluate_scores(const std::vector<double>& p, const std::vector<int>& y,
                                  const std::vector<std::string>& generators, double threshold);
 
 nlohmann::ordered_json metrics_to_json(const MetricSet& m);

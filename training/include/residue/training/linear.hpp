@@ -31,7 +31,7 @@ struct Scaler {
 struct LinearModel {
   std::vector<double> weights;
   double bias = 0.0;
-  [[nodiscard]] double margin(const double* standardised) const;
+  [[nodiscard]] double margin(const double* z) const;  // z: a standardised row
 };
 
 struct SvmSettings {
