@@ -19,6 +19,7 @@ struct TrainArgs {
   TrainSettings settings;
   std::string group_by = "duplicates";
   std::vector<std::string> only;
+  bool c_grid_given = false;
 };
 
 struct AuditArgs {
@@ -56,6 +57,7 @@ int run_train(TrainArgs& args) {
   }
   args.settings.group_by = parse_group_by(args.group_by);
   args.settings.feature_prefixes = args.only;
+  if (args.c_grid_given) args.settings.large_set = 0;  // the user's grid is used as given
   auto outcome = train_model(prepared->report.items, args.settings, audit);
   if (!outcome) {
     std::cerr << "residue train: " << outcome.error().message << "\n";
@@ -118,7 +120,10 @@ void add_train_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--only", args->only,
                   "use only features whose names start with these prefixes (e.g. spectral.)");
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");
-  cmd->callback([args, &exit_code] { exit_code = run_train(*args); });
+  cmd->callback([args, cmd, &exit_code] {
+    args->c_grid_given = cmd->count("--c-grid") > 0;
+    exit_code = run_train(*args);
+  });
 }
 
 void add_audit_command(CLI::App& app, int& exit_code) {

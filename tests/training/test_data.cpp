@@ -81,8 +81,8 @@ TEST_CASE("groups join exact and near duplicates; grouped folds never split a gr
     items.push_back(item(i % 3 == 0 ? Label::kGenerated : Label::kCamera, i % 3 == 0 ? "g" : "c",
                          "sha" + std::to_string(i), rng()));
   }
-  items[5].sha256 = items[4].sha256;                   // exact duplicate
-  items[10].facts.dhash = items[11].facts.dhash ^ 0x7;  // 3 bits apart: near duplicate
+  items[5].sha256 = items[4].sha256;                     // exact duplicate
+  items[10].facts.dhash = items[11].facts.dhash ^ 0x7;   // 3 bits apart: near duplicate
   items[20].facts.dhash = items[21].facts.dhash ^ 0xFF;  // 8 bits apart: different
   const auto groups = assign_groups(items, GroupBy::kDuplicates);
   CHECK(groups[4] == groups[5]);
@@ -133,9 +133,11 @@ TEST_CASE("the feature cache returns what was stored, keyed by content hash") {
 
 TEST_CASE("the audit warns of a planted container confound and of tiny generators") {
   std::vector<PreparedItem> items;
-  for (int i = 0; i < 30; ++i) items.push_back(item(Label::kCamera, "c", "c" + std::to_string(i), i * 977ULL, "jpeg"));
+  for (int i = 0; i < 30; ++i)
+    items.push_back(item(Label::kCamera, "c", "c" + std::to_string(i), i * 977ULL, "jpeg"));
   for (int i = 0; i < 30; ++i) {
-    items.push_back(item(Label::kGenerated, i < 28 ? "big" : "tiny", "g" + std::to_string(i), i * 1.0e15, "png"));
+    items.push_back(
+        item(Label::kGenerated, i < 28 ? "big" : "tiny", "g" + std::to_string(i), i * 1.0e15, "png"));
   }
   const AuditReport r = audit_dataset(items, 0);
   CHECK(r.camera.count == 30);
@@ -150,7 +152,8 @@ TEST_CASE("the audit warns of a planted container confound and of tiny generator
   CHECK(tiny);
   // Same containers on both sides: no container warning.
   for (auto& it : items) it.facts.format = "png";
-  for (const auto& w : audit_dataset(items, 0).warnings) CHECK(w.find("Container confound") == std::string::npos);
+  for (const auto& w : audit_dataset(items, 0).warnings)
+    CHECK(w.find("Container confound") == std::string::npos);
 }
 
 TEST_CASE("a model round-trips through its file; wrong extractor or damaged files are refused") {

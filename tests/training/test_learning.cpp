@@ -87,8 +87,8 @@ TEST_CASE("balanced class weights are n / (2 n_class), as scikit-learn's class_w
   const std::vector<int> y = {1, 0, 0, 0};  // 1 generated, 3 camera
   const SvmSettings s = balanced_settings(y, 2.0);
   CHECK(s.c == 2.0);
-  CHECK(s.weight_generated == doctest::Approx(2.0));       // 4 / (2 * 1)
-  CHECK(s.weight_camera == doctest::Approx(4.0 / 6.0));    // 4 / (2 * 3)
+  CHECK(s.weight_generated == doctest::Approx(2.0));     // 4 / (2 * 1)
+  CHECK(s.weight_camera == doctest::Approx(4.0 / 6.0));  // 4 / (2 * 3)
 }
 
 TEST_CASE("Platt parameters A, B equal scikit-learn's sigmoid calibration") {

@@ -24,7 +24,8 @@ void walk(const fs::path& dir, std::vector<fs::path>& out,
     }
     if (!it->is_regular_file(ec)) continue;
     if (it->path().filename().string().front() == '.') {
-      skipped.emplace_back(it->path().string(), "hidden file (name starts with '.'); rename it to include it");
+      skipped.emplace_back(it->path().string(),
+                           "hidden file (name starts with '.'); rename it to include it");
       continue;
     }
     out.push_back(it->path());

@@ -79,7 +79,7 @@ Result<LinearModel> train_linear_svm(const Matrix& x, const std::vector<int>& la
   param.kernel_type = LINEAR;
   param.C = settings.c;
   param.eps = settings.tolerance;
-  param.cache_size = 200;
+  param.cache_size = 1024;  // MB of kernel rows: 10k samples fit whole (float rows)
   param.shrinking = 1;
   param.probability = 0;
   param.nr_weight = 2;

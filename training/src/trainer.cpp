@@ -80,8 +80,13 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
     return make_error(ErrorCode::kTooSmall, "all images fall into one group: cannot cross-validate");
   cv.fold = grouped_folds(groups, labels, k);
 
+  std::vector<double> c_grid = settings.c_grid;
+  if (settings.large_set > 0 && items.size() > settings.large_set) {
+    std::erase_if(c_grid, [](double c) { return c > 1.0; });
+    if (c_grid.empty()) c_grid = {1.0};
+  }
   double best_auc = -1.0;
-  for (double c : settings.c_grid) {
+  for (double c : c_grid) {
     std::vector<double> margins(items.size(), 0.0);
     for (int f = 0; f < k; ++f) {
       std::vector<size_t> train, test;
