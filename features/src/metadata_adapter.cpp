@@ -37,6 +37,38 @@ std::string png_text(std::span<const std::uint8_t> b) {
   return text;
 }
 
+bool has_c2pa(std::span<const std::uint8_t> b) {
+  if (b.size() > 8 && b[0] == 0x89 && b[1] == 'P') {
+    size_t i = 8;
+    while (i + 12 <= b.size()) {
+      const size_t length = (size_t{b[i]} << 24) | (size_t{b[i + 1]} << 16) | (size_t{b[i + 2]} << 8) | b[i + 3];
+      if (std::equal(b.begin() + static_cast<std::ptrdiff_t>(i + 4), b.begin() + static_cast<std::ptrdiff_t>(i + 8),
+                     "caBX")) {
+        return true;
+      }
+      if (length > b.size()) break;
+      i += 12 + length;
+    }
+    return false;
+  }
+  if (b.size() > 4 && b[0] == 0xFF && b[1] == 0xD8) {
+    size_t i = 2;
+    while (i + 4 <= b.size() && b[i] == 0xFF) {
+      const std::uint8_t marker = b[i + 1];
+      if (marker == 0xDA || marker == 0xD9) break;  // image data: no more metadata segments
+      const size_t length = (size_t{b[i + 2]} << 8) | b[i + 3];
+      if (marker == 0xEB && i + 2 + length <= b.size()) {
+        const std::string_view payload(reinterpret_cast<const char*>(b.data() + i + 4), length - 2);
+        if (payload.find("jumb") != std::string_view::npos && payload.find("c2pa") != std::string_view::npos) {
+          return true;
+        }
+      }
+      i += 2 + length;
+    }
+  }
+  return false;
+}
+
 std::string value_of(const Exiv2::ExifData& exif, const char* key) {
   const auto it = exif.findKey(Exiv2::ExifKey(key));
   return it == exif.end() ? std::string() : it->toString();
@@ -44,8 +76,14 @@ std::string value_of(const Exiv2::ExifData& exif, const char* key) {
 
 }  // namespace
 
+bool declares_generated(const std::string& t) {
+  return t == "trainedAlgorithmicMedia" || t == "compositeWithTrainedAlgorithmicMedia" || t == "algorithmicMedia" ||
+         t == "compositeSynthetic";
+}
+
 DeclaredMetadata read_metadata(std::span<const std::uint8_t> bytes) {
   DeclaredMetadata out;
+  out.c2pa_manifest = has_c2pa(bytes);
   try {
     Exiv2::LogMsg::setLevel(Exiv2::LogMsg::mute);
     auto image = Exiv2::ImageFactory::open(bytes.data(), static_cast<long>(bytes.size()));

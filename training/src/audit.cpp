@@ -17,13 +17,6 @@ T median_of(std::vector<T> v) {
   return v[v.size() / 2];
 }
 
-bool declares_generated(const std::string& source_type) {
-  // IPTC NewsCodes digitalsourcetype: trainedAlgorithmicMedia, compositeWithTrainedAlgorithmicMedia,
-  // algorithmicMedia, compositeSynthetic, ...
-  return source_type.find("Algorithmic") != std::string::npos ||
-         source_type.find("algorithmic") != std::string::npos || source_type == "compositeSynthetic";
-}
-
 GroupSummary summarise(const std::string& name, const std::vector<const PreparedItem*>& items) {
   GroupSummary g;
   g.name = name;

@@ -1,12 +1,7 @@
 #include "residue/training/batch.hpp"
 
 #include <algorithm>
-#include <condition_variable>
 #include <filesystem>
-#include <map>
-#include <mutex>
-#include <optional>
-#include <thread>
 
 namespace residue {
 
@@ -50,39 +45,9 @@ ExpandedInputs expand_inputs(const std::vector<std::string>& inputs, std::istrea
 
 void extract_batch(const std::vector<std::string>& paths, const ExtractOptions& options, int jobs,
                    const BatchSink& sink) {
-  jobs = std::max(1, jobs);
-  const size_t ahead = static_cast<size_t>(jobs) * 4;  // results allowed to wait for their turn
-  std::mutex mutex;
-  std::condition_variable cv;
-  size_t next_index = 0;  // next path to start
-  size_t next_emit = 0;   // next result to hand to the sink
-  std::map<size_t, Result<Extraction>> ready;
-
-  auto worker = [&] {
-    while (true) {
-      size_t index = 0;
-      {
-        std::unique_lock lock(mutex);
-        cv.wait(lock, [&] { return next_index >= paths.size() || next_index < next_emit + ahead; });
-        if (next_index >= paths.size()) return;
-        index = next_index++;
-      }
-      Result<Extraction> result = extract_file(paths[index], options);
-      std::unique_lock lock(mutex);
-      ready.emplace(index, std::move(result));
-      // Whoever holds the next result in order hands over every consecutive ready result.
-      while (!ready.empty() && ready.begin()->first == next_emit) {
-        auto node = ready.extract(ready.begin());
-        sink(node.key(), paths[node.key()], node.mapped());
-        ++next_emit;
-      }
-      cv.notify_all();
-    }
-  };
-  std::vector<std::thread> threads;
-  threads.reserve(static_cast<size_t>(jobs));
-  for (int j = 0; j < jobs; ++j) threads.emplace_back(worker);
-  for (auto& t : threads) t.join();
+  ordered_parallel<Result<Extraction>>(
+      paths.size(), jobs, [&](size_t i) { return extract_file(paths[i], options); },
+      [&](size_t i, Result<Extraction>& r) { sink(i, paths[i], r); });
 }
 
 }  // namespace residue

@@ -19,9 +19,18 @@ struct DeclaredMetadata {
   // PNG text chunks whose keyword or text looks like generation settings ("parameters",
   // "prompt", "Steps:", "Sampler:", "workflow").
   bool generation_text = false;
+  // A C2PA manifest store is present: a JUMBF box labelled "c2pa" in a JPEG APP11 segment, or the
+  // PNG "caBX" chunk (C2PA specification 1.x, "Embedding manifests"). Presence only: the
+  // manifest's signature is not validated.
+  bool c2pa_manifest = false;
   bool readable = true;  // false when exiv2 could not parse the container
 };
 
 DeclaredMetadata read_metadata(std::span<const std::uint8_t> bytes);
+
+// True for the IPTC NewsCodes digital source types that declare algorithmic or AI generation
+// (trainedAlgorithmicMedia, compositeWithTrainedAlgorithmicMedia, algorithmicMedia,
+// compositeSynthetic); false for digitalCapture and the rest.
+bool declares_generated(const std::string& digital_source_type);
 
 }  // namespace residue

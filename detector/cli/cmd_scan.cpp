@@ -1,0 +1,241 @@
+// `residue scan MODEL PATH...`: one record per input (JSON lines, CSV or a terminal table),
+// resumable (--resume) and shardable (--shard K/N).
+#include <fnmatch.h>
+#include <unistd.h>
+
+#include <cstdio>
+#include <fstream>
+#include <iostream>
+#include <memory>
+#include <set>
+#include <thread>
+
+#include "commands.hpp"
+#include "options.hpp"
+#include "residue/detector/record.hpp"
+#include "residue/detector/scan.hpp"
+#include "residue/training/batch.hpp"
+
+namespace residue::cli {
+
+namespace {
+
+struct ScanArgs {
+  std::string model_path;
+  std::vector<std::string> inputs;
+  std::string output;
+  std::string format = "jsonl";
+  int jobs = static_cast<int>(std::max(1U, std::thread::hardware_concurrency()));
+  std::vector<std::string> include;
+  std::vector<std::string> exclude;
+  std::string resume;
+  std::string shard;
+  ScanSettings settings;
+};
+
+bool matches_any(const std::string& path, const std::vector<std::string>& patterns) {
+  for (const auto& p : patterns) {
+    if (fnmatch(p.c_str(), path.c_str(), 0) == 0) return true;
+  }
+  return false;
+}
+
+std::uint64_t fnv1a(const std::string& s) {
+  std::uint64_t h = 1469598103934665603ULL;
+  for (unsigned char c : s) h = (h ^ c) * 1099511628211ULL;
+  return h;
+}
+
+// What an earlier (possibly interrupted) output already holds: content hashes of records with a
+// hash, paths of records without one. A half-written last line is cut off so appending is clean.
+struct Done {
+  std::set<std::string> hashes;
+  std::set<std::string> paths;
+};
+Result<Done> load_resume(const std::string& file) {
+  Done done;
+  std::ifstream in(file, std::ios::binary);
+  if (!in) return done;  // nothing yet: start afresh
+  std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  in.close();
+  const size_t end = text.rfind('\n');
+  const size_t keep = end == std::string::npos ? 0 : end + 1;
+  if (keep != text.size()) std::filesystem::resize_file(file, keep);
+  size_t start = 0;
+  while (start < keep) {
+    const size_t nl = text.find('\n', start);
+    const auto j = nlohmann::json::parse(text.substr(start, nl - start), nullptr, false);
+    start = nl + 1;
+    if (j.is_discarded() || !j.is_object() || !j.contains("path")) continue;
+    if (j.contains("sha256") && j["sha256"].is_string()) {
+      done.hashes.insert(j["sha256"].get<std::string>());
+    } else {
+      done.paths.insert(j["path"].get<std::string>());
+    }
+  }
+  return done;
+}
+
+std::string csv_field(const std::string& s) {
+  if (s.find_first_of(",\"\n") == std::string::npos) return s;
+  std::string q = "\"";
+  for (char c : s) q += c == '"' ? std::string("\"\"") : std::string(1, c);
+  return q + "\"";
+}
+
+std::string csv_line(const nlohmann::ordered_json& r) {
+  auto str = [&](const char* k) {
+    if (!r.contains(k) || r[k].is_null()) return std::string();
+    return r[k].is_string() ? r[k].get<std::string>() : r[k].dump();
+  };
+  std::string error_code, error_message;
+  if (r.contains("error")) {
+    error_code = r["error"]["code"];
+    error_message = r["error"]["message"];
+  }
+  return csv_field(str("path")) + "," + str("sha256") + "," + str("format") + "," + str("width") + "," +
+         str("height") + "," + str("p_generated") + "," + str("band") + "," + str("margin") + "," + error_code + "," +
+         csv_field(error_message) + "\n";
+}
+
+std::string table_line(const nlohmann::ordered_json& r) {
+  char line[512];
+  const std::string path = r["path"];
+  const std::string shown = path.size() > 48 ? "…" + path.substr(path.size() - 47) : path;
+  if (r.contains("error")) {
+    std::snprintf(line, sizeof line, "%-48s  error %s: %s\n", shown.c_str(),
+                  r["error"]["code"].get<std::string>().c_str(), r["error"]["message"].get<std::string>().c_str());
+  } else {
+    const std::string declared =
+        r["declared"].is_null() ? "" : (r["declared"]["declares_generated"].get<bool>() ? "declares generated" : "");
+    std::snprintf(line, sizeof line, "%-48s  %6.3f  %-16s %s\n", shown.c_str(), r["p_generated"].get<double>(),
+                  r["band"].get<std::string>().c_str(), declared.c_str());
+  }
+  return line;
+}
+
+int run_scan(ScanArgs& args) {
+  auto model = load_model(args.model_path);
+  if (!model) {
+    std::cerr << "residue scan: " << model.error().message << "\n";
+    return static_cast<int>(ExitCode::kFailure);
+  }
+  int shard_k = 1;
+  int shard_n = 1;
+  if (!args.shard.empty() && (std::sscanf(args.shard.c_str(), "%d/%d", &shard_k, &shard_n) != 2 || shard_n < 1 ||
+                              shard_k < 1 || shard_k > shard_n)) {
+    std::cerr << "residue scan: --shard wants K/N with 1 <= K <= N, got '" << args.shard << "'\n";
+    return static_cast<int>(ExitCode::kUsage);
+  }
+  auto expanded = expand_inputs(args.inputs, std::cin);
+  std::vector<std::string> paths;
+  for (const auto& p : expanded.files) {
+    if (!args.include.empty() && !matches_any(p, args.include)) continue;
+    if (matches_any(p, args.exclude)) continue;
+    if (shard_n > 1 && static_cast<int>(fnv1a(p) % static_cast<std::uint64_t>(shard_n)) != shard_k - 1) continue;
+    paths.push_back(p);
+  }
+  Done done;
+  std::string output = args.output;
+  if (!args.resume.empty()) {
+    auto loaded = load_resume(args.resume);
+    if (!loaded) {
+      std::cerr << "residue scan: " << loaded.error().message << "\n";
+      return static_cast<int>(ExitCode::kFailure);
+    }
+    done = std::move(*loaded);
+    output = args.resume;
+  }
+  std::ofstream file;
+  std::ostream* out = &std::cout;
+  if (!output.empty()) {
+    file.open(output, args.resume.empty() ? std::ios::trunc : std::ios::app);
+    if (!file) {
+      std::cerr << "residue scan: cannot write " << output << "\n";
+      return static_cast<int>(ExitCode::kFailure);
+    }
+    out = &file;
+  }
+  if (args.format == "csv" && args.resume.empty()) {
+    *out << "path,sha256,format,width,height,p_generated,band,margin,error_code,error_message\n";
+  }
+  size_t failed = 0;
+  size_t written = 0;
+  size_t skipped = 0;
+  for (const auto& [path, message] : expanded.problems) {
+    *out << error_record(path, {ErrorCode::kUnreadable, message}).dump() << "\n";
+    ++failed;
+  }
+  const bool terminal = ::isatty(STDERR_FILENO) != 0;
+  std::map<std::string, size_t> bands;
+  ordered_parallel<nlohmann::ordered_json>(
+      paths.size(), args.jobs,
+      [&](size_t i) -> nlohmann::ordered_json {
+        if (done.paths.count(paths[i]) > 0) return nullptr;
+        auto r = scan_file(paths[i], *model, args.settings);
+        if (r["sha256"].is_string() && done.hashes.count(r["sha256"].get<std::string>()) > 0) return nullptr;
+        return r;
+      },
+      [&](size_t i, nlohmann::ordered_json& r) {
+        if (r.is_null()) {
+          ++skipped;
+        } else {
+          if (r.contains("error")) {
+            ++failed;
+          } else {
+            ++bands[r["band"].get<std::string>()];
+          }
+          if (args.format == "csv") {
+            *out << csv_line(r);
+          } else if (args.format == "table") {
+            *out << table_line(r);
+          } else {
+            *out << r.dump() << "\n";
+          }
+          out->flush();  // a killed scan loses at most the line being written
+          ++written;
+        }
+        if (terminal) std::fprintf(stderr, "\r%zu/%zu scanned", i + 1, paths.size());
+      });
+  if (terminal) std::fprintf(stderr, "\n");
+  if (args.format == "table") {
+    *out << "\n" << kAdvisoryNotice << "\n";
+  }
+  std::cerr << "residue scan: " << written << " records (" << bands["likely-generated"] << " likely-generated, "
+            << bands["inconclusive"] << " inconclusive, " << bands["likely-camera"] << " likely-camera, " << failed
+            << " failed)";
+  if (skipped > 0) std::cerr << "; " << skipped << " already in " << args.resume;
+  std::cerr << "\n";
+  return failed > 0 ? static_cast<int>(ExitCode::kSomeInputsFailed) : 0;
+}
+
+}  // namespace
+
+void add_scan_command(CLI::App& app, int& exit_code) {
+  auto args = std::make_shared<ScanArgs>();
+  auto* cmd = app.add_subcommand("scan", "Score images with a model: one record per input");
+  cmd->add_option("model", args->model_path, "model file from residue train")->required();
+  cmd->add_option("inputs", args->inputs, "image files, folders (recursive) or - for paths on stdin")->required();
+  cmd->add_option("-o,--output", args->output, "write records to this file (flushed line by line)");
+  cmd->add_option("--format", args->format, "jsonl (one JSON object per line), csv or table")
+      ->check(CLI::IsMember({"jsonl", "csv", "table"}))
+      ->capture_default_str();
+  cmd->add_option("-j,--jobs", args->jobs, "parallel threads (default: cores)")->check(CLI::Range(1, 256));
+  cmd->add_option("--include", args->include, "only paths matching these shell patterns (e.g. '*.jpg')");
+  cmd->add_option("--exclude", args->exclude, "skip paths matching these shell patterns");
+  cmd->add_option("--resume", args->resume,
+                  "append to this earlier output, skipping inputs it already holds (by content hash)");
+  cmd->add_option("--shard", args->shard, "K/N: take only the K-th of N deterministic slices of the inputs");
+  cmd->add_option("--prior", args->settings.prior, "deployment share of generated images (shifts P; docs/training.md)")
+      ->check(CLI::Range(0.0001, 0.9999));
+  cmd->add_option("--threshold", args->settings.likely_generated, "P at or above which the band is likely-generated")
+      ->check(CLI::Range(0.0, 1.0));
+  cmd->add_option("--camera-threshold", args->settings.likely_camera, "P below which the band is likely-camera")
+      ->check(CLI::Range(0.0, 1.0));
+  add_extract_options(*cmd, args->settings.extract);
+  cmd->footer(
+      "Exit status: 0 every input scored, 3 some inputs failed (each has an error record), 1 failure, 2 usage error.");
+  cmd->callback([args, &exit_code] { exit_code = run_scan(*args); });
+}
+
+}  // namespace residue::cli

@@ -1,0 +1,27 @@
+// The batch report: one self-contained HTML page (no network, no external assets) from the
+// records of one or more scans (shards concatenate).
+#pragma once
+
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "residue/training/model.hpp"
+
+namespace residue {
+
+struct ReportInput {
+  std::vector<nlohmann::json> records;  // as read from the scan outputs
+  size_t unreadable_lines = 0;          // lines that were not JSON records
+  std::vector<std::string> sources;     // the scan files
+  std::optional<Model> model;           // for the provenance section, when given
+  int top = 24;                         // highest-scoring files shown with pictures
+};
+
+// Builds the page. Pictures of the top files are made by reading the files again where they are
+// still readable; otherwise the page says so.
+std::string report_page(const ReportInput& input);
+
+}  // namespace residue

@@ -1,0 +1,78 @@
+#include "residue/detector/scan.hpp"
+
+#include "residue/detector/record.hpp"
+#include "residue/features/fingerprint.hpp"
+
+namespace residue {
+
+Thresholds effective_thresholds(const Model& model, const ScanSettings& s) {
+  Thresholds t = model.thresholds;
+  if (s.likely_generated) t.likely_generated = *s.likely_generated;
+  if (s.likely_camera) t.likely_camera = *s.likely_camera;
+  t.likely_camera = std::min(t.likely_camera, t.likely_generated);
+  return t;
+}
+
+nlohmann::ordered_json declared_json(const DeclaredMetadata& m) {
+  const bool any = !m.digital_source_type.empty() || m.c2pa_manifest || m.generation_text ||
+                   !m.camera_make.empty() || !m.camera_model.empty();
+  if (!any) return nullptr;
+  nlohmann::ordered_json j;
+  j["digital_source_type"] = m.digital_source_type.empty() ? nlohmann::ordered_json(nullptr)
+                                                             : nlohmann::ordered_json(m.digital_source_type);
+  j["declares_generated"] = declares_generated(m.digital_source_type) || m.generation_text;
+  j["c2pa_manifest"] = m.c2pa_manifest;
+  j["generation_settings_text"] = m.generation_text;
+  j["camera_make"] = m.camera_make.empty() ? nlohmann::ordered_json(nullptr) : nlohmann::ordered_json(m.camera_make);
+  j["camera_model"] = m.camera_model.empty() ? nlohmann::ordered_json(nullptr) : nlohmann::ordered_json(m.camera_model);
+  return j;
+}
+
+nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::uint8_t> bytes, const Model& model,
+                                  const ScanSettings& settings) {
+  nlohmann::ordered_json r;
+  r["path"] = path;
+  r["sha256"] = sha256_hex(bytes);
+  auto extraction = extract_bytes(bytes, settings.extract);
+  if (!extraction) {
+    r["error"] = {{"code", std::string(error_code_name(extraction.error().code))},
+                  {"message", extraction.error().message}};
+    r["model"] = model.id;
+    r["advisory"] = kAdvisoryNotice;
+    return r;
+  }
+  const Score s = score(model, extraction->features, settings.prior);
+  const Thresholds t = effective_thresholds(model, settings);
+  r["width"] = extraction->header.width;
+  r["height"] = extraction->header.height;
+  r["format"] = std::string(image_format_name(extraction->header.format));
+  r["p_generated"] = s.p_generated;
+  r["band"] = band_of(t, s.p_generated);
+  r["margin"] = s.margin;
+  r["contributions"] = s.contributions;
+  r["declared"] = declared_json(read_metadata(bytes));
+  r["model"] = model.id;
+  r["prior"] = settings.prior ? nlohmann::ordered_json(*settings.prior) : nlohmann::ordered_json(nullptr);
+  r["windows"] = {{"size", extraction->layout.size},
+                  {"count", extraction->layout.origins.size()},
+                  {"reduced", extraction->layout.reduced}};
+  r["alpha_dropped"] = extraction->alpha_dropped;
+  r["advisory"] = kAdvisoryNotice;
+  return r;
+}
+
+nlohmann::ordered_json scan_file(const std::string& path, const Model& model, const ScanSettings& settings) {
+  auto bytes = read_file(path, settings.extract.limits);
+  if (!bytes) {
+    nlohmann::ordered_json r;
+    r["path"] = path;
+    r["sha256"] = nullptr;
+    r["error"] = {{"code", std::string(error_code_name(bytes.error().code))}, {"message", bytes.error().message}};
+    r["model"] = model.id;
+    r["advisory"] = kAdvisoryNotice;
+    return r;
+  }
+  return scan_bytes(path, *bytes, model, settings);
+}
+
+}  // namespace residue
