@@ -11,7 +11,7 @@ packages=(
   libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev
   libjpeg62-turbo-dev libpng-dev libwebp-dev libtiff-dev
   # reference libraries for the tests (Debian's, used by /usr/bin/python3)
-  python3 python3-numpy python3-scipy python3-skimage python3-pil python3-sklearn
+  python3 python3-numpy python3-scipy python3-skimage python3-pil python3-sklearn exiv2
 )
 
 missing=()

@@ -4,13 +4,10 @@
 #include <memory>
 
 #include "commands.hpp"
-#include "residue/detector/evaluation_page.hpp"
-#include "residue/detector/pictures.hpp"
+#include "residue/detector/explain.hpp"
 #include "residue/detector/record.hpp"
 #include "residue/detector/report_page.hpp"
 #include "residue/detector/scan.hpp"
-#include "residue/features/decode.hpp"
-#include "residue/features/families.hpp"
 #include "residue/training/atomic_file.hpp"
 
 namespace residue::cli {
@@ -69,93 +66,18 @@ int run_report(const ReportArgs& args) {
 }
 
 int run_explain(const ExplainArgs& args) {
-  namespace fs = std::filesystem;
   auto model = load_model(args.model_path);
   if (!model) {
     std::cerr << "residue explain: " << model.error().message << "\n";
     return static_cast<int>(ExitCode::kFailure);
   }
-  const auto record = scan_file(args.image, *model, args.settings);
-  if (record.contains("error")) {
-    std::cerr << "residue explain: " << args.image << ": " << record["error"]["message"].get<std::string>() << "\n";
-    return static_cast<int>(ExitCode::kSomeInputsFailed);
+  auto explanation = explain_image(args.image, *model, args.settings, args.output_dir);
+  if (!explanation) {
+    std::cerr << "residue explain: " << args.image << ": " << explanation.error().message << "\n";
+    return static_cast<int>(explanation.error().code == ErrorCode::kInternal ? ExitCode::kFailure
+                                                                             : ExitCode::kSomeInputsFailed);
   }
-  auto bytes = read_file(args.image, args.settings.extract.limits);
-  auto windows = bytes ? decode_windows(*bytes, args.settings.extract.limits, args.settings.extract.windows)
-                       : Result<DecodedWindows>(bytes.error());
-  auto preview = bytes ? decode_image(*bytes, args.settings.extract.limits) : Result<Image>(bytes.error());
-  if (!windows || !preview) {
-    std::cerr << "residue explain: " << args.image << ": cannot decode for pictures\n";
-    return static_cast<int>(ExitCode::kFailure);
-  }
-  fs::create_directories(args.output_dir);
-  const fs::path dir = args.output_dir;
-  const Tile& tile = windows->tiles[windows->tiles.size() / 2];
-  const auto luma = tile.luma();
-  const auto residual = denoise_residual(luma.data(), tile.size);
-  auto pmap = kirchner_pmap(luma.data(), tile.size);
-  double mean = 0;
-  for (float v : pmap) mean += v;
-  for (float& v : pmap) v -= static_cast<float>(mean / static_cast<double>(pmap.size()));
-  // The residual of a very large image is cropped to its centre so the picture stays viewable.
-  const Image& full = *preview;
-  const int side = std::min({full.width, full.height, 1024});
-  Image centre = Image::zeros(side, side, full.channels);
-  for (int c = 0; c < full.channels; ++c) {
-    for (int y = 0; y < side; ++y) {
-      for (int x = 0; x < side; ++x) {
-        centre.plane(c)[static_cast<size_t>(y) * side + x] =
-            full.plane(c)[static_cast<size_t>((full.height - side) / 2 + y) * full.width + (full.width - side) / 2 + x];
-      }
-    }
-  }
-  const std::map<std::string, double> contributions = record["contributions"].get<std::map<std::string, double>>();
-  const bool ok = write_png(residual_picture(centre), dir / "noise_residual.png").ok() &&
-                  write_png(spectrum_picture(residual, tile.size, true), dir / "residual_spectrum.png").ok() &&
-                  write_png(spectrum_picture(pmap, tile.size, false), dir / "resampling_pmap_spectrum.png").ok() &&
-                  write_file_atomically(dir / "contributions.svg",
-                                        bar_chart_svg(contributions, "Contribution to the margin by family "
-                                                                     "(red: towards generated)"))
-                      .ok();
-  // Strongest single values: |w z| largest.
-  std::vector<std::pair<double, std::string>> evidence;
-  const auto features = extract_tiles(windows->tiles);
-  for (size_t k = 0; k < model->features.size(); ++k) {
-    const double z = (features.values[model->feature_index[k]] - model->scaler.mean[k]) / model->scaler.scale[k];
-    evidence.emplace_back(model->linear.weights[k] * z, model->features[k]);
-  }
-  std::sort(evidence.begin(), evidence.end(),
-            [](const auto& a, const auto& b) { return std::fabs(a.first) > std::fabs(b.first); });
-  nlohmann::ordered_json summary = record;
-  summary["strongest_evidence"] = nlohmann::ordered_json::array();
-  for (size_t i = 0; i < std::min<size_t>(8, evidence.size()); ++i) {
-    summary["strongest_evidence"].push_back(
-        {{"feature", evidence[i].second},
-         {"contribution", evidence[i].first},
-         {"direction", evidence[i].first >= 0 ? "towards generated" : "towards camera"}});
-  }
-  summary["pictures"] = {"noise_residual.png", "residual_spectrum.png", "resampling_pmap_spectrum.png",
-                         "contributions.svg"};
-  std::string text = "residue explain: " + args.image + "\n";
-  char line[256];
-  std::snprintf(line, sizeof line, "P(generated) = %.3f, band %s, margin %+.3f (model %s)\n",
-                record["p_generated"].get<double>(), record["band"].get<std::string>().c_str(),
-                record["margin"].get<double>(), model->id.c_str());
-  text += line;
-  text += "Strongest evidence (weight x standardised value):\n";
-  for (size_t i = 0; i < std::min<size_t>(8, evidence.size()); ++i) {
-    std::snprintf(line, sizeof line, "  %+7.3f  %s\n", evidence[i].first, evidence[i].second.c_str());
-    text += line;
-  }
-  text += "Pictures: noise_residual.png (centre of the image), residual_spectrum.png (red marks at the N/8 grid\n"
-          "where upsampling leaves peaks), resampling_pmap_spectrum.png, contributions.svg\n\n" +
-          std::string(kAdvisoryNotice) + "\n";
-  if (!ok || !write_file_atomically(dir / "summary.json", summary.dump(2) + "\n").ok() ||
-      !write_file_atomically(dir / "summary.txt", text).ok()) {
-    std::cerr << "residue explain: cannot write into " << args.output_dir << "\n";
-    return static_cast<int>(ExitCode::kFailure);
-  }
-  std::cout << text;
+  std::cout << explanation->text;
   return 0;
 }
 

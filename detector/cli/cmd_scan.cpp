@@ -6,8 +6,8 @@
 #include <cstdio>
 #include <fstream>
 #include <iostream>
+#include <map>
 #include <memory>
-#include <set>
 #include <thread>
 
 #include "commands.hpp"
@@ -46,11 +46,12 @@ std::uint64_t fnv1a(const std::string& s) {
   return h;
 }
 
-// What an earlier (possibly interrupted) output already holds: content hashes of records with a
-// hash, paths of records without one. A half-written last line is cut off so appending is clean.
+// What an earlier (possibly interrupted) output already holds: path and content hash of records
+// with a hash (a file changed since is scanned again), paths of records without one. A half-written last line
+// is cut off so appending is clean.
 struct Done {
-  std::set<std::string> hashes;
-  std::set<std::string> paths;
+  std::map<std::string, bool> hashes;  // path + content hash -> that record was an error
+  std::map<std::string, bool> paths;   // path (records without a hash) -> error
 };
 Result<Done> load_resume(const std::string& file) {
   Done done;
@@ -67,10 +68,11 @@ Result<Done> load_resume(const std::string& file) {
     const auto j = nlohmann::json::parse(text.substr(start, nl - start), nullptr, false);
     start = nl + 1;
     if (j.is_discarded() || !j.is_object() || !j.contains("path")) continue;
+    const bool failed = j.contains("error");
     if (j.contains("sha256") && j["sha256"].is_string()) {
-      done.hashes.insert(j["sha256"].get<std::string>());
+      done.hashes[j["path"].get<std::string>() + "\n" + j["sha256"].get<std::string>()] = failed;
     } else {
-      done.paths.insert(j["path"].get<std::string>());
+      done.paths[j["path"].get<std::string>()] = failed;
     }
   }
   return done;
@@ -94,8 +96,8 @@ std::string csv_line(const nlohmann::ordered_json& r) {
     error_message = r["error"]["message"];
   }
   return csv_field(str("path")) + "," + str("sha256") + "," + str("format") + "," + str("width") + "," +
-         str("height") + "," + str("p_generated") + "," + str("band") + "," + str("margin") + "," + error_code + "," +
-         csv_field(error_message) + "\n";
+         str("height") + "," + str("p_generated") + "," + str("band") + "," + str("margin") + "," +
+         error_code + "," + csv_field(error_message) + "\n";
 }
 
 std::string table_line(const nlohmann::ordered_json& r) {
@@ -104,12 +106,15 @@ std::string table_line(const nlohmann::ordered_json& r) {
   const std::string shown = path.size() > 48 ? "…" + path.substr(path.size() - 47) : path;
   if (r.contains("error")) {
     std::snprintf(line, sizeof line, "%-48s  error %s: %s\n", shown.c_str(),
-                  r["error"]["code"].get<std::string>().c_str(), r["error"]["message"].get<std::string>().c_str());
+                  r["error"]["code"].get<std::string>().c_str(),
+                  r["error"]["message"].get<std::string>().c_str());
   } else {
     const std::string declared =
-        r["declared"].is_null() ? "" : (r["declared"]["declares_generated"].get<bool>() ? "declares generated" : "");
-    std::snprintf(line, sizeof line, "%-48s  %6.3f  %-16s %s\n", shown.c_str(), r["p_generated"].get<double>(),
-                  r["band"].get<std::string>().c_str(), declared.c_str());
+        r["declared"].is_null()
+            ? ""
+            : (r["declared"]["declares_generated"].get<bool>() ? "declares generated" : "");
+    std::snprintf(line, sizeof line, "%-48s  %6.3f  %-16s %s\n", shown.c_str(),
+                  r["p_generated"].get<double>(), r["band"].get<std::string>().c_str(), declared.c_str());
   }
   return line;
 }
@@ -122,8 +127,8 @@ int run_scan(ScanArgs& args) {
   }
   int shard_k = 1;
   int shard_n = 1;
-  if (!args.shard.empty() && (std::sscanf(args.shard.c_str(), "%d/%d", &shard_k, &shard_n) != 2 || shard_n < 1 ||
-                              shard_k < 1 || shard_k > shard_n)) {
+  if (!args.shard.empty() && (std::sscanf(args.shard.c_str(), "%d/%d", &shard_k, &shard_n) != 2 ||
+                              shard_n < 1 || shard_k < 1 || shard_k > shard_n)) {
     std::cerr << "residue scan: --shard wants K/N with 1 <= K <= N, got '" << args.shard << "'\n";
     return static_cast<int>(ExitCode::kUsage);
   }
@@ -132,7 +137,8 @@ int run_scan(ScanArgs& args) {
   for (const auto& p : expanded.files) {
     if (!args.include.empty() && !matches_any(p, args.include)) continue;
     if (matches_any(p, args.exclude)) continue;
-    if (shard_n > 1 && static_cast<int>(fnv1a(p) % static_cast<std::uint64_t>(shard_n)) != shard_k - 1) continue;
+    if (shard_n > 1 && static_cast<int>(fnv1a(p) % static_cast<std::uint64_t>(shard_n)) != shard_k - 1)
+      continue;
     paths.push_back(p);
   }
   Done done;
@@ -171,14 +177,22 @@ int run_scan(ScanArgs& args) {
   ordered_parallel<nlohmann::ordered_json>(
       paths.size(), args.jobs,
       [&](size_t i) -> nlohmann::ordered_json {
-        if (done.paths.count(paths[i]) > 0) return nullptr;
+        // Inputs already in the resumed output come back as {"already": failed?}.
+        if (const auto it = done.paths.find(paths[i]); it != done.paths.end())
+          return {{"already", it->second}};
         auto r = scan_file(paths[i], *model, args.settings);
-        if (r["sha256"].is_string() && done.hashes.count(r["sha256"].get<std::string>()) > 0) return nullptr;
+        if (r["sha256"].is_string()) {
+          if (const auto it = done.hashes.find(paths[i] + "\n" + r["sha256"].get<std::string>());
+              it != done.hashes.end()) {
+            return {{"already", it->second}};
+          }
+        }
         return r;
       },
       [&](size_t i, nlohmann::ordered_json& r) {
-        if (r.is_null()) {
+        if (r.contains("already")) {
           ++skipped;
+          if (r["already"].get<bool>()) ++failed;  // still failed, so the exit status says so
         } else {
           if (r.contains("error")) {
             ++failed;
@@ -201,9 +215,9 @@ int run_scan(ScanArgs& args) {
   if (args.format == "table") {
     *out << "\n" << kAdvisoryNotice << "\n";
   }
-  std::cerr << "residue scan: " << written << " records (" << bands["likely-generated"] << " likely-generated, "
-            << bands["inconclusive"] << " inconclusive, " << bands["likely-camera"] << " likely-camera, " << failed
-            << " failed)";
+  std::cerr << "residue scan: " << written << " records (" << bands["likely-generated"]
+            << " likely-generated, " << bands["inconclusive"] << " inconclusive, " << bands["likely-camera"]
+            << " likely-camera, " << failed << " failed)";
   if (skipped > 0) std::cerr << "; " << skipped << " already in " << args.resume;
   std::cerr << "\n";
   return failed > 0 ? static_cast<int>(ExitCode::kSomeInputsFailed) : 0;
@@ -215,7 +229,8 @@ void add_scan_command(CLI::App& app, int& exit_code) {
   auto args = std::make_shared<ScanArgs>();
   auto* cmd = app.add_subcommand("scan", "Score images with a model: one record per input");
   cmd->add_option("model", args->model_path, "model file from residue train")->required();
-  cmd->add_option("inputs", args->inputs, "image files, folders (recursive) or - for paths on stdin")->required();
+  cmd->add_option("inputs", args->inputs, "image files, folders (recursive) or - for paths on stdin")
+      ->required();
   cmd->add_option("-o,--output", args->output, "write records to this file (flushed line by line)");
   cmd->add_option("--format", args->format, "jsonl (one JSON object per line), csv or table")
       ->check(CLI::IsMember({"jsonl", "csv", "table"}))
@@ -226,15 +241,19 @@ void add_scan_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--resume", args->resume,
                   "append to this earlier output, skipping inputs it already holds (by content hash)");
   cmd->add_option("--shard", args->shard, "K/N: take only the K-th of N deterministic slices of the inputs");
-  cmd->add_option("--prior", args->settings.prior, "deployment share of generated images (shifts P; docs/training.md)")
+  cmd->add_option("--prior", args->settings.prior,
+                  "deployment share of generated images (shifts P; docs/training.md)")
       ->check(CLI::Range(0.0001, 0.9999));
-  cmd->add_option("--threshold", args->settings.likely_generated, "P at or above which the band is likely-generated")
+  cmd->add_option("--threshold", args->settings.likely_generated,
+                  "P at or above which the band is likely-generated")
       ->check(CLI::Range(0.0, 1.0));
-  cmd->add_option("--camera-threshold", args->settings.likely_camera, "P below which the band is likely-camera")
+  cmd->add_option("--camera-threshold", args->settings.likely_camera,
+                  "P below which the band is likely-camera")
       ->check(CLI::Range(0.0, 1.0));
   add_extract_options(*cmd, args->settings.extract);
   cmd->footer(
-      "Exit status: 0 every input scored, 3 some inputs failed (each has an error record), 1 failure, 2 usage error.");
+      "Exit status: 0 every input scored, 3 some inputs failed (each has an error record), 1 failure, 2 "
+      "usage error.");
   cmd->callback([args, &exit_code] { exit_code = run_scan(*args); });
 }
 

@@ -5,6 +5,7 @@
 #include <cstdlib>
 #include <numbers>
 #include <random>
+#include <span>
 
 namespace residue {
 
@@ -21,27 +22,86 @@ std::optional<std::filesystem::path> sample_photo_dir() {
 
 std::vector<std::filesystem::path> sample_photos(const std::filesystem::path& dir) {
   // Photographs of real scenes; the other samples are drawings, text, charts or micrographs.
-  static const char* const kPhotos[] = {"astronaut.png",
-                                        "camera.png",
-                                        "chelsea.png",
-                                        "coffee.png",
-                                        "motorcycle_left.png",
-                                        "motorcycle_right.png",
-                                        "rocket.jpg",
-                                        "hubble_deep_field.jpg",
-                                        "brick.png",
-                                        "grass.png",
-                                        "gravel.png",
-                                        "moon.png",
-                                        "coins.png",
-                                        "clock_motion.png",
-                                        "horse.png"};
+  static const char* const kPhotos[] = {"astronaut.png",       "camera.png",
+                                        "chelsea.png",         "coffee.png",
+                                        "motorcycle_left.png", "motorcycle_right.png",
+                                        "rocket.jpg",          "hubble_deep_field.jpg",
+                                        "brick.png",           "grass.png",
+                                        "gravel.png",          "moon.png",
+                                        "coins.png",           "clock_motion.png"};
   std::vector<std::filesystem::path> found;
   std::error_code ec;
   for (const char* name : kPhotos) {
     if (std::filesystem::is_regular_file(dir / name, ec)) found.push_back(dir / name);
   }
   return found;
+}
+
+Image crop(const Image& image, int x, int y, int w, int h) {
+  Image out = Image::zeros(w, h, image.channels);
+  for (int c = 0; c < image.channels; ++c) {
+    for (int r = 0; r < h; ++r) {
+      std::copy_n(image.plane(c) + static_cast<size_t>(y + r) * image.width + x, w,
+                  out.plane(c) + static_cast<size_t>(r) * w);
+    }
+  }
+  return out;
+}
+
+Image simulate_decoder_output(const Image& picture, SimulatedDecoder decoder) {
+  const int w = picture.width / 2;
+  const int h = picture.height / 2;
+  Image out = Image::zeros(2 * w, 2 * h, picture.channels);
+  static const float kUneven[3][3] = {{0.3F, 0.7F, 0.2F}, {0.6F, 1.0F, 0.5F}, {0.2F, 0.6F, 0.3F}};
+  for (int c = 0; c < picture.channels; ++c) {
+    std::vector<float> small(static_cast<size_t>(w) * h);
+    const float* src = picture.plane(c);
+    for (int y = 0; y < h; ++y) {
+      for (int x = 0; x < w; ++x) {
+        const size_t i = static_cast<size_t>(2 * y) * picture.width + 2 * x;
+        small[static_cast<size_t>(y) * w + x] =
+            0.25F * (src[i] + src[i + 1] + src[i + picture.width] + src[i + picture.width + 1]);
+      }
+    }
+    float* dst = out.plane(c);
+    if (decoder == SimulatedDecoder::kTransposedConvolution) {
+      std::vector<float> weight(out.samples.size() / out.channels, 0.0F);
+      for (int y = 0; y < h; ++y) {
+        for (int x = 0; x < w; ++x) {
+          for (int i = 0; i < 3; ++i) {
+            for (int j = 0; j < 3; ++j) {
+              const int oy = 2 * y + i - 1;
+              const int ox = 2 * x + j - 1;
+              if (oy < 0 || ox < 0 || oy >= 2 * h || ox >= 2 * w) continue;
+              dst[static_cast<size_t>(oy) * 2 * w + ox] +=
+                  kUneven[i][j] * small[static_cast<size_t>(y) * w + x];
+            }
+          }
+        }
+      }
+      for (float& v : std::span(dst, static_cast<size_t>(4) * w * h)) v /= 1.5F;  // keep the brightness
+    } else {
+      std::vector<float> near(static_cast<size_t>(4) * w * h);
+      for (int y = 0; y < 2 * h; ++y) {
+        for (int x = 0; x < 2 * w; ++x)
+          near[static_cast<size_t>(y) * 2 * w + x] = small[static_cast<size_t>(y / 2) * w + x / 2];
+      }
+      for (int y = 0; y < 2 * h; ++y) {
+        for (int x = 0; x < 2 * w; ++x) {
+          float s = 0.0F;
+          for (int dy = -1; dy <= 1; ++dy) {
+            for (int dx = -1; dx <= 1; ++dx) {
+              const int yy = std::clamp(y + dy, 0, 2 * h - 1);
+              const int xx = std::clamp(x + dx, 0, 2 * w - 1);
+              s += (dy == 0 && dx == 0 ? 0.5F : 0.0625F) * near[static_cast<size_t>(yy) * 2 * w + xx];
+            }
+          }
+          dst[static_cast<size_t>(y) * 2 * w + x] = s;
+        }
+      }
+    }
+  }
+  return out;
 }
 
 Image simulated_scene(int width, int height, unsigned seed, double noise_sigma) {

@@ -19,17 +19,19 @@ nlohmann::ordered_json declared_json(const DeclaredMetadata& m) {
   if (!any) return nullptr;
   nlohmann::ordered_json j;
   j["digital_source_type"] = m.digital_source_type.empty() ? nlohmann::ordered_json(nullptr)
-                                                             : nlohmann::ordered_json(m.digital_source_type);
+                                                           : nlohmann::ordered_json(m.digital_source_type);
   j["declares_generated"] = declares_generated(m.digital_source_type) || m.generation_text;
   j["c2pa_manifest"] = m.c2pa_manifest;
   j["generation_settings_text"] = m.generation_text;
-  j["camera_make"] = m.camera_make.empty() ? nlohmann::ordered_json(nullptr) : nlohmann::ordered_json(m.camera_make);
-  j["camera_model"] = m.camera_model.empty() ? nlohmann::ordered_json(nullptr) : nlohmann::ordered_json(m.camera_model);
+  j["camera_make"] =
+      m.camera_make.empty() ? nlohmann::ordered_json(nullptr) : nlohmann::ordered_json(m.camera_make);
+  j["camera_model"] =
+      m.camera_model.empty() ? nlohmann::ordered_json(nullptr) : nlohmann::ordered_json(m.camera_model);
   return j;
 }
 
-nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::uint8_t> bytes, const Model& model,
-                                  const ScanSettings& settings) {
+nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::uint8_t> bytes,
+                                  const Model& model, const ScanSettings& settings) {
   nlohmann::ordered_json r;
   r["path"] = path;
   r["sha256"] = sha256_hex(bytes);
@@ -52,12 +54,13 @@ nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::
   r["contributions"] = s.contributions;
   r["declared"] = declared_json(read_metadata(bytes));
   r["model"] = model.id;
+  r["advisory"] = kAdvisoryNotice;
+  // Beyond the contract: what a reviewer may want to know about how the score was made.
   r["prior"] = settings.prior ? nlohmann::ordered_json(*settings.prior) : nlohmann::ordered_json(nullptr);
   r["windows"] = {{"size", extraction->layout.size},
                   {"count", extraction->layout.origins.size()},
                   {"reduced", extraction->layout.reduced}};
   r["alpha_dropped"] = extraction->alpha_dropped;
-  r["advisory"] = kAdvisoryNotice;
   return r;
 }
 
@@ -67,7 +70,8 @@ nlohmann::ordered_json scan_file(const std::string& path, const Model& model, co
     nlohmann::ordered_json r;
     r["path"] = path;
     r["sha256"] = nullptr;
-    r["error"] = {{"code", std::string(error_code_name(bytes.error().code))}, {"message", bytes.error().message}};
+    r["error"] = {{"code", std::string(error_code_name(bytes.error().code))},
+                  {"message", bytes.error().message}};
     r["model"] = model.id;
     r["advisory"] = kAdvisoryNotice;
     return r;

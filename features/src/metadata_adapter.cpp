@@ -41,9 +41,10 @@ bool has_c2pa(std::span<const std::uint8_t> b) {
   if (b.size() > 8 && b[0] == 0x89 && b[1] == 'P') {
     size_t i = 8;
     while (i + 12 <= b.size()) {
-      const size_t length = (size_t{b[i]} << 24) | (size_t{b[i + 1]} << 16) | (size_t{b[i + 2]} << 8) | b[i + 3];
-      if (std::equal(b.begin() + static_cast<std::ptrdiff_t>(i + 4), b.begin() + static_cast<std::ptrdiff_t>(i + 8),
-                     "caBX")) {
+      const size_t length =
+          (size_t{b[i]} << 24) | (size_t{b[i + 1]} << 16) | (size_t{b[i + 2]} << 8) | b[i + 3];
+      if (std::equal(b.begin() + static_cast<std::ptrdiff_t>(i + 4),
+                     b.begin() + static_cast<std::ptrdiff_t>(i + 8), "caBX")) {
         return true;
       }
       if (length > b.size()) break;
@@ -59,7 +60,8 @@ bool has_c2pa(std::span<const std::uint8_t> b) {
       const size_t length = (size_t{b[i + 2]} << 8) | b[i + 3];
       if (marker == 0xEB && i + 2 + length <= b.size()) {
         const std::string_view payload(reinterpret_cast<const char*>(b.data() + i + 4), length - 2);
-        if (payload.find("jumb") != std::string_view::npos && payload.find("c2pa") != std::string_view::npos) {
+        if (payload.find("jumb") != std::string_view::npos &&
+            payload.find("c2pa") != std::string_view::npos) {
           return true;
         }
       }
@@ -76,9 +78,29 @@ std::string value_of(const Exiv2::ExifData& exif, const char* key) {
 
 }  // namespace
 
+std::vector<std::uint8_t> with_digital_source_type(std::span<const std::uint8_t> bytes,
+                                                   const std::string& type) {
+  try {
+    auto image = Exiv2::ImageFactory::open(bytes.data(), static_cast<long>(bytes.size()));
+    image->readMetadata();
+    Exiv2::XmpData xmp = image->xmpData();
+    xmp["Xmp.iptcExt.DigitalSourceType"] = "http://cv.iptc.org/newscodes/digitalsourcetype/" + type;
+    image->setXmpData(xmp);
+    image->writeMetadata();
+    Exiv2::BasicIo& io = image->io();
+    io.seek(0, Exiv2::BasicIo::beg);
+    const auto size = static_cast<size_t>(io.size());
+    std::vector<std::uint8_t> out(size);
+    io.read(out.data(), static_cast<long>(size));
+    return out;
+  } catch (const std::exception&) {
+    return {bytes.begin(), bytes.end()};
+  }
+}
+
 bool declares_generated(const std::string& t) {
-  return t == "trainedAlgorithmicMedia" || t == "compositeWithTrainedAlgorithmicMedia" || t == "algorithmicMedia" ||
-         t == "compositeSynthetic";
+  return t == "trainedAlgorithmicMedia" || t == "compositeWithTrainedAlgorithmicMedia" ||
+         t == "algorithmicMedia" || t == "compositeSynthetic";
 }
 
 DeclaredMetadata read_metadata(std::span<const std::uint8_t> bytes) {

@@ -22,4 +22,16 @@ std::vector<std::filesystem::path> sample_photos(const std::filesystem::path& di
 // Stands in for photographs where only speed matters (the benchmark).
 Image simulated_scene(int width, int height, unsigned seed, double noise_sigma = 2.0);
 
+// A w x h crop of `image` at (x, y).
+Image crop(const Image& image, int x, int y, int w, int h);
+
+// SIMULATED generator output for the demo (labelled as such wherever it is used): the picture is
+// reduced 2x by box averaging (erasing the camera's own traces), then enlarged 2x the way image
+// decoders do, leaving the periodic traces of upsampling.
+enum class SimulatedDecoder {
+  kTransposedConvolution,  // stride-2 transposed convolution, uneven 3 x 3 kernel (checkerboard)
+  kNearestSmoothed,        // nearest-neighbour 2x, then a 3 x 3 smoothing convolution
+};
+Image simulate_decoder_output(const Image& picture, SimulatedDecoder decoder);
+
 }  // namespace residue

@@ -5,6 +5,7 @@
 #include <cstdint>
 #include <span>
 #include <string>
+#include <vector>
 
 namespace residue {
 
@@ -27,6 +28,11 @@ struct DeclaredMetadata {
 };
 
 DeclaredMetadata read_metadata(std::span<const std::uint8_t> bytes);
+
+// A copy of an image file with Xmp.iptcExt.DigitalSourceType set to the IPTC NewsCodes URI of
+// `type` (e.g. "trainedAlgorithmicMedia"), written by exiv2. For the demo and tests.
+std::vector<std::uint8_t> with_digital_source_type(std::span<const std::uint8_t> bytes,
+                                                   const std::string& type);
 
 // True for the IPTC NewsCodes digital source types that declare algorithmic or AI generation
 // (trainedAlgorithmicMedia, compositeWithTrainedAlgorithmicMedia, algorithmicMedia,
