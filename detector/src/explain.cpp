@@ -50,8 +50,10 @@ Result<Explanation> explain_image(const std::string& image, const Model& model_i
       record["contributions"].get<std::map<std::string, double>>();
   const bool ok =
       write_png(residual_picture(centre), dir / "noise_residual.png").ok() &&
-      write_png(spectrum_picture(residual, tile.size, true), dir / "residual_spectrum.png").ok() &&
-      write_png(spectrum_picture(pmap, tile.size, false), dir / "resampling_pmap_spectrum.png").ok() &&
+      write_png(enlarge(spectrum_picture(residual, tile.size, true), 2), dir / "residual_spectrum.png")
+          .ok() &&
+      write_png(enlarge(spectrum_picture(pmap, tile.size, false), 2), dir / "resampling_pmap_spectrum.png")
+          .ok() &&
       write_file_atomically(dir / "contributions.svg", bar_chart_svg(contributions,
                                                                      "Contribution to the margin by family "
                                                                      "(red: towards generated)"))

@@ -67,7 +67,8 @@ Image residual_picture(const Image& image) {
         }
       }
       std::nth_element(v, v + 4, v + 9);
-      out.samples[static_cast<size_t>(r) * image.width + c] = std::fabs(y[static_cast<size_t>(r) * image.width + c] - v[4]);
+      out.samples[static_cast<size_t>(r) * image.width + c] =
+          std::fabs(y[static_cast<size_t>(r) * image.width + c] - v[4]);
     }
   }
   const float top = std::max(1e-3F, percentile(out.samples, 0.99));
@@ -83,7 +84,8 @@ Image spectrum_picture(const std::vector<float>& window, int n, bool mark_grid) 
       // fftshift: frequency 0 to the centre
       const int sv = (v + n / 2) % n;
       const int su = (u + n / 2) % n;
-      logp[static_cast<size_t>(sv) * n + su] = static_cast<float>(std::log10(power[static_cast<size_t>(v) * n + u] + 1e-12));
+      logp[static_cast<size_t>(sv) * n + su] =
+          static_cast<float>(std::log10(power[static_cast<size_t>(v) * n + u] + 1e-12));
     }
   }
   const float lo = percentile(logp, 0.01);
@@ -101,7 +103,8 @@ Image spectrum_picture(const std::vector<float>& window, int n, bool mark_grid) 
         const int cx = a * step;
         const int cy = b * step;
         for (int d = 3; d <= 5; ++d) {  // four short red ticks around the point, leaving it visible
-          for (const auto& [dx, dy] : {std::pair{d, 0}, std::pair{-d, 0}, std::pair{0, d}, std::pair{0, -d}}) {
+          for (const auto& [dx, dy] :
+               {std::pair{d, 0}, std::pair{-d, 0}, std::pair{0, d}, std::pair{0, -d}}) {
             const int x = cx + dx;
             const int y = cy + dy;
             if (x < 0 || y < 0 || x >= n || y >= n) continue;
@@ -111,6 +114,19 @@ Image spectrum_picture(const std::vector<float>& window, int n, bool mark_grid) 
             out.plane(2)[i] = 40;
           }
         }
+      }
+    }
+  }
+  return out;
+}
+
+Image enlarge(const Image& image, int factor) {
+  Image out = Image::zeros(image.width * factor, image.height * factor, image.channels);
+  for (int c = 0; c < image.channels; ++c) {
+    for (int y = 0; y < out.height; ++y) {
+      for (int x = 0; x < out.width; ++x) {
+        out.plane(c)[static_cast<size_t>(y) * out.width + x] =
+            image.plane(c)[static_cast<size_t>(y / factor) * image.width + x / factor];
       }
     }
   }
@@ -139,8 +155,9 @@ std::string bar_chart_svg(const std::map<std::string, double>& values, const std
   const int row = 34;
   const int height = 40 + row * static_cast<int>(values.size());
   std::string s = "<svg xmlns='http://www.w3.org/2000/svg' width='520' height='" + std::to_string(height) +
-                  "' font-family='sans-serif' font-size='13'><text x='10' y='18' font-weight='bold'>" + caption +
-                  "</text><line x1='330' y1='26' x2='330' y2='" + std::to_string(height - 6) + "' stroke='#444'/>";
+                  "' font-family='sans-serif' font-size='13'><text x='10' y='18' font-weight='bold'>" +
+                  caption + "</text><line x1='330' y1='26' x2='330' y2='" + std::to_string(height - 6) +
+                  "' stroke='#444'/>";
   int y = 32;
   char buf[64];
   for (const auto& [k, v] : values) {
@@ -151,8 +168,9 @@ std::string bar_chart_svg(const std::map<std::string, double>& values, const std
     s += std::string("<rect x='") + buf + "' y='" + std::to_string(y + 4) + "' height='20' width='" +
          std::to_string(static_cast<int>(w)) + "' fill='" + (v >= 0 ? "#c0392b" : "#1f5fa8") + "'/>";
     std::snprintf(buf, sizeof buf, "%+.2f", v);
-    s += "<text x='" + std::to_string(v >= 0 ? 335 + static_cast<int>(w) : 325 - static_cast<int>(w)) + "' y='" +
-         std::to_string(y + 19) + "' text-anchor='" + (v >= 0 ? "start" : "end") + "'>" + buf + "</text>";
+    s += "<text x='" + std::to_string(v >= 0 ? 335 + static_cast<int>(w) : 325 - static_cast<int>(w)) +
+         "' y='" + std::to_string(y + 19) + "' text-anchor='" + (v >= 0 ? "start" : "end") + "'>" + buf +
+         "</text>";
     y += row;
   }
   return s + "</svg>";

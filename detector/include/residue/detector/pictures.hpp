@@ -23,6 +23,9 @@ Image residual_picture(const Image& image);
 // frequencies upsampling decoders leave, docs/features.md). Returns an RGB image.
 Image spectrum_picture(const std::vector<float>& window, int n, bool mark_grid);
 
+// Each pixel repeated `factor` times in both directions, for viewing small pictures.
+Image enlarge(const Image& image, int factor);
+
 // "data:image/png;base64,..." of an image (8-bit, clamped).
 std::string png_data_uri(const Image& image);
 Result<bool> write_png(const Image& image, const std::filesystem::path& path);
