@@ -1,7 +1,6 @@
 // `residue scan MODEL PATH...`: one record per input (JSON lines, CSV or a terminal table),
 // resumable (--resume) and shardable (--shard K/N).
 #include <fnmatch.h>
-#include <unistd.h>
 
 #include <cstdio>
 #include <fstream>
@@ -12,6 +11,7 @@
 
 #include "commands.hpp"
 #include "options.hpp"
+#include "progress.hpp"
 #include "residue/detector/record.hpp"
 #include "residue/detector/scan.hpp"
 #include "residue/training/batch.hpp"
@@ -172,7 +172,7 @@ int run_scan(ScanArgs& args) {
     *out << error_record(path, {ErrorCode::kUnreadable, message}).dump() << "\n";
     ++failed;
   }
-  const bool terminal = ::isatty(STDERR_FILENO) != 0;
+  const Progress bar("images");
   std::map<std::string, size_t> bands;
   ordered_parallel<nlohmann::ordered_json>(
       paths.size(), args.jobs,
@@ -209,9 +209,8 @@ int run_scan(ScanArgs& args) {
           out->flush();  // a killed scan loses at most the line being written
           ++written;
         }
-        if (terminal) std::fprintf(stderr, "\r%zu/%zu scanned", i + 1, paths.size());
+        bar.update(i + 1, paths.size());
       });
-  if (terminal) std::fprintf(stderr, "\n");
   if (args.format == "table") {
     *out << "\n" << kAdvisoryNotice << "\n";
   }

@@ -1,7 +1,5 @@
 #include "dataset_options.hpp"
 
-#include <unistd.h>
-
 #include <cstdio>
 #include <cstdlib>
 #include <filesystem>
@@ -9,6 +7,7 @@
 #include <thread>
 
 #include "options.hpp"
+#include "progress.hpp"
 
 namespace residue::cli {
 
@@ -53,21 +52,8 @@ std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const 
                 << " (continuing without a cache)\n";
     }
   }
-  const bool terminal = ::isatty(STDERR_FILENO) != 0;
-  const auto start = std::chrono::steady_clock::now();
-  ProgressFn progress;
-  if (terminal) {
-    progress = [start](size_t done, size_t total) {
-      const double s = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
-      const double rate = s > 0 ? static_cast<double>(done) / s : 0.0;
-      const double eta = rate > 0 ? static_cast<double>(total - done) / rate : 0.0;
-      const int width = 30;
-      const int filled = total > 0 ? static_cast<int>(width * done / total) : width;
-      std::fprintf(stderr, "\r[%-*s] %zu/%zu  %.1f images/s  ETA %.0f s ", width,
-                   std::string(filled, '#').c_str(), done, total, rate, eta);
-      if (done == total) std::fprintf(stderr, "\n");
-    };
-  }
+  const Progress bar("images");
+  const ProgressFn progress = [&bar](size_t done, size_t total) { bar.update(done, total); };
   const int jobs =
       args.jobs > 0 ? args.jobs : static_cast<int>(std::max(1U, std::thread::hardware_concurrency()));
   PreparedDataset out{std::move(*dataset), {}};
