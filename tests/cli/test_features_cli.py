@@ -13,18 +13,13 @@ import numpy as np
 import skimage.data as data
 from PIL import Image
 
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from harness import check, finish, runner  # noqa: E402
+
 residue = sys.argv[1]
-checks = {"passed": 0, "failed": 0}
+run = runner(residue)
 
 
-def check(condition, what):
-    checks["passed" if condition else "failed"] += 1
-    if not condition:
-        print("FAILED:", what)
-
-
-def run(args, stdin=None):
-    return subprocess.run([residue] + args, input=stdin, capture_output=True, text=True, timeout=120)
 
 
 with tempfile.TemporaryDirectory() as tmp:
@@ -85,5 +80,4 @@ with tempfile.TemporaryDirectory() as tmp:
     check(run(["features", "--max-pixels", "1000", os.path.join(folder, "a_coffee.jpg")]).returncode == 3,
           "pixel limit from the command line refuses the image")
 
-print(f"{checks['passed']} passed, {checks['failed']} failed")
-sys.exit(1 if checks["failed"] else 0)
+finish()

@@ -13,28 +13,22 @@ import io
 import json
 import os
 import re
-import shutil
 import subprocess
 import sys
 import tempfile
 
 from PIL import Image, PngImagePlugin
 
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from harness import check, finish, runner  # noqa: E402
+
 residue = sys.argv[1]
+run = runner(residue)
 here = os.path.dirname(os.path.abspath(__file__))
-checks = {"passed": 0, "failed": 0}
 RECORD_FIELDS = ["path", "sha256", "width", "height", "format", "p_generated", "band", "margin", "contributions",
                  "declared", "model", "advisory"]
 
 
-def check(condition, what):
-    checks["passed" if condition else "failed"] += 1
-    if not condition:
-        print("FAILED:", what)
-
-
-def run(args, stdin=None):
-    return subprocess.run([residue] + args, input=stdin, capture_output=True, text=True, timeout=600)
 
 
 def lines(path):
@@ -131,7 +125,7 @@ with tempfile.TemporaryDirectory() as tmp:
     check(only_png.returncode == 0 and len(only_png.stdout.splitlines()) == total - 3, "include/exclude patterns")
     table = run(["scan", model, entries, "--format", "table"])
     check("must never be the sole basis" in table.stdout, "table output ends with the advisory notice")
-    low = lines_from = [json.loads(x) for x in run(["scan", model, tagged, "--prior", "0.01"]).stdout.splitlines()]
+    low = [json.loads(x) for x in run(["scan", model, tagged, "--prior", "0.01"]).stdout.splitlines()]
     check(low[0]["p_generated"] < by_name["photo_5_000.png"]["p_generated"], "a low prior lowers P")
     check(run(["scan", model]).returncode == 2, "missing inputs is a usage error")
 
@@ -166,5 +160,4 @@ with tempfile.TemporaryDirectory() as tmp:
     check(run(["explain", model, os.path.join(bad, "empty.jpg"), "-o", exp_dir]).returncode == 3,
           "explain of a broken file exits 3")
 
-print(f"{checks['passed']} passed, {checks['failed']} failed")
-sys.exit(1 if checks["failed"] else 0)
+finish()

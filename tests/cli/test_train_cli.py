@@ -14,19 +14,14 @@ import subprocess
 import sys
 import tempfile
 
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from harness import check, finish, runner  # noqa: E402
+
 residue = sys.argv[1]
+run = runner(residue)
 here = os.path.dirname(os.path.abspath(__file__))
-checks = {"passed": 0, "failed": 0}
 
 
-def check(condition, what):
-    checks["passed" if condition else "failed"] += 1
-    if not condition:
-        print("FAILED:", what)
-
-
-def run(args):
-    return subprocess.run([residue] + args, capture_output=True, text=True, timeout=600)
 
 
 def make(root, seed, camera_format, generated_format, count):
@@ -99,5 +94,4 @@ with tempfile.TemporaryDirectory() as tmp:
     check(refused.returncode == 1 and "retrain" in refused.stderr, "a model from another extractor is refused")
     check(run(["train", os.path.join(tmp, "nowhere"), "-o", model]).returncode == 1, "missing ROOT fails cleanly")
 
-print(f"{checks['passed']} passed, {checks['failed']} failed")
-sys.exit(1 if checks["failed"] else 0)
+finish()
