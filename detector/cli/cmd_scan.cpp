@@ -2,6 +2,7 @@
 // resumable (--resume) and shardable (--shard K/N).
 #include <fnmatch.h>
 
+#include <algorithm>
 #include <cstdio>
 #include <fstream>
 #include <iostream>
@@ -34,10 +35,8 @@ struct ScanArgs {
 };
 
 bool matches_any(const std::string& path, const std::vector<std::string>& patterns) {
-  for (const auto& p : patterns) {
-    if (fnmatch(p.c_str(), path.c_str(), 0) == 0) return true;
-  }
-  return false;
+  return std::any_of(patterns.begin(), patterns.end(),
+                     [&](const std::string& p) { return fnmatch(p.c_str(), path.c_str(), 0) == 0; });
 }
 
 std::uint64_t fnv1a(const std::string& s) {

@@ -36,7 +36,7 @@ struct Maker {
   }
 
   // Alternates JPEG (quality 88..95) and PNG so the container says nothing about the class.
-  Result<fs::path> save(const Image& image, const fs::path& stem, int index) {
+  static Result<fs::path> save(const Image& image, const fs::path& stem, int index) {
     const bool jpeg = index % 2 == 0;
     auto bytes = encode_image(image, jpeg ? ImageFormat::kJpeg : ImageFormat::kPng, 88 + index % 8);
     if (!bytes) return bytes.error();

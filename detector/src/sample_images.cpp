@@ -58,7 +58,7 @@ Image simulate_decoder_output(const Image& picture, SimulatedDecoder decoder) {
     const float* src = picture.plane(c);
     for (int y = 0; y < h; ++y) {
       for (int x = 0; x < w; ++x) {
-        const size_t i = static_cast<size_t>(2 * y) * picture.width + 2 * x;
+        const size_t i = static_cast<size_t>(2 * y) * picture.width + static_cast<size_t>(2 * x);
         small[static_cast<size_t>(y) * w + x] =
             0.25F * (src[i] + src[i + 1] + src[i + picture.width] + src[i + picture.width + 1]);
       }

@@ -98,7 +98,8 @@ std::vector<std::uint8_t> with_digital_source_type(std::span<const std::uint8_t>
   }
 }
 
-bool declares_generated(const std::string& t) {
+bool declares_generated(const std::string& digital_source_type) {
+  const std::string& t = digital_source_type;
   return t == "trainedAlgorithmicMedia" || t == "compositeWithTrainedAlgorithmicMedia" ||
          t == "algorithmicMedia" || t == "compositeSynthetic";
 }
