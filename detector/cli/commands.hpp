@@ -15,5 +15,6 @@ void add_evaluate_command(CLI::App& app, int& exit_code);
 void add_scan_command(CLI::App& app, int& exit_code);
 void add_report_command(CLI::App& app, int& exit_code);
 void add_explain_command(CLI::App& app, int& exit_code);
+void add_serve_command(CLI::App& app, int& exit_code);
 
 }  // namespace residue::cli

@@ -14,6 +14,7 @@ int main(int argc, char** argv) try {
   residue::cli::add_scan_command(app, exit_code);
   residue::cli::add_report_command(app, exit_code);
   residue::cli::add_explain_command(app, exit_code);
+  residue::cli::add_serve_command(app, exit_code);
   residue::cli::add_audit_command(app, exit_code);
   residue::cli::add_evaluate_command(app, exit_code);
   residue::cli::add_features_command(app, exit_code);

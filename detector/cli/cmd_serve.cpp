@@ -1,0 +1,97 @@
+// `residue serve MODEL --port N`: the moderation-queue HTTP service (docs/service.md).
+#include <pthread.h>
+
+#include <csignal>
+#include <fstream>
+#include <iostream>
+#include <memory>
+#include <thread>
+
+#include "commands.hpp"
+#include "options.hpp"
+#include "residue/detector/record.hpp"
+#include "residue/detector/service.hpp"
+
+namespace residue::cli {
+
+namespace {
+
+struct ServeArgs {
+  std::string model_path;
+  std::string token_file;
+  double max_body_mb = 50;
+  ServiceSettings settings;
+};
+
+int run_serve(ServeArgs& args) {
+  if (!args.token_file.empty()) {
+    std::ifstream in(args.token_file);
+    std::getline(in, args.settings.token);
+    if (args.settings.token.empty()) {
+      std::cerr << "residue serve: no token in " << args.token_file << "\n";
+      return static_cast<int>(ExitCode::kFailure);
+    }
+  }
+  args.settings.max_body_bytes = static_cast<std::size_t>(args.max_body_mb * 1048576.0);
+  // SIGINT and SIGTERM are taken by one thread that stops the server cleanly; SIGHUP reloads.
+  sigset_t stop_signals;
+  sigemptyset(&stop_signals);
+  sigaddset(&stop_signals, SIGINT);
+  sigaddset(&stop_signals, SIGTERM);
+  pthread_sigmask(SIG_BLOCK, &stop_signals, nullptr);
+  Service service(args.settings, args.model_path);
+  if (auto loaded = service.load_model(); !loaded) {
+    std::cerr << "residue serve: " << loaded.error().message << "\n";
+    return static_cast<int>(ExitCode::kFailure);
+  }
+  std::thread stopper([&service, stop_signals] {
+    int signal = 0;
+    sigwait(&stop_signals, &signal);
+    service.stop();
+  });
+  auto result = service.run();
+  if (!result) {
+    std::cerr << "residue serve: " << result.error().message << "\n";
+    pthread_kill(stopper.native_handle(), SIGTERM);
+    stopper.join();
+    return static_cast<int>(ExitCode::kFailure);
+  }
+  pthread_kill(stopper.native_handle(), SIGTERM);  // wakes the stopper if the server ended otherwise
+  stopper.join();
+  return 0;
+}
+
+}  // namespace
+
+void add_serve_command(CLI::App& app, int& exit_code) {
+  auto args = std::make_shared<ServeArgs>();
+  auto* cmd = app.add_subcommand("serve", "Serve scores over HTTP for a moderation queue (docs/service.md)");
+  cmd->add_option("model", args->model_path, "model file")->required();
+  cmd->add_option("--host", args->settings.host, "address to bind")->capture_default_str();
+  cmd->add_option("--port", args->settings.port, "port (0: any free port, printed in the log)")
+      ->check(CLI::Range(0, 65535))
+      ->capture_default_str();
+  cmd->add_option("--workers", args->settings.workers, "scoring threads (default: cores)")
+      ->check(CLI::Range(1, 256));
+  cmd->add_option("--queue", args->settings.queue, "requests allowed to wait for a worker; beyond, 503")
+      ->check(CLI::Range(0, 10000))
+      ->capture_default_str();
+  cmd->add_option("--max-body-mb", args->max_body_mb, "largest request body in MiB (413 above)")
+      ->check(CLI::PositiveNumber)
+      ->capture_default_str();
+  cmd->add_option("--timeout", args->settings.timeout_seconds, "seconds to read or write a request")
+      ->check(CLI::Range(1, 3600))
+      ->capture_default_str();
+  cmd->add_option("--token-file", args->token_file,
+                  "file whose first line is the bearer token clients must send");
+  cmd->add_flag("--allow-unauthenticated", args->settings.allow_unauthenticated,
+                "bind a non-loopback address without a token (only behind an authenticating proxy)");
+  cmd->add_option("--access-log", args->settings.access_log,
+                  "append JSON access-log lines here (default: stderr)");
+  cmd->add_option("--prior", args->settings.scan.prior, "default deployment share of generated images")
+      ->check(CLI::Range(0.0001, 0.9999));
+  add_extract_options(*cmd, args->settings.scan.extract);
+  cmd->callback([args, &exit_code] { exit_code = run_serve(*args); });
+}
+
+}  // namespace residue::cli

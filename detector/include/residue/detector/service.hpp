@@ -1,0 +1,56 @@
+// The moderation-queue service: HTTP over cpp-httplib, a fixed pool of scoring workers behind a
+// bounded waiting queue, atomic model reload. Routes (docs/openapi.yaml):
+//   POST /v1/score          image bytes (or a multipart form with one file) -> the scan record
+//   GET  /v1/health         liveness and readiness
+//   GET  /v1/model          model id, schema, thresholds, provenance
+//   POST /v1/model/reload   load the model file again (also on SIGHUP); a bad file is refused
+//   GET  /metrics           Prometheus text exposition format
+// Threading: requests run on the HTTP library's threads; at most `workers` score at once, at most
+// `queue` more wait, the rest get 503 with Retry-After at once. The model is swapped under a lock
+// as a shared pointer, so requests in flight finish on the model they started with.
+#pragma once
+
+#include <memory>
+#include <string>
+
+#include "residue/detector/scan.hpp"
+
+namespace residue {
+
+struct ServiceSettings {
+  std::string host = "127.0.0.1";
+  int port = 8080;
+  int workers = 0;                         // scoring threads; 0: one per core
+  int queue = 32;                          // requests allowed to wait for a worker
+  std::size_t max_body_bytes = 50u << 20;  // 413 above
+  int timeout_seconds = 30;                // reading and writing a request
+  std::string token;                       // bearer token; empty: no authentication
+  bool allow_unauthenticated = false;      // needed to bind a non-loopback address without a token
+  std::string access_log;                  // file for the JSON access log; empty: stderr
+  ScanSettings scan;                       // limits, prior and threshold overrides
+};
+
+class Service {
+ public:
+  Service(ServiceSettings settings, std::string model_path);
+  ~Service();
+  Service(const Service&) = delete;
+  Service& operator=(const Service&) = delete;
+
+  // Loads (or reloads) the model file; on failure the current model stays.
+  Result<std::string> load_model();
+  // Binds and serves until stop(); returns an error when it cannot start.
+  Result<bool> run();
+  void stop();
+  // The port actually bound (useful with port 0).
+  [[nodiscard]] int port() const;
+
+ private:
+  struct State;
+  std::unique_ptr<State> state_;
+};
+
+// Whether `host` is a loopback address (127.0.0.0/8, ::1, localhost).
+bool is_loopback(const std::string& host);
+
+}  // namespace residue

@@ -1,0 +1,413 @@
+// cpp-httplib adapter for the service (the only file that includes httplib.h).
+#include "residue/detector/service.hpp"
+
+#include <httplib.h>
+
+#include <atomic>
+#include <chrono>
+#include <condition_variable>
+#include <cstdio>
+#include <fstream>
+#include <map>
+#include <mutex>
+#include <thread>
+
+#include "residue/detector/record.hpp"
+
+namespace residue {
+
+namespace {
+
+using Clock = std::chrono::steady_clock;
+using Json = nlohmann::ordered_json;
+
+constexpr double kLatencyBuckets[] = {0.01, 0.025, 0.05, 0.1, 0.15, 0.25, 0.5, 1.0, 2.5, 5.0};
+
+// Counters for /metrics (Prometheus text exposition format 0.0.4).
+class Metrics {
+ public:
+  void observe(const std::string& route, int status, double seconds, const std::string& band) {
+    std::lock_guard lock(mutex_);
+    ++requests_[{route, status}];
+    for (size_t b = 0; b < std::size(kLatencyBuckets); ++b) {
+      if (seconds <= kLatencyBuckets[b]) ++buckets_[b];
+    }
+    ++count_;
+    sum_ += seconds;
+    if (!band.empty()) ++bands_[band];
+  }
+  std::string text(int queue_depth, int in_flight, const std::string& model_id) {
+    std::lock_guard lock(mutex_);
+    std::string t;
+    t += "# HELP residue_requests_total HTTP requests by route and status.\n# TYPE residue_requests_total "
+         "counter\n";
+    for (const auto& [key, n] : requests_) {
+      t += "residue_requests_total{route=\"" + key.first + "\",status=\"" + std::to_string(key.second) +
+           "\"} " + std::to_string(n) + "\n";
+    }
+    t += "# HELP residue_request_duration_seconds Time from request read to response.\n"
+         "# TYPE residue_request_duration_seconds histogram\n";
+    char buf[96];
+    for (size_t b = 0; b < std::size(kLatencyBuckets); ++b) {
+      std::snprintf(buf, sizeof buf, "residue_request_duration_seconds_bucket{le=\"%g\"} %llu\n",
+                    kLatencyBuckets[b], static_cast<unsigned long long>(buckets_[b]));
+      t += buf;
+    }
+    t += "residue_request_duration_seconds_bucket{le=\"+Inf\"} " + std::to_string(count_) + "\n";
+    std::snprintf(buf, sizeof buf, "residue_request_duration_seconds_sum %.6f\n", sum_);
+    t += buf;
+    t += "residue_request_duration_seconds_count " + std::to_string(count_) + "\n";
+    t += "# HELP residue_queue_depth Score requests waiting for a worker.\n# TYPE residue_queue_depth gauge\n"
+         "residue_queue_depth " +
+         std::to_string(queue_depth) + "\n";
+    t += "# HELP residue_in_flight Score requests being scored.\n# TYPE residue_in_flight "
+         "gauge\nresidue_in_flight " +
+         std::to_string(in_flight) + "\n";
+    t += "# HELP residue_scores_total Scored images by band.\n# TYPE residue_scores_total counter\n";
+    for (const char* band : {"likely-camera", "inconclusive", "likely-generated"}) {
+      t += "residue_scores_total{band=\"" + std::string(band) + "\"} " + std::to_string(bands_[band]) + "\n";
+    }
+    t += "# HELP residue_model_info The model being served.\n# TYPE residue_model_info "
+         "gauge\nresidue_model_info{id=\"" +
+         model_id + "\"} 1\n";
+    return t;
+  }
+
+ private:
+  std::mutex mutex_;
+  std::map<std::pair<std::string, int>, unsigned long long> requests_;
+  unsigned long long buckets_[std::size(kLatencyBuckets)] = {};
+  unsigned long long count_ = 0;
+  double sum_ = 0.0;
+  std::map<std::string, unsigned long long> bands_;
+};
+
+Json error_body(const std::string& code, const std::string& message) {
+  return {{"error", {{"code", code}, {"message", message}}}, {"advisory", kAdvisoryNotice}};
+}
+
+int status_for(const std::string& code) {
+  if (code == "empty") return 400;
+  if (code == "too-large" || code == "too-small" || code == "truncated" || code == "not-an-image" ||
+      code == "unsupported" || code == "corrupt") {
+    return 422;
+  }
+  return 500;
+}
+
+std::atomic<bool> g_reload_requested{false};
+extern "C" void on_sighup(int /*signal*/) { g_reload_requested = true; }
+
+}  // namespace
+
+bool is_loopback(const std::string& host) {
+  return host == "localhost" || host == "::1" || host.rfind("127.", 0) == 0;
+}
+
+struct Service::State {
+  ServiceSettings settings;
+  std::string model_path;
+  httplib::Server server;
+  std::mutex model_mutex;
+  std::shared_ptr<const Model> model;
+  std::mutex slots_mutex;
+  std::condition_variable slots_cv;
+  int active = 0;   // scoring now
+  int waiting = 0;  // admitted, waiting for a worker
+  Metrics metrics;
+  std::mutex log_mutex;
+  std::ofstream log_file;
+  std::atomic<unsigned long long> next_id{1};
+  std::atomic<bool> stopping{false};
+  std::thread reload_watcher;
+
+  std::shared_ptr<const Model> current() {
+    std::lock_guard lock(model_mutex);
+    return model;
+  }
+
+  void log(const Json& line) {
+    std::lock_guard lock(log_mutex);
+    if (log_file.is_open()) {
+      log_file << line.dump() << "\n";
+      log_file.flush();
+    } else {
+      std::fprintf(stderr, "%s\n", line.dump().c_str());
+    }
+  }
+
+  // Waits for a scoring slot; false when the waiting queue is full (the caller answers 503).
+  bool acquire() {
+    std::unique_lock lock(slots_mutex);
+    if (active >= settings.workers && waiting >= settings.queue) return false;
+    ++waiting;
+    slots_cv.wait(lock, [&] { return active < settings.workers; });
+    --waiting;
+    ++active;
+    return true;
+  }
+  void release() {
+    {
+      std::lock_guard lock(slots_mutex);
+      --active;
+    }
+    slots_cv.notify_one();
+  }
+
+  bool authorised(const httplib::Request& req) const {
+    if (settings.token.empty()) return true;
+    return req.get_header_value("Authorization") == "Bearer " + settings.token;
+  }
+};
+
+Service::Service(ServiceSettings settings, std::string model_path) : state_(std::make_unique<State>()) {
+  if (settings.workers <= 0)
+    settings.workers = static_cast<int>(std::max(1U, std::thread::hardware_concurrency()));
+  state_->settings = std::move(settings);
+  state_->model_path = std::move(model_path);
+}
+
+Service::~Service() { stop(); }
+
+Result<std::string> Service::load_model() {
+  auto loaded = residue::load_model(state_->model_path);
+  if (!loaded) return loaded.error();
+  auto next = std::make_shared<const Model>(std::move(*loaded));
+  std::lock_guard lock(state_->model_mutex);
+  state_->model = next;
+  return next->id;
+}
+
+int Service::port() const { return state_->settings.port; }
+
+void Service::stop() {
+  if (state_->stopping.exchange(true)) return;
+  state_->server.stop();
+  if (state_->reload_watcher.joinable()) state_->reload_watcher.join();
+}
+
+Result<bool> Service::run() {
+  State& s = *state_;
+  const ServiceSettings& cfg = s.settings;
+  if (!is_loopback(cfg.host) && cfg.token.empty() && !cfg.allow_unauthenticated) {
+    return make_error(ErrorCode::kUnsupported,
+                      "refusing to serve " + cfg.host +
+                          " without authentication: give --token-file, or "
+                          "--allow-unauthenticated if a proxy in front authenticates");
+  }
+  if (!cfg.access_log.empty()) {
+    s.log_file.open(cfg.access_log, std::ios::app);
+    if (!s.log_file)
+      return make_error(ErrorCode::kUnreadable, "cannot write the access log " + cfg.access_log);
+  }
+  if (!s.current()) {
+    auto loaded = load_model();
+    if (!loaded) return loaded.error();
+  }
+  auto& server = s.server;
+  // Enough HTTP threads that our own admission control (workers + queue), not the library's
+  // connection queue, decides who waits and who gets 503.
+  const int http_threads = cfg.workers + cfg.queue + 4;
+  server.new_task_queue = [http_threads] {
+    return new httplib::ThreadPool(static_cast<size_t>(http_threads));
+  };
+  server.set_payload_max_length(cfg.max_body_bytes);
+  server.set_read_timeout(cfg.timeout_seconds, 0);
+  server.set_write_timeout(cfg.timeout_seconds, 0);
+
+  auto reply = [&s](httplib::Response& res, int status, const Json& body) {
+    res.status = status;
+    res.set_content(body.dump(), "application/json");
+  };
+  // Every request gets an id, a log line and a metrics observation.
+  auto handle = [&s, reply](const char* route, bool needs_auth,
+                            std::function<std::string(const httplib::Request&, httplib::Response&)> body) {
+    return [&s, reply, route, needs_auth, body](const httplib::Request& req, httplib::Response& res) {
+      const auto start = Clock::now();
+      const auto id = s.next_id++;
+      res.set_header("X-Request-Id", std::to_string(id));
+      std::string band;
+      try {
+        if (needs_auth && !s.authorised(req)) {
+          res.set_header("WWW-Authenticate", "Bearer");
+          reply(res, 401, error_body("unauthorised", "missing or wrong bearer token"));
+        } else {
+          band = body(req, res);
+        }
+      } catch (const std::exception& e) {
+        reply(res, 500, error_body("internal", e.what()));
+      }
+      const double seconds = std::chrono::duration<double>(Clock::now() - start).count();
+      s.metrics.observe(route, res.status, seconds, band);
+      s.log({{"id", id},
+             {"method", req.method},
+             {"path", req.path},
+             {"status", res.status},
+             {"latency_ms", seconds * 1000.0},
+             {"band", band.empty() ? Json(nullptr) : Json(band)}});
+    };
+  };
+
+  server.Post(
+      "/v1/score",
+      handle(
+          "/v1/score", true,
+          [&s, &cfg, reply](const httplib::Request& req, httplib::Response& res) -> std::string {
+            std::string_view body = req.body;
+            if (req.is_multipart_form_data()) {
+              if (req.files.size() != 1) {
+                reply(res, 400, error_body("bad-request", "a multipart upload must carry exactly one file"));
+                return "";
+              }
+              body = req.files.begin()->second.content;
+            }
+            if (body.empty()) {
+              reply(res, 400, error_body("empty", "the request body is empty: send the image bytes"));
+              return "";
+            }
+            ScanSettings settings = cfg.scan;
+            if (req.has_param("prior")) {
+              try {
+                const double prior = std::stod(req.get_param_value("prior"));
+                if (!(prior > 0.0 && prior < 1.0)) throw std::invalid_argument("range");
+                settings.prior = prior;
+              } catch (const std::exception&) {
+                reply(res, 400, error_body("bad-request", "prior must be a number strictly between 0 and 1"));
+                return "";
+              }
+            }
+            if (!s.acquire()) {
+              res.set_header("Retry-After", "1");
+              reply(res, 503,
+                    error_body("overloaded",
+                               "all scoring workers are busy and the queue is full; retry shortly"));
+              return "";
+            }
+            const auto model = s.current();  // this request finishes on this model even if another is loaded
+            Json record;
+            try {
+              record = scan_bytes(req.get_param_value("name").empty() ? "-" : req.get_param_value("name"),
+                                  std::span(reinterpret_cast<const std::uint8_t*>(body.data()), body.size()),
+                                  *model, settings);
+            } catch (...) {
+              s.release();
+              throw;
+            }
+            s.release();
+            if (record.contains("error")) {
+              reply(res, status_for(record["error"]["code"]), record);
+              return "";
+            }
+            reply(res, 200, record);
+            return record["band"];
+          }));
+  server.Get("/v1/health",
+             handle("/v1/health", false, [&s, reply](const httplib::Request&, httplib::Response& res) {
+               const auto model = s.current();
+               reply(res, model ? 200 : 503,
+                     {{"status", model ? "ok" : "no-model"}, {"model", model ? Json(model->id) : Json()}});
+               return std::string();
+             }));
+  server.Get("/v1/model",
+             handle("/v1/model", true, [&s, reply](const httplib::Request&, httplib::Response& res) {
+               const auto model = s.current();
+               Json j = model_to_json(*model);
+               j.erase("scaler");
+               j.erase("linear");
+               j["advisory"] = kAdvisoryNotice;
+               reply(res, 200, j);
+               return std::string();
+             }));
+  server.Post(
+      "/v1/model/reload",
+      handle("/v1/model/reload", true, [this, reply](const httplib::Request&, httplib::Response& res) {
+        const auto before = state_->current()->id;
+        auto loaded = load_model();
+        if (!loaded) {
+          reply(res, 422, error_body("model-refused", loaded.error().message + "; still serving " + before));
+        } else {
+          reply(res, 200, {{"model", *loaded}, {"previous", before}});
+        }
+        return std::string();
+      }));
+  server.Get("/metrics", handle("/metrics", false, [&s](const httplib::Request&, httplib::Response& res) {
+               int waiting = 0;
+               int active = 0;
+               {
+                 std::lock_guard lock(s.slots_mutex);
+                 waiting = s.waiting;
+                 active = s.active;
+               }
+               res.set_content(s.metrics.text(waiting, active, s.current()->id), "text/plain; version=0.0.4");
+               return std::string();
+             }));
+  for (const char* path : {"/v1/score", "/v1/model/reload"}) {
+    server.Get(path, handle(path, false, [reply](const httplib::Request&, httplib::Response& res) {
+                 res.set_header("Allow", "POST");
+                 reply(res, 405, error_body("method-not-allowed", "use POST"));
+                 return std::string();
+               }));
+  }
+  for (const char* path : {"/v1/health", "/v1/model", "/metrics"}) {
+    server.Post(path, handle(path, false, [reply](const httplib::Request&, httplib::Response& res) {
+                  res.set_header("Allow", "GET");
+                  reply(res, 405, error_body("method-not-allowed", "use GET"));
+                  return std::string();
+                }));
+  }
+  server.set_error_handler([reply](const httplib::Request& req, httplib::Response& res) {
+    if (res.status == 413 && req.get_header_value("Content-Type") == "application/x-www-form-urlencoded") {
+      // The HTTP library caps form-encoded bodies at 8 KiB whatever the limit: curl's --data-binary
+      // sends that type unless told otherwise.
+      reply(res, 413,
+            error_body("too-large",
+                       "a form-encoded body is limited to 8 KiB: send the image with "
+                       "Content-Type: application/octet-stream (or image/jpeg, image/png)"));
+    } else if (res.status == 413) {
+      reply(res, 413, error_body("too-large", "the request body is over the size limit"));
+    } else if (res.status == 400) {
+      reply(res, 400,
+            error_body("bad-request", "the request could not be read (no body, or no Content-Length)"));
+    } else if (res.status == 404) {
+      reply(res, 404, error_body("not-found", "no such route; see docs/openapi.yaml"));
+    } else if (res.body.empty()) {
+      reply(res, res.status, error_body("http-" + std::to_string(res.status), "request refused"));
+    }
+  });
+
+  std::signal(SIGHUP, on_sighup);
+  s.reload_watcher = std::thread([this] {
+    while (!state_->stopping) {
+      if (g_reload_requested.exchange(false)) {
+        auto loaded = load_model();
+        state_->log({{"event", "reload"},
+                     {"trigger", "SIGHUP"},
+                     {"ok", loaded.ok()},
+                     {"model", loaded ? Json(*loaded) : Json(loaded.error().message)}});
+      }
+      std::this_thread::sleep_for(std::chrono::milliseconds(100));
+    }
+  });
+
+  int port = cfg.port;
+  if (port == 0) {
+    port = server.bind_to_any_port(cfg.host);
+  } else if (!server.bind_to_port(cfg.host, port)) {
+    port = -1;
+  }
+  if (port < 0) {
+    stop();
+    return make_error(ErrorCode::kUnreadable, "cannot bind " + cfg.host + ":" + std::to_string(cfg.port));
+  }
+  s.settings.port = port;
+  s.log({{"event", "listening"},
+         {"host", cfg.host},
+         {"port", port},
+         {"model", s.current()->id},
+         {"workers", cfg.workers},
+         {"queue", cfg.queue}});
+  server.listen_after_bind();
+  return true;
+}
+
+}  // namespace residue

@@ -1,0 +1,239 @@
+"""End-to-end test of `residue serve`: a real server on loopback, started by this test.
+
+Covers every route's success and error cases, 200 concurrent requests compared with `residue scan`,
+a model reload under load (and by SIGHUP), and overload with a tiny queue. Images are made by
+tests/cli/make_labelled.py (scikit-image crops and SIMULATED upsampling output). Traffic goes
+only to 127.0.0.1, bounded in count and time.
+
+Usage: test_service.py PATH/TO/residue
+"""
+import json
+import os
+import signal
+import subprocess
+import sys
+import tempfile
+import threading
+import time
+import urllib.error
+import urllib.request
+import zlib
+
+import numpy as np
+from PIL import Image
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from harness import check, finish, runner  # noqa: E402
+
+residue = sys.argv[1]
+run = runner(residue)
+here = os.path.dirname(os.path.abspath(__file__))
+
+
+def start(model, *extra):
+    proc = subprocess.Popen([residue, "serve", model, "--port", "0", *extra], stderr=subprocess.PIPE, text=True)
+    line = proc.stderr.readline()
+    port = json.loads(line)["port"]
+    threading.Thread(target=lambda: [None for _ in proc.stderr], daemon=True).start()  # drain the access log
+    return proc, f"http://127.0.0.1:{port}"
+
+
+def request(url, body=None, method=None, headers=None, timeout=30):
+    req = urllib.request.Request(url, data=body, method=method, headers=headers or {})
+    try:
+        with urllib.request.urlopen(req, timeout=timeout) as r:
+            return r.status, dict(r.headers), r.read()
+    except urllib.error.HTTPError as e:
+        return e.code, dict(e.headers), e.read()
+
+
+def score(base, data, headers=None, query=""):
+    h = {"Content-Type": "application/octet-stream"}
+    h.update(headers or {})
+    status, hdrs, body = request(base + "/v1/score" + query, data, "POST", h)
+    return status, hdrs, json.loads(body) if body else None
+
+
+def stop(proc):
+    proc.send_signal(signal.SIGTERM)
+    try:
+        proc.wait(timeout=20)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+
+
+with tempfile.TemporaryDirectory() as tmp:
+    for name, seed in (("train_a", 1), ("train_b", 3), ("images", 5)):
+        subprocess.run(["/usr/bin/python3", os.path.join(here, "make_labelled.py"), os.path.join(tmp, name), str(seed),
+                        "jpeg", "png", "16"], check=True)
+    model_a, model_b, served = (os.path.join(tmp, n) for n in ("a.json", "b.json", "served.json"))
+    check(run(["train", os.path.join(tmp, "train_a"), "-o", model_a, "--no-cache"]).returncode == 0, "train model a")
+    check(run(["train", os.path.join(tmp, "train_b"), "-o", model_b, "--no-cache", "--folds", "4"]).returncode == 0,
+          "train model b")
+    id_a, id_b = (json.load(open(m))["id"] for m in (model_a, model_b))
+    check(id_a != id_b, "two different models")
+    with open(model_a) as f, open(served, "w") as g:
+        g.write(f.read())
+    images = sorted(os.path.join(d, f) for d, _, fs in os.walk(os.path.join(tmp, "images")) for f in fs)
+    scan = {json.loads(x)["path"]: json.loads(x) for x in run(["scan", served] + images).stdout.splitlines()}
+
+    proc, base = start(served, "--workers", "2")
+    try:
+        status, _, body = request(base + "/v1/health")
+        check(status == 200 and json.loads(body)["model"] == id_a, "health is ready with the model")
+        status, _, body = request(base + "/v1/model")
+        m = json.loads(body)
+        check(status == 200 and m["id"] == id_a and "thresholds" in m and "provenance" in m, "model route")
+        with open(images[0], "rb") as f:
+            data = f.read()
+        status, _, r = score(base, data)
+        check(status == 200 and abs(r["p_generated"] - scan[images[0]]["p_generated"]) < 1e-12
+              and r["band"] == scan[images[0]]["band"] and r["sha256"] == scan[images[0]]["sha256"],
+              "score equals residue scan for the same file")
+        check("must never be the sole basis" in r["advisory"], "advisory in the response")
+        boundary = "residue-test-boundary"
+        form = (f"--{boundary}\r\nContent-Disposition: form-data; name=\"file\"; filename=\"x\"\r\n"
+                f"Content-Type: application/octet-stream\r\n\r\n").encode() + data + f"\r\n--{boundary}--\r\n".encode()
+        status, _, body = request(base + "/v1/score", form, "POST",
+                                  {"Content-Type": f"multipart/form-data; boundary={boundary}"})
+        check(status == 200 and json.loads(body)["p_generated"] == r["p_generated"], "multipart upload")
+        status, _, low = score(base, data, query="?prior=0.01")
+        check(status == 200 and low["p_generated"] < r["p_generated"], "prior query option")
+        check(score(base, data, query="?prior=2")[0] == 400, "bad prior is a 400")
+        check(score(base, b"")[0] == 400, "empty body is a 400")
+        status, _, e = score(base, b"garbage bytes that are no image")
+        check(status == 422 and e["error"]["code"] == "not-an-image", "garbage is a 422 not-an-image")
+        jpeg = next(p for p in images if p.endswith(".jpg"))
+        with open(jpeg, "rb") as f:
+            cut = f.read()
+        status, _, e = score(base, cut[: len(cut) // 2])
+        check(status == 422 and e["error"]["code"] == "truncated", "truncated JPEG is a 422 truncated")
+        chunk = lambda kind, body: (len(body).to_bytes(4, "big") + kind + body
+                                    + zlib.crc32(kind + body).to_bytes(4, "big"))
+        bomb = (b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", (100000).to_bytes(4, "big") * 2 + bytes([8, 2, 0, 0, 0]))
+                + chunk(b"IEND", b""))
+        status, _, e = score(base, bomb)
+        check(status == 422 and e["error"]["code"] == "too-large", "bomb-sized PNG header is a 422 too-large")
+        check(request(base + "/v1/score")[0] == 405, "GET on the score route is a 405")
+        check(request(base + "/v1/health", b"x", "POST")[0] == 405, "POST on health is a 405")
+        status, _, body = request(base + "/nowhere")
+        check(status == 404 and json.loads(body)["error"]["code"] == "not-found", "unknown route is a JSON 404")
+
+        # 200 concurrent requests from 8 threads: all answered, scores identical to scan.
+        results, lock = [], threading.Lock()
+
+        def client(k):
+            for i in range(25):
+                path = images[(k * 25 + i) % len(images)]
+                with open(path, "rb") as f:
+                    status, _, r = score(base, f.read())
+                with lock:
+                    results.append((path, status, r))
+        threads = [threading.Thread(target=client, args=(k,)) for k in range(8)]
+        [t.start() for t in threads]
+        [t.join() for t in threads]
+        check(len(results) == 200 and all(s == 200 for _, s, _ in results), "200 concurrent requests all answered 200")
+        check(all(abs(r["p_generated"] - scan[p]["p_generated"]) < 1e-12 for p, _, r in results),
+              "concurrent scores identical to residue scan")
+        status, _, body = request(base + "/metrics")
+        text = body.decode()
+        check('residue_requests_total{route="/v1/score",status="200"}' in text, "metrics count requests by status")
+        check("residue_request_duration_seconds_bucket" in text and "residue_queue_depth" in text
+              and 'residue_scores_total{band="likely-camera"}' in text, "metrics: latency histogram, queue, bands")
+
+        # Reload under load: clients keep scoring while the model file is swapped and reloaded.
+        flowing, seen, failures = True, [], []
+
+        def steady(k):
+            while flowing:
+                with open(images[k], "rb") as f:
+                    status, _, r = score(base, f.read())
+                with lock:
+                    (seen.append((k, r["model"])) if status == 200 else failures.append(status))
+        threads = [threading.Thread(target=steady, args=(k,)) for k in range(4)]
+        [t.start() for t in threads]
+        time.sleep(0.5)
+        with open(model_b) as f, open(served + ".tmp", "w") as g:
+            g.write(f.read())
+        os.replace(served + ".tmp", served)
+        status, _, body = request(base + "/v1/model/reload", b"", "POST")
+        check(status == 200 and json.loads(body)["model"] == id_b, "reload answers with the new model id")
+        with lock:
+            count_at_reload = len(seen)
+        time.sleep(0.5)
+        flowing = False
+        [t.join() for t in threads]
+        check(not failures, f"no failed request during the reload: {failures[:5]}")
+        for k in range(4):
+            ids = [m for kk, m in seen if kk == k]
+            switches = sum(1 for x, y in zip(ids, ids[1:]) if x != y)
+            check(switches == 1 and ids[0] == id_a and ids[-1] == id_b, f"client {k} switched model exactly once")
+        check(len(seen) > count_at_reload, "requests kept flowing after the reload")
+
+        # A damaged model file is refused and the served model stays.
+        with open(served, "w") as f:
+            f.write("{ not a model")
+        status, _, body = request(base + "/v1/model/reload", b"", "POST")
+        check(status == 422 and json.loads(body)["error"]["code"] == "model-refused", "a bad model file is refused")
+        check(json.loads(request(base + "/v1/health")[2])["model"] == id_b, "the previous model stays")
+        # SIGHUP reloads too.
+        with open(model_a) as f, open(served, "w") as g:
+            g.write(f.read())
+        proc.send_signal(signal.SIGHUP)
+        for _ in range(50):
+            if json.loads(request(base + "/v1/health")[2])["model"] == id_a:
+                break
+            time.sleep(0.1)
+        check(json.loads(request(base + "/v1/health")[2])["model"] == id_a, "SIGHUP reloads the model file")
+    finally:
+        stop(proc)
+    check(proc.returncode == 0, f"SIGTERM stops the server cleanly, exit {proc.returncode}")
+
+    # Authentication and limits.
+    token_file = os.path.join(tmp, "token")
+    with open(token_file, "w") as f:
+        f.write("s3cret-token\n")
+    proc, base = start(served, "--token-file", token_file, "--max-body-mb", "0.01")
+    try:
+        check(score(base, b"x" * 100)[0] == 401, "missing token is a 401")
+        check(score(base, b"x" * 100, {"Authorization": "Bearer wrong"})[0] == 401, "wrong token is a 401")
+        check(request(base + "/v1/health")[0] == 200, "health needs no token (for load balancers)")
+        status, _, e = score(base, b"\0" * 20000, {"Authorization": "Bearer s3cret-token"})
+        check(status == 413 and e["error"]["code"] == "too-large", "oversized body is a 413")
+        status, _, r2 = score(base, open(images[1], "rb").read()[:9000], {"Authorization": "Bearer s3cret-token"})
+        check(status in (200, 422), "a body under the limit with the right token is scored or refused cleanly")
+    finally:
+        stop(proc)
+    refused = subprocess.run([residue, "serve", served, "--host", "0.0.0.0", "--port", "0"], capture_output=True,
+                             text=True, timeout=60)
+    check(refused.returncode == 1 and "without authentication" in refused.stderr,
+          "a non-loopback address without a token is refused")
+
+    # Overload: one worker, a queue of one; excess requests get 503 quickly; the service recovers.
+    big = os.path.join(tmp, "big.png")
+    rng = np.random.RandomState(1)
+    Image.fromarray(rng.randint(0, 255, (1536, 1536, 3), dtype=np.uint8)).save(big)
+    with open(big, "rb") as f:
+        big_data = f.read()
+    proc, base = start(served, "--workers", "1", "--queue", "1")
+    try:
+        answers = []
+
+        def burst():
+            t0 = time.time()
+            status, hdrs, _ = score(base, big_data)
+            with lock:
+                answers.append((status, time.time() - t0, hdrs.get("Retry-After")))
+        threads = [threading.Thread(target=burst) for _ in range(12)]
+        [t.start() for t in threads]
+        [t.join() for t in threads]
+        busy = [a for a in answers if a[0] == 503]
+        check(len(answers) == 12 and all(a[0] in (200, 503) for a in answers), "every request answered 200 or 503")
+        check(len(busy) >= 5, f"excess requests get 503 ({len(busy)} of 12)")
+        check(all(a[2] == "1" for a in busy), "503 carries Retry-After")
+        check(all(a[1] < 1.0 for a in busy), f"503 comes quickly: {[round(a[1], 2) for a in busy]}")
+        check(score(base, data)[0] == 200, "the service recovers after the burst")
+    finally:
+        stop(proc)
+
+finish()
