@@ -119,6 +119,10 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
   auto prepared = prepare_dataset(*dataset, {}, cache ? cache->get() : nullptr, jobs);
   const AuditReport audit = audit_dataset(prepared.items, prepared.failed.size());
   log << audit_to_text(audit);
+  if (audit.duplicate_pairs_across_classes > 0) {
+    log << "   (Expected here: the demo cuts camera and simulated pictures from the same few photographs, so\n"
+           "    some crops overlap across the classes. In real data, check such pairs.)\n";
+  }
   auto trained = train_model(prepared.items, TrainSettings{}, audit);
   if (!trained) return trained.error();
   DemoPaths paths{out / "model.json", out / "scan.jsonl", out / "report.html", out / "explain",
