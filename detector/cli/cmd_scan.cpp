@@ -15,6 +15,7 @@
 #include "progress.hpp"
 #include "residue/detector/record.hpp"
 #include "residue/detector/scan.hpp"
+#include "residue/features/fingerprint.hpp"
 #include "residue/training/batch.hpp"
 
 namespace residue::cli {
@@ -37,12 +38,6 @@ struct ScanArgs {
 bool matches_any(const std::string& path, const std::vector<std::string>& patterns) {
   return std::any_of(patterns.begin(), patterns.end(),
                      [&](const std::string& p) { return fnmatch(p.c_str(), path.c_str(), 0) == 0; });
-}
-
-std::uint64_t fnv1a(const std::string& s) {
-  std::uint64_t h = 1469598103934665603ULL;
-  for (unsigned char c : s) h = (h ^ c) * 1099511628211ULL;
-  return h;
 }
 
 // What an earlier (possibly interrupted) output already holds: path and content hash of records
@@ -136,7 +131,7 @@ int run_scan(ScanArgs& args) {
   for (const auto& p : expanded.files) {
     if (!args.include.empty() && !matches_any(p, args.include)) continue;
     if (matches_any(p, args.exclude)) continue;
-    if (shard_n > 1 && static_cast<int>(fnv1a(p) % static_cast<std::uint64_t>(shard_n)) != shard_k - 1)
+    if (shard_n > 1 && static_cast<int>(fnv1a_64(p) % static_cast<std::uint64_t>(shard_n)) != shard_k - 1)
       continue;
     paths.push_back(p);
   }

@@ -6,16 +6,16 @@
 
 #include "residue/detector/pictures.hpp"
 #include "residue/detector/record.hpp"
+#include "residue/detector/sample_images.hpp"
 #include "residue/features/decode.hpp"
 #include "residue/features/families.hpp"
 #include "residue/training/atomic_file.hpp"
 
 namespace residue {
 
-Result<Explanation> explain_image(const std::string& image, const Model& model_in,
-                                  const ScanSettings& settings, const std::filesystem::path& output_dir) {
-  const Model* model = &model_in;
-  const auto record = scan_file(image, *model, settings);
+Result<Explanation> explain_image(const std::string& image, const Model& model, const ScanSettings& settings,
+                                  const std::filesystem::path& output_dir) {
+  const auto record = scan_file(image, model, settings);
   if (record.contains("error")) {
     return make_error(ErrorCode::kCorrupt, record["error"]["message"].get<std::string>());
   }
@@ -30,22 +30,11 @@ Result<Explanation> explain_image(const std::string& image, const Model& model_i
   const Tile& tile = windows->tiles[windows->tiles.size() / 2];
   const auto luma = tile.luma();
   const auto residual = denoise_residual(luma.data(), tile.size);
-  auto pmap = kirchner_pmap(luma.data(), tile.size);
-  double mean = 0;
-  for (float v : pmap) mean += v;
-  for (float& v : pmap) v -= static_cast<float>(mean / static_cast<double>(pmap.size()));
+  const auto pmap = centred_kirchner_pmap(luma.data(), tile.size);
   // The residual of a very large image is cropped to its centre so the picture stays viewable.
   const Image& full = *preview;
   const int side = std::min({full.width, full.height, 1024});
-  Image centre = Image::zeros(side, side, full.channels);
-  for (int c = 0; c < full.channels; ++c) {
-    for (int y = 0; y < side; ++y) {
-      for (int x = 0; x < side; ++x) {
-        centre.plane(c)[static_cast<size_t>(y) * side + x] = full.plane(
-            c)[static_cast<size_t>((full.height - side) / 2 + y) * full.width + (full.width - side) / 2 + x];
-      }
-    }
-  }
+  const Image centre = crop(full, (full.width - side) / 2, (full.height - side) / 2, side, side);
   const std::map<std::string, double> contributions =
       record["contributions"].get<std::map<std::string, double>>();
   const bool ok =
@@ -61,10 +50,9 @@ Result<Explanation> explain_image(const std::string& image, const Model& model_i
   // Strongest single values: |w z| largest.
   std::vector<std::pair<double, std::string>> evidence;
   const auto features = extract_tiles(windows->tiles);
-  for (size_t k = 0; k < model->features.size(); ++k) {
-    const double z =
-        (features.values[model->feature_index[k]] - model->scaler.mean[k]) / model->scaler.scale[k];
-    evidence.emplace_back(model->linear.weights[k] * z, model->features[k]);
+  for (size_t k = 0; k < model.features.size(); ++k) {
+    const double z = (features.values[model.feature_index[k]] - model.scaler.mean[k]) / model.scaler.scale[k];
+    evidence.emplace_back(model.linear.weights[k] * z, model.features[k]);
   }
   std::sort(evidence.begin(), evidence.end(),
             [](const auto& a, const auto& b) { return std::fabs(a.first) > std::fabs(b.first); });
@@ -82,7 +70,7 @@ Result<Explanation> explain_image(const std::string& image, const Model& model_i
   char line[256];
   std::snprintf(line, sizeof line, "P(generated) = %.3f, band %s, margin %+.3f (model %s)\n",
                 record["p_generated"].get<double>(), record["band"].get<std::string>().c_str(),
-                record["margin"].get<double>(), model->id.c_str());
+                record["margin"].get<double>(), model.id.c_str());
   text += line;
   text += "Strongest evidence (weight x standardised value):\n";
   for (size_t i = 0; i < std::min<size_t>(8, evidence.size()); ++i) {

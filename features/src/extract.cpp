@@ -4,6 +4,7 @@
 #include <cstdio>
 
 #include "residue/features/families.hpp"
+#include "residue/features/fingerprint.hpp"
 
 namespace residue {
 
@@ -51,13 +52,14 @@ const Schema& schema() {
         }
       }
     }
-    std::uint64_t h = 1469598103934665603ULL;  // FNV-1a 64
-    auto mix = [&](std::string_view text) {
-      for (unsigned char ch : text) h = (h ^ ch) * 1099511628211ULL;
-      h = (h ^ 0xFF) * 1099511628211ULL;
-    };
-    mix(kExtractorVersion);
-    for (const auto& n : out.names) mix(n);
+    // Each name is followed by a 0xFF separator so that ("ab", "c") and ("a", "bc") differ.
+    std::string text(kExtractorVersion);
+    text.push_back('\xFF');
+    for (const auto& n : out.names) {
+      text += n;
+      text.push_back('\xFF');
+    }
+    const std::uint64_t h = fnv1a_64(text);
     char buf[17];
     std::snprintf(buf, sizeof buf, "%016llx", static_cast<unsigned long long>(h));
     out.id = buf;

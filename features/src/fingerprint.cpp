@@ -46,6 +46,12 @@ std::uint64_t difference_hash(const Image& image) {
   return hash;
 }
 
+std::uint64_t fnv1a_64(std::string_view text) {
+  std::uint64_t h = 1469598103934665603ULL;                     // offset basis
+  for (unsigned char c : text) h = (h ^ c) * 1099511628211ULL;  // FNV prime
+  return h;
+}
+
 int hamming_distance(std::uint64_t a, std::uint64_t b) { return std::popcount(a ^ b); }
 
 }  // namespace residue

@@ -31,6 +31,15 @@ std::vector<float> kirchner_pmap(const float* luma, int n) {
   return p;
 }
 
+std::vector<float> centred_kirchner_pmap(const float* luma, int n) {
+  auto p = kirchner_pmap(luma, n);
+  double mean = 0.0;
+  for (float v : p) mean += v;
+  mean /= static_cast<double>(p.size());
+  for (float& v : p) v -= static_cast<float>(mean);
+  return p;
+}
+
 SpectralPeak projected_peak(const std::vector<double>& power, int n, double min_frequency) {
   const int k_min = std::max(1, static_cast<int>(std::ceil(min_frequency * n)));
   std::vector<double> profile;
@@ -57,11 +66,7 @@ const std::vector<std::string>& resampling_names() {
 
 std::vector<double> resampling_window(const WindowInput& window) {
   const int n = window.tile.size;
-  auto p = kirchner_pmap(window.luma.data(), n);
-  double mean = 0.0;
-  for (float v : p) mean += v;
-  mean /= static_cast<double>(p.size());
-  for (float& v : p) v -= static_cast<float>(mean);
+  const auto p = centred_kirchner_pmap(window.luma.data(), n);
   const auto power = hann_power_spectrum(p.data(), n);
   const SpectralPeak peak = projected_peak(power, n, kMinFrequency);
   // JPEG's 8 x 8 blocks and 8x upsampling leave p-map periodicity at multiples of 1/8.

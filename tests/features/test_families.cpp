@@ -140,11 +140,7 @@ TEST_CASE("p-map spectrum peaks where Kirchner's relation predicts for upscaling
     for (int y = 0; y < n; ++y) {
       for (int x = 0; x < n; ++x) window[y * n + x] = image[static_cast<size_t>(y0 + y) * width + x0 + x];
     }
-    auto p = kirchner_pmap(window.data(), n);
-    double mean = 0;
-    for (float v : p) mean += v;
-    mean /= static_cast<double>(p.size());
-    for (float& v : p) v -= static_cast<float>(mean);
+    const auto p = centred_kirchner_pmap(window.data(), n);
     return projected_peak(hann_power_spectrum(p.data(), n), n, 0.05);
   };
   const auto original = coffee_crop(256);

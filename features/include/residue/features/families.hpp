@@ -59,6 +59,8 @@ GridPeaks grid_peaks(const std::vector<double>& power, int n, int period);
 
 // Kirchner (2008) p-map of an N x N luma window (replicated borders).
 std::vector<float> kirchner_pmap(const float* luma, int n);
+// The same minus its mean: the input of the p-map spectrum.
+std::vector<float> centred_kirchner_pmap(const float* luma, int n);
 
 // Strongest periodic component of a p-map spectrum: the spectrum projected onto each axis (mean
 // over the other), both axes summed, searched over [min_frequency, 0.5] cycles/pixel.
