@@ -1,5 +1,7 @@
 // `residue train ROOT -o MODEL` and `residue audit ROOT`.
+#include <algorithm>
 #include <cstdio>
+#include <optional>
 #include <iostream>
 #include <memory>
 
@@ -19,7 +21,9 @@ struct TrainArgs {
   TrainSettings settings;
   std::string group_by = "duplicates";
   std::vector<std::string> only;
-  bool c_grid_given = false;
+  std::string from;  // parent model whose settings are reused
+  bool keep_c = false;
+  std::vector<std::string> given;  // options set on the command line (they win over --from)
 };
 
 struct AuditArgs {
@@ -46,7 +50,69 @@ int run_audit(const AuditArgs& args) {
   return args.strict && !audit.warnings.empty() ? static_cast<int>(ExitCode::kFailure) : 0;
 }
 
+bool given(const TrainArgs& args, const char* option) {
+  return std::find(args.given.begin(), args.given.end(), option) != args.given.end();
+}
+
+// The command line's settings, or the parent's where an option was not given.
+std::optional<TrainSettings> resolve_settings(const TrainArgs& args, const std::optional<Model>& parent) {
+  TrainSettings s = args.settings;
+  s.group_by = parse_group_by(args.group_by);
+  s.feature_prefixes = args.only;
+  if (given(args, "--c-grid")) s.large_set = 0;  // the user's grid is used as given
+  if (!parent) return s;
+  TrainSettings p = settings_from_model(*parent);
+  if (given(args, "--folds")) p.folds = s.folds;
+  if (given(args, "--c-grid")) {
+    p.c_grid = s.c_grid;
+    p.large_set = 0;
+  }
+  if (given(args, "--target-fpr")) p.target_fpr = s.target_fpr;
+  if (given(args, "--generated-miss")) p.generated_miss = s.generated_miss;
+  if (given(args, "--group-by")) p.group_by = s.group_by;
+  if (given(args, "--only")) p.feature_prefixes = s.feature_prefixes;
+  if (args.keep_c) {
+    const auto cv = parent->provenance.value("cross_validation", nlohmann::json::object());
+    if (!cv.contains("chosen_c")) {
+      std::cerr << "residue train: --keep-c: " << args.from << " does not record its chosen C\n";
+      return std::nullopt;
+    }
+    p.c_grid = {cv["chosen_c"].get<double>()};
+    p.large_set = 0;
+  }
+  std::cout << "Settings from " << parent->id << " (" << args.from
+            << "), options given here win: " << settings_to_json(p).dump() << "\n\n";
+  return p;
+}
+
+void print_lineage(const nlohmann::ordered_json& lineage) {
+  std::cout << "Lineage: parent " << lineage["parent"].get<std::string>();
+  if (lineage["added"].is_null()) {
+    std::cout << "; " << lineage["note"].get<std::string>() << "\n\n";
+    return;
+  }
+  const auto& added = lineage["added"];
+  std::cout << "; added " << added["images"] << " images (" << added["camera"] << " camera, " << added["generated"]
+            << " generated";
+  for (const auto& [name, n] : added["per_generator"].items()) std::cout << "; " << name << ": " << n;
+  std::cout << "), removed " << lineage["removed"]["images"] << ".";
+  if (!added["new_generators"].empty()) std::cout << " Generators new to the model: " << added["new_generators"].dump();
+  std::cout << "\n\n";
+}
+
 int run_train(TrainArgs& args) {
+  std::optional<Model> parent;
+  if (!args.from.empty()) {
+    auto loaded = load_model(args.from);
+    if (!loaded) {
+      std::cerr << "residue train: --from: " << loaded.error().message << "\n";
+      return static_cast<int>(ExitCode::kFailure);
+    }
+    parent = std::move(*loaded);
+  } else if (args.keep_c) {
+    std::cerr << "residue train: --keep-c needs --from OLD\n";
+    return static_cast<int>(ExitCode::kUsage);
+  }
   auto prepared = prepare_from_args(args.data, "train");
   if (!prepared) return static_cast<int>(ExitCode::kFailure);
   const AuditReport audit = audit_dataset(prepared->report.items, prepared->report.failed.size());
@@ -55,16 +121,24 @@ int run_train(TrainArgs& args) {
     std::cerr << "residue train: refused because of the audit warnings above (--strict)\n";
     return static_cast<int>(ExitCode::kFailure);
   }
-  args.settings.group_by = parse_group_by(args.group_by);
-  args.settings.feature_prefixes = args.only;
-  if (args.c_grid_given) args.settings.large_set = 0;  // the user's grid is used as given
-  auto outcome = train_model(prepared->report.items, args.settings, audit);
+  auto settings = resolve_settings(args, parent);
+  if (!settings) return static_cast<int>(ExitCode::kFailure);
+  auto outcome = train_model(prepared->report.items, *settings, audit);
   if (!outcome) {
     std::cerr << "residue train: " << outcome.error().message << "\n";
     return static_cast<int>(ExitCode::kFailure);
   }
   const auto& cv = outcome->cv;
-  const Model& model = outcome->model;
+  Model& model = outcome->model;
+  model.provenance["preparation"] = {{"extracted", prepared->report.extracted},
+                                     {"from_cache", prepared->report.cached},
+                                     {"seconds", prepared->report.seconds},
+                                     {"seconds_saved_by_cache", prepared->seconds_saved()}};
+  if (parent) {
+    model.provenance["lineage"] = lineage_of(*parent, prepared->report.items);
+    print_lineage(model.provenance["lineage"]);
+  }
+  stamp_model_id(model);
   std::cout << "Grouped " << model.provenance["cross_validation"]["folds"].get<int>()
             << "-fold cross-validation (" << cv.groups << " groups by " << args.group_by
             << "; a group never straddles a split)\n";
@@ -119,9 +193,16 @@ void add_train_command(CLI::App& app, int& exit_code) {
       ->capture_default_str();
   cmd->add_option("--only", args->only,
                   "use only features whose names start with these prefixes (e.g. spectral.)");
+  cmd->add_option("--from", args->from,
+                  "retrain from this model: reuse its settings (options given here win) and record it as "
+                  "the parent, with what was added");
+  cmd->add_flag("--keep-c", args->keep_c,
+                "with --from: keep the parent's chosen C instead of searching the grid again (faster)");
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");
   cmd->callback([args, cmd, &exit_code] {
-    args->c_grid_given = cmd->count("--c-grid") > 0;
+    for (const char* option : {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by", "--only"}) {
+      if (cmd->count(option) > 0) args->given.emplace_back(option);
+    }
     exit_code = run_train(*args);
   });
 }

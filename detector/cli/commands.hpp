@@ -12,6 +12,8 @@ void add_demo_command(CLI::App& app, int& exit_code);
 void add_train_command(CLI::App& app, int& exit_code);
 void add_audit_command(CLI::App& app, int& exit_code);
 void add_evaluate_command(CLI::App& app, int& exit_code);
+void add_compare_command(CLI::App& app, int& exit_code);
+void add_drift_command(CLI::App& app, int& exit_code);
 void add_scan_command(CLI::App& app, int& exit_code);
 void add_report_command(CLI::App& app, int& exit_code);
 void add_explain_command(CLI::App& app, int& exit_code);

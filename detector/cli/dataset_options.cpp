@@ -56,11 +56,14 @@ std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const 
   const ProgressFn progress = [&bar](size_t done, size_t total) { bar.update(done, total); };
   const int jobs =
       args.jobs > 0 ? args.jobs : static_cast<int>(std::max(1U, std::thread::hardware_concurrency()));
-  PreparedDataset out{std::move(*dataset), {}};
+  PreparedDataset out{std::move(*dataset), {}, jobs};
   out.report = prepare_dataset(out.dataset, args.extract, cache.get(), jobs, progress);
   std::cerr << "residue " << command << ": " << out.report.items.size() << " images ready ("
             << out.report.extracted << " extracted, " << out.report.cached << " from the feature cache) in "
             << static_cast<int>(out.report.seconds * 10) / 10.0 << " s";
+  if (out.report.cached > 0 && out.report.cached_extract_seconds > 0) {
+    std::cerr << "; the cache saved about " << static_cast<int>(out.seconds_saved() * 10) / 10.0 << " s";
+  }
   if (!out.report.failed.empty() || !out.dataset.skipped.empty()) {
     std::cerr << "; " << out.report.failed.size() + out.dataset.skipped.size() << " skipped:";
   }

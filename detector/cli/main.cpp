@@ -17,6 +17,8 @@ int main(int argc, char** argv) try {
   residue::cli::add_serve_command(app, exit_code);
   residue::cli::add_audit_command(app, exit_code);
   residue::cli::add_evaluate_command(app, exit_code);
+  residue::cli::add_compare_command(app, exit_code);
+  residue::cli::add_drift_command(app, exit_code);
   residue::cli::add_features_command(app, exit_code);
   residue::cli::add_bench_command(app, exit_code);
   residue::cli::add_demo_command(app, exit_code);

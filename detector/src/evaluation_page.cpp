@@ -116,18 +116,21 @@ std::string html_escape(const std::string& text) {
   return out;
 }
 
+std::string measurement_page_start(const std::string& title, const std::string& extra_css) {
+  return "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>" + html_escape(title) +
+         "</title><style>body{font-family:sans-serif;max-width:1000px;margin:2em auto;color:#222;padding:0 1em}"
+         ".advisory{border-left:5px solid #c0392b;background:#fbeeee;padding:.6em 1em}"
+         "table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:.3em .6em;"
+         "text-align:right}th{text-align:left;background:#f4f4f4}.plots{display:flex;flex-wrap:wrap;gap:2em}"
+         "figure{margin:0}figcaption{font-size:.9em;color:#555;max-width:360px}"
+         "ul.warn li{color:#8a4b00}@media print{.plots{display:block}}" +
+         extra_css + "</style></head><body><h1>" + html_escape(title) + "</h1><p class='advisory'>" +
+         html_escape(kAdvisoryNotice) + "</p>";
+}
+
 std::string evaluation_page(const EvaluationReport& r, const Model& model, const std::string& title,
                             const std::string& data_description) {
-  std::string h =
-      "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>" + html_escape(title) +
-      "</title><style>body{font-family:sans-serif;max-width:1000px;margin:2em auto;color:#222;padding:0 1em}"
-      ".advisory{border-left:5px solid #c0392b;background:#fbeeee;padding:.6em 1em}"
-      "table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:.3em .6em;"
-      "text-align:right}th{text-align:left;background:#f4f4f4}.plots{display:flex;flex-wrap:wrap;gap:2em}"
-      "figure{margin:0}figcaption{font-size:.9em;color:#555;max-width:360px}"
-      "ul.warn li{color:#8a4b00}@media print{.plots{display:block}}</style></head><body>";
-  h += "<h1>" + html_escape(title) + "</h1>";
-  h += "<p class='advisory'>" + html_escape(kAdvisoryNotice) + "</p>";
+  std::string h = measurement_page_start(title, "");
   h += "<p>Model <code>" + html_escape(model.id) + "</code>, trained " + html_escape(model.created) + "; " +
        html_escape(data_description) + ". Decision threshold P(generated) &ge; " +
        fmt("%.3f", model.thresholds.likely_generated) + " (chosen for " +

@@ -61,6 +61,9 @@ nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::
                   {"count", extraction->layout.origins.size()},
                   {"reduced", extraction->layout.reduced}};
   r["alpha_dropped"] = extraction->alpha_dropped;
+  // Per family: root-mean-square of the standardised features, in training standard deviations;
+  // with the contributions, what `residue drift` compares with the model's training reference.
+  r["family_distance"] = s.distances;
   return r;
 }
 

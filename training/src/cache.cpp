@@ -25,7 +25,8 @@ nlohmann::json facts_to_json(const FileFacts& f) {
           {"camera_model", f.metadata.camera_model},
           {"has_xmp", f.metadata.has_xmp},
           {"digital_source_type", f.metadata.digital_source_type},
-          {"generation_text", f.metadata.generation_text}};
+          {"generation_text", f.metadata.generation_text},
+          {"extract_ms", f.extract_ms}};
 }
 
 FileFacts facts_from_json(const nlohmann::json& j) {
@@ -45,6 +46,7 @@ FileFacts facts_from_json(const nlohmann::json& j) {
   f.metadata.has_xmp = j.at("has_xmp");
   f.metadata.digital_source_type = j.at("digital_source_type");
   f.metadata.generation_text = j.at("generation_text");
+  f.extract_ms = j.value("extract_ms", 0.0);  // absent in rows stored before it was recorded
   return f;
 }
 

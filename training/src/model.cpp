@@ -1,5 +1,6 @@
 #include "residue/training/model.hpp"
 
+#include <cmath>
 #include <fstream>
 #include <sstream>
 
@@ -17,12 +18,16 @@ std::string band_of(const Thresholds& t, double p) {
 Score score(const Model& model, const FeatureVector& features, std::optional<double> prior) {
   Score s;
   s.margin = model.linear.bias;
+  std::map<std::string, int> members;
   for (size_t k = 0; k < model.feature_index.size(); ++k) {
     const double z = (features.values[model.feature_index[k]] - model.scaler.mean[k]) / model.scaler.scale[k];
     const double c = model.linear.weights[k] * z;
     s.margin += c;
     s.contributions[model.families[k]] += c;
+    s.distances[model.families[k]] += z * z;
+    members[model.families[k]] += 1;
   }
+  for (auto& [family, d] : s.distances) d = std::sqrt(d / members[family]);
   s.p_generated = model.calibration.probability(s.margin);
   if (prior) s.p_generated = shift_prior(s.p_generated, model.training_prior, *prior);
   s.band = band_of(model.thresholds, s.p_generated);
@@ -64,6 +69,7 @@ nlohmann::ordered_json model_to_json(const Model& m) {
                      {"target_fpr", m.thresholds.target_fpr},
                      {"generated_miss", m.thresholds.generated_miss}};
   j["provenance"] = m.provenance;
+  if (m.reference) j["training_reference"] = reference_to_json(*m.reference);
   return j;
 }
 
@@ -110,6 +116,10 @@ Result<Model> model_from_json(const nlohmann::json& j) {
     m.thresholds.target_fpr = j.at("thresholds").at("target_fpr");
     m.thresholds.generated_miss = j.at("thresholds").at("generated_miss");
     m.provenance = j.value("provenance", nlohmann::ordered_json::object());
+    if (j.contains("training_reference")) {
+      m.reference = reference_from_json(j["training_reference"]);
+      if (!m.reference) return make_error(ErrorCode::kCorrupt, "model's training reference is damaged");
+    }
     const size_t d = m.features.size();
     if (m.scaler.mean.size() != d || m.scaler.scale.size() != d || m.linear.weights.size() != d) {
       return make_error(ErrorCode::kCorrupt, "model arrays do not match its feature list");
@@ -121,6 +131,14 @@ Result<Model> model_from_json(const nlohmann::json& j) {
   } catch (const nlohmann::json::exception& e) {
     return make_error(ErrorCode::kCorrupt, std::string("model file is incomplete or damaged: ") + e.what());
   }
+}
+
+void stamp_model_id(Model& model) {
+  model.id.clear();
+  const std::string body = model_to_json(model).dump();
+  model.id =
+      "m-" +
+      sha256_hex(std::span(reinterpret_cast<const std::uint8_t*>(body.data()), body.size())).substr(0, 16);
 }
 
 Result<bool> save_model(const Model& model, const std::filesystem::path& path) {

@@ -31,6 +31,7 @@ Outcome prepare_one(const LabelledFile& file, const ExtractOptions& options, Fea
       return {std::move(item), std::nullopt};
     }
   }
+  const auto start = std::chrono::steady_clock::now();
   auto extraction = extract_bytes(*bytes, options);
   if (!extraction) return {std::nullopt, extraction.error()};
   FileFacts& f = item.facts;
@@ -45,6 +46,7 @@ Outcome prepare_one(const LabelledFile& file, const ExtractOptions& options, Fea
   if (auto preview = decode_preview(*bytes, options.limits)) f.dhash = difference_hash(*preview);
   f.metadata = read_metadata(*bytes);
   item.features = std::move(extraction->features);
+  f.extract_ms = std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - start).count();
   if (cache != nullptr) (void)cache->store(item.sha256, {item.facts, item.features});
   return {std::move(item), std::nullopt};
 }
@@ -78,6 +80,7 @@ PrepareReport prepare_dataset(const Dataset& dataset, const ExtractOptions& opti
   for (size_t i = 0; i < n; ++i) {
     if (outcomes[i].item) {
       (outcomes[i].item->from_cache ? report.cached : report.extracted) += 1;
+      if (outcomes[i].item->from_cache) report.cached_extract_seconds += outcomes[i].item->facts.extract_ms / 1000.0;
       report.items.push_back(std::move(*outcomes[i].item));
     } else {
       report.failed.emplace_back(dataset.files[i], *outcomes[i].error);

@@ -1,6 +1,8 @@
 #include "residue/training/trainer.hpp"
 
 #include <algorithm>
+#include <array>
+#include <set>
 #include <chrono>
 #include <cmath>
 #include <ctime>
@@ -48,6 +50,40 @@ Result<std::vector<double>> fit_and_score(const std::vector<PreparedItem>& items
   return margins;
 }
 
+const char* const kGroupNames[] = {"duplicates", "folder", "manifest"};
+
+std::string short_hash(const std::string& sha256) { return sha256.substr(0, 16); }
+
+// Histograms of the out-of-fold margins and of each family's contribution and distance under the
+// final model; band shares of each class out of fold.
+TrainingReference training_reference(const Model& model, const std::vector<PreparedItem>& items,
+                                     const std::vector<int>& labels, const CrossValidation& cv) {
+  TrainingReference r;
+  r.images = items.size();
+  r.margin = reference_histogram(cv.margins, labels);
+  std::map<std::string, std::vector<double>> contribution, distance;
+  for (const auto& item : items) {
+    const Score s = score(model, item.features);
+    for (const auto& [family, c] : s.contributions) contribution[family].push_back(c);
+    for (const auto& [family, d] : s.distances) distance[family].push_back(d);
+  }
+  for (const auto& [family, values] : contribution) {
+    r.contribution[family] = reference_histogram(values, labels);
+    r.distance[family] = reference_histogram(distance[family], labels);
+  }
+  std::array<double, 2> totals{0, 0};
+  for (int y : labels) totals[static_cast<size_t>(y)] += 1;
+  for (const char* band : {"likely-camera", "inconclusive", "likely-generated"}) {
+    r.camera_bands[band] = 0.0;
+    r.generated_bands[band] = 0.0;
+  }
+  for (size_t i = 0; i < items.size(); ++i) {
+    auto& bands = labels[i] == 1 ? r.generated_bands : r.camera_bands;
+    bands[band_of(model.thresholds, cv.probabilities[i])] += 1.0 / totals[static_cast<size_t>(labels[i])];
+  }
+  return r;
+}
+
 std::string utc_now() {
   const std::time_t t = std::time(nullptr);
   std::tm tm{};
@@ -58,6 +94,81 @@ std::string utc_now() {
 }
 
 }  // namespace
+
+nlohmann::ordered_json settings_to_json(const TrainSettings& s) {
+  return {{"folds", s.folds},
+          {"c_grid", s.c_grid},
+          {"large_set", s.large_set},
+          {"target_fpr", s.target_fpr},
+          {"generated_miss", s.generated_miss},
+          {"group_by", kGroupNames[static_cast<int>(s.group_by)]},
+          {"only", s.feature_prefixes}};
+}
+
+TrainSettings settings_from_model(const Model& model) {
+  TrainSettings s;
+  s.target_fpr = model.thresholds.target_fpr;
+  s.generated_miss = model.thresholds.generated_miss;
+  const nlohmann::json p = model.provenance.is_object() ? nlohmann::json(model.provenance) : nlohmann::json::object();
+  const auto cv = p.value("cross_validation", nlohmann::json::object());
+  s.folds = cv.value("folds", s.folds);
+  std::string group_by = cv.value("group_by", std::string("duplicates"));
+  if (p.contains("settings")) {
+    const auto& j = p["settings"];
+    s.folds = j.value("folds", s.folds);
+    s.c_grid = j.value("c_grid", s.c_grid);
+    s.large_set = j.value("large_set", s.large_set);
+    s.target_fpr = j.value("target_fpr", s.target_fpr);
+    s.generated_miss = j.value("generated_miss", s.generated_miss);
+    group_by = j.value("group_by", group_by);
+    s.feature_prefixes = j.value("only", s.feature_prefixes);
+  }
+  for (int g = 0; g < 3; ++g) {
+    if (group_by == kGroupNames[g]) s.group_by = static_cast<GroupBy>(g);
+  }
+  return s;
+}
+
+nlohmann::ordered_json lineage_of(const Model& parent, const std::vector<PreparedItem>& items) {
+  nlohmann::ordered_json lineage = {{"parent", parent.id}, {"parent_created", parent.created}};
+  const nlohmann::json provenance =
+      parent.provenance.is_object() ? nlohmann::json(parent.provenance) : nlohmann::json::object();
+  const auto old_list = provenance.value("training_files", nlohmann::json::array());
+  if (old_list.empty()) {
+    lineage["added"] = nullptr;
+    lineage["note"] = "the parent model does not list its training files; what was added is unknown";
+    return lineage;
+  }
+  std::set<std::string> old_files;
+  for (const auto& h : old_list) old_files.insert(h.get<std::string>());
+  const auto old_generators =
+      provenance.value("counts", nlohmann::json::object()).value("per_generator", nlohmann::json::object());
+  size_t camera = 0, generated = 0;
+  std::set<std::string> kept;
+  std::map<std::string, size_t> per_generator;
+  std::set<std::string> new_generators;
+  for (const auto& it : items) {
+    const std::string h = short_hash(it.sha256);
+    if (old_files.count(h) != 0) {
+      kept.insert(h);
+      continue;
+    }
+    if (it.file.label == Label::kGenerated) {
+      ++generated;
+      per_generator[it.file.generator] += 1;
+      if (!old_generators.contains(it.file.generator)) new_generators.insert(it.file.generator);
+    } else {
+      ++camera;
+    }
+  }
+  lineage["added"] = {{"images", camera + generated},
+                      {"camera", camera},
+                      {"generated", generated},
+                      {"per_generator", per_generator},
+                      {"new_generators", new_generators}};
+  lineage["removed"] = {{"images", old_files.size() - kept.size()}};
+  return lineage;
+}
 
 Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const TrainSettings& settings,
                                  const AuditReport& audit) {
@@ -153,20 +264,23 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   counts["per_generator"] = per_generator;
   nlohmann::ordered_json grid = nlohmann::ordered_json::array();
   for (const auto& [c, auc] : cv.auc_by_c) grid.push_back({{"c", c}, {"oof_roc_auc", auc}});
-  const char* group_names[] = {"duplicates", "folder", "manifest"};
+  std::vector<std::string> files;
+  files.reserve(items.size());
+  for (const auto& it : items) files.push_back(short_hash(it.sha256));
+  std::sort(files.begin(), files.end());
   model.provenance = {{"counts", counts},
+                      {"settings", settings_to_json(settings)},
                       {"audit_warnings", audit.warnings},
                       {"cross_validation",
                        {{"folds", k},
                         {"groups", cv.groups},
-                        {"group_by", group_names[static_cast<int>(settings.group_by)]},
+                        {"group_by", kGroupNames[static_cast<int>(settings.group_by)]},
                         {"c_grid", grid},
                         {"chosen_c", cv.chosen_c},
-                        {"metrics", report_to_json(cv.report)}}}};
-  const std::string body = model_to_json(model).dump();
-  model.id =
-      "m-" +
-      sha256_hex(std::span(reinterpret_cast<const std::uint8_t*>(body.data()), body.size())).substr(0, 16);
+                        {"metrics", report_to_json(cv.report)}}},
+                      {"training_files", files}};
+  model.reference = training_reference(model, items, labels, cv);
+  stamp_model_id(model);
   return out;
 }
 

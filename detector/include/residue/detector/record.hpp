@@ -16,7 +16,8 @@ inline constexpr const char* kAdvisoryNotice =
     "against a person: follow your organisation's review policy and applicable law.";
 
 // Exit codes of the command line (README.md, "Exit codes").
-enum class ExitCode : int { kOk = 0, kFailure = 1, kUsage = 2, kSomeInputsFailed = 3 };
+// kCheckFailed: `compare` found NEW worse than OLD; `drift` found that retraining looks due.
+enum class ExitCode : int { kOk = 0, kFailure = 1, kUsage = 2, kSomeInputsFailed = 3, kCheckFailed = 4 };
 
 // {"path", "error": {"code", "message"}}
 nlohmann::ordered_json error_record(const std::string& path, const Error& error);

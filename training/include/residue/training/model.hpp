@@ -18,6 +18,7 @@
 
 #include "residue/features/extract.hpp"
 #include "residue/training/calibration.hpp"
+#include "residue/training/drift.hpp"
 #include "residue/training/linear.hpp"
 
 namespace residue {
@@ -46,6 +47,7 @@ struct Model {
   double training_prior = 0.5;  // share of generated images in the calibration data
   Thresholds thresholds;
   nlohmann::ordered_json provenance;  // counts, audit warnings, CV metrics, settings, lineage
+  std::optional<TrainingReference> reference;  // for drift; absent in models from before it existed
 };
 
 struct Score {
@@ -53,12 +55,16 @@ struct Score {
   double p_generated = 0.0;
   std::string band;
   std::map<std::string, double> contributions;  // per family: sum of w_j z_j (bias excluded)
+  std::map<std::string, double> distances;      // per family: sqrt(mean z_j^2), in training std. devs
 };
 
 Score score(const Model& model, const FeatureVector& features, std::optional<double> prior = std::nullopt);
 std::string band_of(const Thresholds& thresholds, double p);
 
 nlohmann::ordered_json model_to_json(const Model& model);
+// Sets model.id to "m-" and 16 hex digits of the SHA-256 of the model's JSON (id left empty);
+// call again after changing anything in the model.
+void stamp_model_id(Model& model);
 Result<Model> model_from_json(const nlohmann::json& json);
 Result<bool> save_model(const Model& model, const std::filesystem::path& path);
 Result<Model> load_model(const std::filesystem::path& path);

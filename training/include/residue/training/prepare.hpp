@@ -26,6 +26,7 @@ struct FileFacts {
   std::uint64_t file_bytes = 0;
   std::uint64_t dhash = 0;  // difference hash of the picture (near duplicates)
   DeclaredMetadata metadata;
+  double extract_ms = 0.0;  // one thread's time to decode, extract and read metadata (milliseconds)
 };
 
 struct PreparedItem {
@@ -42,6 +43,9 @@ struct PrepareReport {
   size_t extracted = 0;
   size_t cached = 0;
   double seconds = 0.0;
+  // Extraction time the cache hits cost when they were first extracted (one thread's seconds):
+  // what the cache saved this run, before dividing by the threads.
+  double cached_extract_seconds = 0.0;
 };
 
 class FeatureCache;

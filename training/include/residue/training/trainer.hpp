@@ -41,6 +41,15 @@ struct TrainOutcome {
   CrossValidation cv;
 };
 
+// The settings as recorded in a model's provenance ("settings"), and back. A model written before
+// settings were recorded gives what its provenance still tells (folds, grouping, thresholds).
+nlohmann::ordered_json settings_to_json(const TrainSettings& settings);
+TrainSettings settings_from_model(const Model& model);
+
+// What a retrain changed against its parent: images added and removed (by content hash), per
+// class and generator, and generators new to the model. Needs the parent's "training_files".
+nlohmann::ordered_json lineage_of(const Model& parent, const std::vector<PreparedItem>& items);
+
 Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const TrainSettings& settings,
                                  const AuditReport& audit);
 

@@ -1,0 +1,73 @@
+// Comparing two models on the same labelled images, for gating a retrained model's promotion.
+//
+// Rows: camera images (false-positive rate at each model's own likely-generated threshold, ECE),
+// each generator (ROC AUC of its images against all camera images, TPR at each model's own
+// threshold, ECE) and everything together. ECE is Guo et al. (2017) with 15 bins on the row's own
+// images.
+//
+// Noise margin: a paired, stratified percentile bootstrap (Efron & Tibshirani 1993, ch. 13). Each
+// replicate draws camera images and each generator's images with replacement, separately, and
+// scores the same draw with both models; the change NEW - OLD gets a (1 - alpha) percentile
+// interval. A metric is "worse" when the whole interval lies on the bad side of zero (below for
+// AUC and TPR, above for FPR and ECE) and the change is larger than `tolerance` that way; "better"
+// symmetrically; "same" otherwise. A row is worse when any of its metrics is; NEW passes when no row is worse.
+// Deterministic for a given seed.
+#pragma once
+
+#include <cstdint>
+#include <nlohmann/json.hpp>
+#include <string>
+#include <vector>
+
+namespace residue {
+
+struct CompareSettings {
+  int resamples = 1000;
+  double confidence = 0.95;
+  double tolerance = 0.0;  // improvements smaller than this never count as better or worse
+  std::uint64_t seed = 1;
+};
+
+// Scores of one model on the comparison images.
+struct ModelScores {
+  std::string id;
+  std::vector<double> p;  // calibrated P(generated)
+  double threshold = 0.5;  // likely-generated at or above
+};
+
+struct MetricComparison {
+  std::string metric;  // "roc_auc", "tpr", "fpr", "ece"
+  bool higher_is_better = true;
+  double old_value = 0.0, new_value = 0.0;
+  double change = 0.0;           // NEW - OLD
+  double low = 0.0, high = 0.0;  // bootstrap interval of the change
+  std::string verdict;           // "better", "same", "worse"
+};
+
+struct ComparisonRow {
+  std::string name;  // "camera", a generator, or "all"
+  size_t images = 0;
+  std::vector<MetricComparison> metrics;
+  std::string verdict;
+};
+
+struct Comparison {
+  std::string old_id, new_id;
+  CompareSettings settings;
+  std::vector<ComparisonRow> rows;
+  bool new_no_worse = true;
+};
+
+// Percentile of sorted values with linear interpolation (numpy.percentile's default).
+double percentile_sorted(const std::vector<double>& sorted, double q);
+
+// labels: 1 generated, 0 camera; generators: "camera" for camera images. Needs camera images and at
+// least one generator.
+Comparison compare_models(const std::vector<int>& labels, const std::vector<std::string>& generators,
+                          const ModelScores& old_model, const ModelScores& new_model,
+                          const CompareSettings& settings);
+
+nlohmann::ordered_json comparison_to_json(const Comparison& c);
+std::string comparison_to_text(const Comparison& c);
+
+}  // namespace residue
