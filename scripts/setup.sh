@@ -7,11 +7,13 @@ cd "$(dirname "$0")/.."
 packages=(
   build-essential cmake pkg-config
   libfftw3-dev libsvm-dev doctest-dev libcli11-dev nlohmann-json3-dev
-  libexiv2-dev libssl-dev libsqlite3-dev libcpp-httplib-dev
+  libexiv2-dev libssl-dev libsqlite3-dev libcpp-httplib-dev libhiredis-dev
   libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev
   libjpeg62-turbo-dev libpng-dev libwebp-dev libtiff-dev
   # reference libraries for the tests (Debian's, used by /usr/bin/python3)
   python3 python3-numpy python3-scipy python3-skimage python3-pil python3-sklearn exiv2
+  # a real Redis server for the work-queue tests (they start their own on loopback)
+  redis-server redis-tools
 )
 
 missing=()

@@ -1,14 +1,11 @@
 // `residue serve MODEL --port N`: the moderation-queue HTTP service (docs/service.md).
-#include <pthread.h>
-
-#include <csignal>
 #include <fstream>
 #include <iostream>
 #include <memory>
-#include <thread>
 
 #include "commands.hpp"
 #include "options.hpp"
+#include "stop_signals.hpp"
 #include "residue/detector/record.hpp"
 #include "residue/detector/service.hpp"
 
@@ -33,31 +30,16 @@ int run_serve(ServeArgs& args) {
     }
   }
   args.settings.max_body_bytes = static_cast<std::size_t>(args.max_body_mb * 1048576.0);
-  // SIGINT and SIGTERM are taken by one thread that stops the server cleanly; SIGHUP reloads.
-  sigset_t stop_signals;
-  sigemptyset(&stop_signals);
-  sigaddset(&stop_signals, SIGINT);
-  sigaddset(&stop_signals, SIGTERM);
-  pthread_sigmask(SIG_BLOCK, &stop_signals, nullptr);
   Service service(args.settings, args.model_path);
   if (auto loaded = service.load_model(); !loaded) {
     std::cerr << "residue serve: " << loaded.error().message << "\n";
     return static_cast<int>(ExitCode::kFailure);
   }
-  std::thread stopper([&service, stop_signals] {
-    int signal = 0;
-    sigwait(&stop_signals, &signal);
-    service.stop();
-  });
-  auto result = service.run();
-  if (!result) {
+  const StopOnSignals stopper([&service] { service.stop(); });
+  if (auto result = service.run(); !result) {
     std::cerr << "residue serve: " << result.error().message << "\n";
-    pthread_kill(stopper.native_handle(), SIGTERM);
-    stopper.join();
     return static_cast<int>(ExitCode::kFailure);
   }
-  pthread_kill(stopper.native_handle(), SIGTERM);  // wakes the stopper if the server ended otherwise
-  stopper.join();
   return 0;
 }
 

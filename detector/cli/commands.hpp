@@ -18,5 +18,8 @@ void add_scan_command(CLI::App& app, int& exit_code);
 void add_report_command(CLI::App& app, int& exit_code);
 void add_explain_command(CLI::App& app, int& exit_code);
 void add_serve_command(CLI::App& app, int& exit_code);
+void add_worker_command(CLI::App& app, int& exit_code);
+void add_enqueue_command(CLI::App& app, int& exit_code);
+void add_collect_command(CLI::App& app, int& exit_code);
 
 }  // namespace residue::cli

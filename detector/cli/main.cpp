@@ -15,6 +15,9 @@ int main(int argc, char** argv) try {
   residue::cli::add_report_command(app, exit_code);
   residue::cli::add_explain_command(app, exit_code);
   residue::cli::add_serve_command(app, exit_code);
+  residue::cli::add_worker_command(app, exit_code);
+  residue::cli::add_enqueue_command(app, exit_code);
+  residue::cli::add_collect_command(app, exit_code);
   residue::cli::add_audit_command(app, exit_code);
   residue::cli::add_evaluate_command(app, exit_code);
   residue::cli::add_compare_command(app, exit_code);

@@ -69,6 +69,9 @@ Result<std::unique_ptr<FeatureCache>> FeatureCache::open(const std::filesystem::
   char* err = nullptr;
   const char* schema =
       "PRAGMA journal_mode=WAL;"
+      // A cache: losing the last writes on power loss costs a re-extraction, so no fsync per row
+      // (with FULL, each stored vector waited for the disk: 10,000 images took 193 s instead of 115 s).
+      "PRAGMA synchronous=NORMAL;"
       "CREATE TABLE IF NOT EXISTS vectors ("
       "  sha256 TEXT NOT NULL, extractor TEXT NOT NULL, facts TEXT NOT NULL, features BLOB NOT NULL,"
       "  PRIMARY KEY (sha256, extractor));";

@@ -1,5 +1,7 @@
 #include "residue/training/prepare.hpp"
 
+#include <malloc.h>
+
 #include <atomic>
 #include <chrono>
 #include <mutex>
@@ -65,6 +67,10 @@ PrepareReport prepare_dataset(const Dataset& dataset, const ExtractOptions& opti
     for (size_t i = next++; i < n; i = next++) {
       outcomes[i] = prepare_one(dataset.files[i], options, cache);
       const size_t d = ++done;
+      // Decode buffers freed between long-lived results leave holes that glibc's heap does not
+      // give back: RSS grew by ~0.8 MB per image (8.8 GB for 11,000, docs/performance.md).
+      // Returning free pages every 64 images keeps it flat for ~1 % of the time.
+      if (d % 64 == 0) malloc_trim(0);
       if (progress) {
         std::lock_guard lock(progress_mutex);
         progress(d, n);

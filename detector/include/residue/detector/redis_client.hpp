@@ -1,0 +1,54 @@
+// A Redis connection (hiredis behind detector/src/redis_adapter.cpp, the only file that includes
+// it): commands as argument vectors (binary-safe), pipelined batches, our own reply type.
+// Not thread-safe: one client per thread.
+#pragma once
+
+#include <chrono>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "residue/features/status.hpp"
+
+namespace residue {
+
+// redis://[[user]:password@]host[:port][/db]   (defaults: 127.0.0.1, 6379, db 0)
+struct RedisAddress {
+  std::string host = "127.0.0.1";
+  int port = 6379;
+  std::string password;
+  int db = 0;
+};
+Result<RedisAddress> parse_redis_url(const std::string& url);
+
+struct RedisReply {
+  enum class Type { kString, kArray, kInteger, kNil, kStatus, kError } type = Type::kNil;
+  std::string text;  // string, status or error text
+  long long integer = 0;
+  std::vector<RedisReply> elements;
+  [[nodiscard]] bool is_error() const { return type == Type::kError; }
+  [[nodiscard]] bool is_nil() const { return type == Type::kNil; }
+};
+
+class RedisClient {
+ public:
+  // Connects (and authenticates, selects the database). `timeout` bounds connecting and every
+  // reply; a blocking command's own wait must be shorter.
+  static Result<std::unique_ptr<RedisClient>> connect(const RedisAddress& address,
+                                                      std::chrono::milliseconds timeout);
+  ~RedisClient();
+  RedisClient(const RedisClient&) = delete;
+  RedisClient& operator=(const RedisClient&) = delete;
+
+  // One command. A Redis error reply is returned as a reply of type kError; an Error means the
+  // connection failed (closed, timed out, refused) and the client must be replaced.
+  Result<RedisReply> command(const std::vector<std::string>& argv);
+  // Several commands in one round trip; replies in order.
+  Result<std::vector<RedisReply>> pipeline(const std::vector<std::vector<std::string>>& commands);
+
+ private:
+  explicit RedisClient(void* context) : context_(context) {}
+  void* context_;  // redisContext*
+};
+
+}  // namespace residue

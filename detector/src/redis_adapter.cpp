@@ -1,0 +1,149 @@
+#include <hiredis/hiredis.h>
+
+#include <charconv>
+
+#include "residue/detector/redis_client.hpp"
+
+namespace residue {
+
+namespace {
+
+RedisReply convert(const redisReply* r) {
+  RedisReply out;
+  switch (r->type) {
+    case REDIS_REPLY_STRING:
+      out.type = RedisReply::Type::kString;
+      out.text.assign(r->str, r->len);
+      break;
+    case REDIS_REPLY_STATUS:
+      out.type = RedisReply::Type::kStatus;
+      out.text.assign(r->str, r->len);
+      break;
+    case REDIS_REPLY_ERROR:
+      out.type = RedisReply::Type::kError;
+      out.text.assign(r->str, r->len);
+      break;
+    case REDIS_REPLY_INTEGER:
+      out.type = RedisReply::Type::kInteger;
+      out.integer = r->integer;
+      break;
+    case REDIS_REPLY_ARRAY:
+      out.type = RedisReply::Type::kArray;
+      out.elements.reserve(r->elements);
+      for (size_t i = 0; i < r->elements; ++i) out.elements.push_back(convert(r->element[i]));
+      break;
+    default:
+      out.type = RedisReply::Type::kNil;
+  }
+  return out;
+}
+
+Error connection_error(const redisContext* c, const std::string& what) {
+  return Error{ErrorCode::kUnreadable,
+               "Redis " + what + ": " + (c != nullptr && c->err != 0 ? std::string(c->errstr) : "no reply")};
+}
+
+void arguments(const std::vector<std::string>& argv, std::vector<const char*>& ptrs, std::vector<size_t>& lens) {
+  ptrs.clear();
+  lens.clear();
+  for (const auto& a : argv) {
+    ptrs.push_back(a.data());
+    lens.push_back(a.size());
+  }
+}
+
+bool parse_int(const std::string& s, int& out) {
+  const auto [end, ec] = std::from_chars(s.data(), s.data() + s.size(), out);
+  return ec == std::errc() && end == s.data() + s.size();
+}
+
+}  // namespace
+
+Result<RedisAddress> parse_redis_url(const std::string& url) {
+  const std::string scheme = "redis://";
+  if (url.rfind(scheme, 0) != 0) {
+    return make_error(ErrorCode::kUnsupported, "Redis URL must start with redis:// (got '" + url + "')");
+  }
+  RedisAddress a;
+  std::string rest = url.substr(scheme.size());
+  if (const auto at = rest.rfind('@'); at != std::string::npos) {
+    const std::string credentials = rest.substr(0, at);
+    const auto colon = credentials.find(':');
+    a.password = colon == std::string::npos ? credentials : credentials.substr(colon + 1);
+    rest = rest.substr(at + 1);
+  }
+  if (const auto slash = rest.find('/'); slash != std::string::npos) {
+    const std::string db = rest.substr(slash + 1);
+    if (!db.empty() && !parse_int(db, a.db)) return make_error(ErrorCode::kUnsupported, "bad database in " + url);
+    rest = rest.substr(0, slash);
+  }
+  if (const auto colon = rest.rfind(':'); colon != std::string::npos) {
+    if (!parse_int(rest.substr(colon + 1), a.port) || a.port <= 0 || a.port > 65535) {
+      return make_error(ErrorCode::kUnsupported, "bad port in " + url);
+    }
+    rest = rest.substr(0, colon);
+  }
+  if (!rest.empty()) a.host = rest;
+  return a;
+}
+
+Result<std::unique_ptr<RedisClient>> RedisClient::connect(const RedisAddress& address,
+                                                          std::chrono::milliseconds timeout) {
+  const timeval tv{static_cast<time_t>(timeout.count() / 1000), static_cast<suseconds_t>((timeout.count() % 1000) * 1000)};
+  redisContext* c = redisConnectWithTimeout(address.host.c_str(), address.port, tv);
+  if (c == nullptr || c->err != 0) {
+    Error e = connection_error(c, "connect to " + address.host + ":" + std::to_string(address.port));
+    if (c != nullptr) redisFree(c);
+    return e;
+  }
+  redisSetTimeout(c, tv);
+  std::unique_ptr<RedisClient> client(new RedisClient(c));
+  if (!address.password.empty()) {
+    auto r = client->command({"AUTH", address.password});
+    if (!r) return r.error();
+    if (r->is_error()) return make_error(ErrorCode::kUnsupported, "Redis refused the password: " + r->text);
+  }
+  if (address.db != 0) {
+    auto r = client->command({"SELECT", std::to_string(address.db)});
+    if (!r) return r.error();
+    if (r->is_error()) return make_error(ErrorCode::kUnsupported, "Redis refused the database: " + r->text);
+  }
+  return client;
+}
+
+RedisClient::~RedisClient() { redisFree(static_cast<redisContext*>(context_)); }
+
+Result<RedisReply> RedisClient::command(const std::vector<std::string>& argv) {
+  auto* c = static_cast<redisContext*>(context_);
+  std::vector<const char*> ptrs;
+  std::vector<size_t> lens;
+  arguments(argv, ptrs, lens);
+  auto* reply = static_cast<redisReply*>(redisCommandArgv(c, static_cast<int>(ptrs.size()), ptrs.data(), lens.data()));
+  if (reply == nullptr) return connection_error(c, argv.empty() ? "command" : argv[0]);
+  RedisReply out = convert(reply);
+  freeReplyObject(reply);
+  return out;
+}
+
+Result<std::vector<RedisReply>> RedisClient::pipeline(const std::vector<std::vector<std::string>>& commands) {
+  auto* c = static_cast<redisContext*>(context_);
+  std::vector<const char*> ptrs;
+  std::vector<size_t> lens;
+  for (const auto& argv : commands) {
+    arguments(argv, ptrs, lens);
+    if (redisAppendCommandArgv(c, static_cast<int>(ptrs.size()), ptrs.data(), lens.data()) != REDIS_OK) {
+      return connection_error(c, "pipeline");
+    }
+  }
+  std::vector<RedisReply> out;
+  out.reserve(commands.size());
+  for (size_t i = 0; i < commands.size(); ++i) {
+    void* raw = nullptr;
+    if (redisGetReply(c, &raw) != REDIS_OK || raw == nullptr) return connection_error(c, "pipeline");
+    out.push_back(convert(static_cast<redisReply*>(raw)));
+    freeReplyObject(raw);
+  }
+  return out;
+}
+
+}  // namespace residue
