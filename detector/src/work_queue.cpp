@@ -301,7 +301,7 @@ Result<EnqueueStats> enqueue_jobs(const std::vector<std::string>& paths, const E
                                   const QueueLog& log) {
   EnqueueStats stats;
   Link link(s.connection, nullptr, log);
-  const auto deadline = Clock::now() + std::chrono::seconds(30);
+  const auto deadline = Clock::now() + 3 * s.connection.timeout;
   size_t n = 0;
   std::vector<std::vector<std::string>> batch;
   auto flush = [&]() -> Result<bool> {
@@ -352,7 +352,8 @@ Result<CollectStats> collect_results(const CollectSettings& s,
                                      const QueueLog& log) {
   CollectStats stats;
   Link link(s.connection, nullptr, log);
-  const auto deadline = Clock::now() + s.wait;
+  // Without --expect there is nothing to wait for: a few reconnection attempts, then an error.
+  const auto deadline = Clock::now() + (s.expect ? s.wait : 3 * s.connection.timeout);
   std::unordered_set<std::uint64_t> seen;  // FNV-1a of job ids: 8 bytes per job
   std::string last = "0-0";
   while (true) {
