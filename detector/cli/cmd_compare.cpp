@@ -53,8 +53,8 @@ std::vector<std::string> notes_for(const Model& old_model, const Model& new_mode
     if (row.name == "camera" || row.name == "all") continue;
     const bool o = old_seen.count(row.name) != 0, n = new_seen.count(row.name) != 0;
     if (!o || !n) {
-      notes.push_back("Generator '" + row.name + "' was " + (o ? "" : "not ") + "in OLD's training data and " +
-                      (n ? "" : "not ") + "in NEW's.");
+      notes.push_back("Generator '" + row.name + "' was " + (o ? "" : "not ") +
+                      "in OLD's training data and " + (n ? "" : "not ") + "in NEW's.");
     }
   }
   for (const auto* m : {&old_model, &new_model}) {
@@ -66,8 +66,9 @@ std::vector<std::string> notes_for(const Model& old_model, const Model& new_mode
     }
   }
   if (old_model.thresholds.target_fpr != new_model.thresholds.target_fpr) {
-    notes.push_back("The models' thresholds were chosen for different false-positive targets; FPR and TPR rows "
-                    "compare different operating points.");
+    notes.push_back(
+        "The models' thresholds were chosen for different false-positive targets; FPR and TPR rows "
+        "compare different operating points.");
   }
   return notes;
 }
@@ -114,7 +115,8 @@ int run_compare(const CompareArgs& args) {
     std::cout << "\n" << kAdvisoryNotice << "\n";
   }
   if (!args.html.empty()) {
-    const std::string description = "measured on " + std::to_string(items.size()) + " images of " + args.data.root;
+    const std::string description =
+        "measured on " + std::to_string(items.size()) + " images of " + args.data.root;
     if (auto w = write_file_atomically(args.html, comparison_page(c, description, notes)); !w) {
       std::cerr << "residue compare: " << w.error().message << "\n";
       return static_cast<int>(ExitCode::kFailure);
@@ -129,10 +131,12 @@ int run_compare(const CompareArgs& args) {
 void add_compare_command(CLI::App& app, int& exit_code) {
   auto args = std::make_shared<CompareArgs>();
   auto* cmd = app.add_subcommand(
-      "compare", "Compare two models on labelled images, per generator and on camera images, to gate promotion");
+      "compare",
+      "Compare two models on labelled images, per generator and on camera images, to gate promotion");
   cmd->add_option("old", args->old_path, "the model in use")->required();
   cmd->add_option("new", args->new_path, "the candidate model")->required();
-  add_dataset_options(*cmd, args->data, "labelled folder ROOT (ideally held back from both models' training)");
+  add_dataset_options(*cmd, args->data,
+                      "labelled folder ROOT (ideally held back from both models' training)");
   cmd->add_flag("--json", args->json, "print the comparison as JSON");
   cmd->add_option("--html", args->html, "also write the comparison as a page");
   cmd->add_option("--resamples", args->settings.resamples, "bootstrap resamples for the noise margin")
@@ -146,7 +150,8 @@ void add_compare_command(CLI::App& app, int& exit_code) {
       ->check(CLI::Range(0.0, 0.5))
       ->capture_default_str();
   cmd->add_option("--seed", args->settings.seed, "bootstrap random seed")->capture_default_str();
-  cmd->add_option("--prior", args->prior, "shift both models' probabilities to this share of generated images")
+  cmd->add_option("--prior", args->prior,
+                  "shift both models' probabilities to this share of generated images")
       ->check(CLI::Range(0.0001, 0.9999));
   cmd->footer(
       "Exit status: 0 NEW is no worse than OLD on every row, 4 NEW is worse on at least one row, 1 failure, "

@@ -107,10 +107,12 @@ int run_drift(const DriftArgs& args) {
     std::cerr << "residue drift: left out " << batch.other_model << " records scored by another model than "
               << model->id << "\n";
   }
-  if (batch.malformed > 0) std::cerr << "residue drift: left out " << batch.malformed << " lines that are not scan records\n";
+  if (batch.malformed > 0)
+    std::cerr << "residue drift: left out " << batch.malformed << " lines that are not scan records\n";
   if (batch.without_distance > 0) {
-    std::cerr << "residue drift: " << batch.without_distance
-              << " records carry no family_distance (scanned by an older residue); distance rows use the rest\n";
+    std::cerr
+        << "residue drift: " << batch.without_distance
+        << " records carry no family_distance (scanned by an older residue); distance rows use the rest\n";
   }
   double prior = model->training_prior;
   std::string prior_source = "the training base rate";

@@ -100,8 +100,8 @@ int run_worker_command(WorkerArgs& args) {
   }
   log("stopped: " + std::to_string(stats->scored) + " scored, " + std::to_string(stats->failed) +
       " error records, " + std::to_string(stats->gave_up) + " given up, " + std::to_string(stats->reclaimed) +
-      " taken over, " + std::to_string(stats->retried) + " left for retry, " + std::to_string(stats->reconnects) +
-      " reconnections");
+      " taken over, " + std::to_string(stats->retried) + " left for retry, " +
+      std::to_string(stats->reconnects) + " reconnections");
   return 0;
 }
 
@@ -128,15 +128,16 @@ int run_enqueue(EnqueueArgs& args) {
   args.settings.connection = *connection;
   if (args.settings.batch.empty()) args.settings.batch = default_batch();
   const ExpandedInputs expanded = expand_inputs(args.inputs, std::cin);
-  for (const auto& [path, message] : expanded.problems) std::cerr << "residue enqueue: " << path << ": " << message << "\n";
+  for (const auto& [path, message] : expanded.problems)
+    std::cerr << "residue enqueue: " << path << ": " << message << "\n";
   auto stats = enqueue_jobs(expanded.files, args.settings, log_to_stderr("enqueue"));
   if (!stats) {
     std::cerr << "residue enqueue: " << stats.error().message << "\n";
     return static_cast<int>(ExitCode::kFailure);
   }
   for (const auto& [path, error] : stats->refused) {
-    std::cerr << "residue enqueue: not sent: " << path << ": " << error_code_name(error.code) << ": " << error.message
-              << "\n";
+    std::cerr << "residue enqueue: not sent: " << path << ": " << error_code_name(error.code) << ": "
+              << error.message << "\n";
   }
   std::cerr << "residue enqueue: " << stats->enqueued << " jobs in " << args.settings.stream << ", job ids "
             << args.settings.batch << "/0 .. " << args.settings.batch << "/"
@@ -174,8 +175,8 @@ int run_collect(CollectArgs& args) {
     }
   }
   std::ostream& out = to_stdout ? std::cout : file;
-  auto stats = collect_results(args.settings, [&out](const std::string& record) { out << record << "\n"; },
-                               log_to_stderr("collect"));
+  auto stats = collect_results(
+      args.settings, [&out](const std::string& record) { out << record << "\n"; }, log_to_stderr("collect"));
   out.flush();
   if (!stats) {
     std::cerr << "residue collect: " << stats.error().message << "\n";
@@ -195,8 +196,8 @@ int run_collect(CollectArgs& args) {
   if (stats->duplicates > 0) std::cerr << " (" << stats->duplicates << " repeated deliveries dropped)";
   std::cerr << "\n";
   if (!stats->complete) {
-    std::cerr << "residue collect: only " << stats->records << " of the " << *args.expect << " expected results after "
-              << args.wait_s << " s\n";
+    std::cerr << "residue collect: only " << stats->records << " of the " << *args.expect
+              << " expected results after " << args.wait_s << " s\n";
     return static_cast<int>(ExitCode::kFailure);
   }
   return 0;
@@ -206,7 +207,8 @@ int run_collect(CollectArgs& args) {
 
 void add_worker_command(CLI::App& app, int& exit_code) {
   auto args = std::make_shared<WorkerArgs>();
-  auto* cmd = app.add_subcommand("worker", "Score jobs from a Redis stream as part of a consumer group (docs/queue.md)");
+  auto* cmd = app.add_subcommand(
+      "worker", "Score jobs from a Redis stream as part of a consumer group (docs/queue.md)");
   cmd->add_option("model", args->model_path, "model file")->required();
   add_connection_options(*cmd, args->connection);
   WorkerSettings& s = args->settings;
@@ -215,8 +217,11 @@ void add_worker_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--consumer", s.consumer, "this worker's name in the group (default: host-pid)");
   cmd->add_option("--results", s.results, "stream for result records (default: <stream>:results)");
   cmd->add_option("--jsonl", s.jsonl_path, "also append each record to this file (may repeat after a retry)");
-  cmd->add_option("--read-count", s.read_count, "jobs taken per read")->check(CLI::Range(1, 1000))->capture_default_str();
-  cmd->add_option("--block", args->block_s, "seconds to wait for new jobs per read (also how fast a stop is noticed)")
+  cmd->add_option("--read-count", s.read_count, "jobs taken per read")
+      ->check(CLI::Range(1, 1000))
+      ->capture_default_str();
+  cmd->add_option("--block", args->block_s,
+                  "seconds to wait for new jobs per read (also how fast a stop is noticed)")
       ->check(CLI::Range(0.01, 60.0))
       ->capture_default_str();
   cmd->add_option("--reclaim-after", args->reclaim_after_s,
@@ -227,11 +232,15 @@ void add_worker_command(CLI::App& app, int& exit_code) {
                   "deliveries before a job gets a 'gave-up' error record instead of another try")
       ->check(CLI::Range(1, 100))
       ->capture_default_str();
-  cmd->add_flag("--keep-jobs", args->keep_jobs, "keep finished jobs in the stream (default: deleted when done)");
-  cmd->add_option("--prior", s.scan.prior, "deployment share of generated images")->check(CLI::Range(0.0001, 0.9999));
+  cmd->add_flag("--keep-jobs", args->keep_jobs,
+                "keep finished jobs in the stream (default: deleted when done)");
+  cmd->add_option("--prior", s.scan.prior, "deployment share of generated images")
+      ->check(CLI::Range(0.0001, 0.9999));
   add_extract_options(*cmd, s.scan.extract);
-  cmd->footer("Stops on SIGTERM or SIGINT after finishing and acknowledging the jobs it holds.\n"
-              "Exit status: 0 stopped cleanly, 1 failure (model refused, Redis refused the password), 2 usage error.");
+  cmd->footer(
+      "Stops on SIGTERM or SIGINT after finishing and acknowledging the jobs it holds.\n"
+      "Exit status: 0 stopped cleanly, 1 failure (model refused, Redis refused the password), 2 usage "
+      "error.");
   cmd->callback([args, &exit_code] { exit_code = run_worker_command(*args); });
 }
 
@@ -244,9 +253,12 @@ void add_enqueue_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--batch", args->settings.batch, "job ids are <batch>/<n> (default: UTC time and pid)");
   cmd->add_flag("--bytes", args->settings.send_bytes,
                 "send the image bytes instead of the path (workers without the shared storage)");
-  cmd->add_option("--pipeline", args->settings.pipeline, "jobs per round trip")->check(CLI::Range(1, 100000))
+  cmd->add_option("--pipeline", args->settings.pipeline, "jobs per round trip")
+      ->check(CLI::Range(1, 100000))
       ->capture_default_str();
-  cmd->footer("Prints the batch name on stdout. Exit status: 0 all enqueued, 3 some inputs not sent, 1 failure, 2 usage error.");
+  cmd->footer(
+      "Prints the batch name on stdout. Exit status: 0 all enqueued, 3 some inputs not sent, 1 failure, 2 "
+      "usage error.");
   cmd->callback([args, &exit_code] { exit_code = run_enqueue(*args); });
 }
 

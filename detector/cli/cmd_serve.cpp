@@ -5,9 +5,9 @@
 
 #include "commands.hpp"
 #include "options.hpp"
-#include "stop_signals.hpp"
 #include "residue/detector/record.hpp"
 #include "residue/detector/service.hpp"
+#include "stop_signals.hpp"
 
 namespace residue::cli {
 

@@ -1,9 +1,9 @@
 // `residue train ROOT -o MODEL` and `residue audit ROOT`.
 #include <algorithm>
 #include <cstdio>
-#include <optional>
 #include <iostream>
 #include <memory>
+#include <optional>
 
 #include "commands.hpp"
 #include "dataset_options.hpp"
@@ -92,11 +92,12 @@ void print_lineage(const nlohmann::ordered_json& lineage) {
     return;
   }
   const auto& added = lineage["added"];
-  std::cout << "; added " << added["images"] << " images (" << added["camera"] << " camera, " << added["generated"]
-            << " generated";
+  std::cout << "; added " << added["images"] << " images (" << added["camera"] << " camera, "
+            << added["generated"] << " generated";
   for (const auto& [name, n] : added["per_generator"].items()) std::cout << "; " << name << ": " << n;
   std::cout << "), removed " << lineage["removed"]["images"] << ".";
-  if (!added["new_generators"].empty()) std::cout << " Generators new to the model: " << added["new_generators"].dump();
+  if (!added["new_generators"].empty())
+    std::cout << " Generators new to the model: " << added["new_generators"].dump();
   std::cout << "\n\n";
 }
 
@@ -200,7 +201,8 @@ void add_train_command(CLI::App& app, int& exit_code) {
                 "with --from: keep the parent's chosen C instead of searching the grid again (faster)");
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");
   cmd->callback([args, cmd, &exit_code] {
-    for (const char* option : {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by", "--only"}) {
+    for (const char* option :
+         {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by", "--only"}) {
       if (cmd->count(option) > 0) args->given.emplace_back(option);
     }
     exit_code = run_train(*args);

@@ -29,14 +29,16 @@ std::string comparison_page(const Comparison& c, const std::string& data_descrip
       "residue model comparison",
       ".better{background:#e3f1e3}.worse{background:#f8dcdc;font-weight:bold}.verdict{font-size:1.15em;"
       "padding:.6em 1em;border:2px solid #444}");
-  h += "<p>OLD <code>" + html_escape(c.old_id) + "</code> against NEW <code>" + html_escape(c.new_id) + "</code>, " +
-       html_escape(data_description) + ".</p>";
-  h += std::string("<p class='verdict ") + (c.new_no_worse ? "better'>NEW is no worse than OLD on every row." :
-                                                             "worse'>NEW is worse than OLD on at least one row: "
-                                                             "do not promote it as it is.") + "</p>";
+  h += "<p>OLD <code>" + html_escape(c.old_id) + "</code> against NEW <code>" + html_escape(c.new_id) +
+       "</code>, " + html_escape(data_description) + ".</p>";
+  h += std::string("<p class='verdict ") +
+       (c.new_no_worse ? "better'>NEW is no worse than OLD on every row."
+                       : "worse'>NEW is worse than OLD on at least one row: "
+                         "do not promote it as it is.") +
+       "</p>";
   h += "<table><tr><th>row</th><th>images</th><th>metric</th><th>OLD</th><th>NEW</th><th>change</th>"
-       "<th>" + number("%.0f", 100 * c.settings.confidence) +
-       " % interval of the change</th><th>verdict</th></tr>";
+       "<th>" +
+       number("%.0f", 100 * c.settings.confidence) + " % interval of the change</th><th>verdict</th></tr>";
   for (const auto& row : c.rows) {
     bool first = true;
     for (const auto& m : row.metrics) {
@@ -53,13 +55,16 @@ std::string comparison_page(const Comparison& c, const std::string& data_descrip
            number("%+.3f", m.high) + "]</td><td>" + m.verdict + "</td></tr>";
     }
   }
-  h += "</table><p>Change: NEW minus OLD; higher is better for ROC AUC and TPR, lower for FPR and ECE. Intervals come from "
+  h += "</table><p>Change: NEW minus OLD; higher is better for ROC AUC and TPR, lower for FPR and ECE. "
+       "Intervals come from "
        "a paired, stratified percentile bootstrap with " +
        std::to_string(c.settings.resamples) +
        " resamples (Efron &amp; Tibshirani 1993): a metric is called better or worse only when its whole "
        "interval lies on one side of zero" +
-       (c.settings.tolerance > 0 ? " and the change exceeds " + number("%.3f", c.settings.tolerance) : std::string()) +
-       ". TPR and FPR are taken at each model's own likely-generated threshold. Rows with few images give wide "
+       (c.settings.tolerance > 0 ? " and the change exceeds " + number("%.3f", c.settings.tolerance)
+                                 : std::string()) +
+       ". TPR and FPR are taken at each model's own likely-generated threshold. Rows with few images give "
+       "wide "
        "intervals: a 'same' there means 'not shown to differ', not 'equal'.</p>";
   if (!notes.empty()) {
     h += "<h2>Notes</h2><ul class='warn'>";

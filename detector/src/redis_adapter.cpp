@@ -43,7 +43,8 @@ Error connection_error(const redisContext* c, const std::string& what) {
                "Redis " + what + ": " + (c != nullptr && c->err != 0 ? std::string(c->errstr) : "no reply")};
 }
 
-void arguments(const std::vector<std::string>& argv, std::vector<const char*>& ptrs, std::vector<size_t>& lens) {
+void arguments(const std::vector<std::string>& argv, std::vector<const char*>& ptrs,
+               std::vector<size_t>& lens) {
   ptrs.clear();
   lens.clear();
   for (const auto& a : argv) {
@@ -74,7 +75,8 @@ Result<RedisAddress> parse_redis_url(const std::string& url) {
   }
   if (const auto slash = rest.find('/'); slash != std::string::npos) {
     const std::string db = rest.substr(slash + 1);
-    if (!db.empty() && !parse_int(db, a.db)) return make_error(ErrorCode::kUnsupported, "bad database in " + url);
+    if (!db.empty() && !parse_int(db, a.db))
+      return make_error(ErrorCode::kUnsupported, "bad database in " + url);
     rest = rest.substr(0, slash);
   }
   if (const auto colon = rest.rfind(':'); colon != std::string::npos) {
@@ -89,7 +91,8 @@ Result<RedisAddress> parse_redis_url(const std::string& url) {
 
 Result<std::unique_ptr<RedisClient>> RedisClient::connect(const RedisAddress& address,
                                                           std::chrono::milliseconds timeout) {
-  const timeval tv{static_cast<time_t>(timeout.count() / 1000), static_cast<suseconds_t>((timeout.count() % 1000) * 1000)};
+  const timeval tv{static_cast<time_t>(timeout.count() / 1000),
+                   static_cast<suseconds_t>((timeout.count() % 1000) * 1000)};
   redisContext* c = redisConnectWithTimeout(address.host.c_str(), address.port, tv);
   if (c == nullptr || c->err != 0) {
     Error e = connection_error(c, "connect to " + address.host + ":" + std::to_string(address.port));
@@ -118,7 +121,8 @@ Result<RedisReply> RedisClient::command(const std::vector<std::string>& argv) {
   std::vector<const char*> ptrs;
   std::vector<size_t> lens;
   arguments(argv, ptrs, lens);
-  auto* reply = static_cast<redisReply*>(redisCommandArgv(c, static_cast<int>(ptrs.size()), ptrs.data(), lens.data()));
+  auto* reply =
+      static_cast<redisReply*>(redisCommandArgv(c, static_cast<int>(ptrs.size()), ptrs.data(), lens.data()));
   if (reply == nullptr) return connection_error(c, argv.empty() ? "command" : argv[0]);
   RedisReply out = convert(reply);
   freeReplyObject(reply);

@@ -124,8 +124,8 @@ class Worker {
       std::vector<Entry> entries;
       bool claimed = false;
       if (Clock::now() >= next_reclaim) {
-        auto r = link_.client().command({"XAUTOCLAIM", s_.stream, s_.group, s_.consumer, ms(s_.reclaim_after), cursor,
-                                         "COUNT", std::to_string(s_.read_count)});
+        auto r = link_.client().command({"XAUTOCLAIM", s_.stream, s_.group, s_.consumer, ms(s_.reclaim_after),
+                                         cursor, "COUNT", std::to_string(s_.read_count)});
         if (!r) {
           link_.drop(r.error());
           continue;
@@ -142,12 +142,14 @@ class Worker {
         if (cursor == "0-0") next_reclaim = Clock::now() + s_.reclaim_after / 4;
         claimed = !entries.empty();
         stats_.reclaimed += entries.size();
-        if (claimed) log_("took over " + std::to_string(entries.size()) + " jobs idle for over " + ms(s_.reclaim_after) + " ms");
+        if (claimed)
+          log_("took over " + std::to_string(entries.size()) + " jobs idle for over " + ms(s_.reclaim_after) +
+               " ms");
       }
       if (entries.empty()) {
         auto r = link_.client().command({"XREADGROUP", "GROUP", s_.group, s_.consumer, "COUNT",
-                                         std::to_string(s_.read_count), "BLOCK", ms(s_.block), "STREAMS", s_.stream,
-                                         ">"});
+                                         std::to_string(s_.read_count), "BLOCK", ms(s_.block), "STREAMS",
+                                         s_.stream, ">"});
         if (!r) {
           link_.drop(r.error());
           continue;
@@ -156,7 +158,8 @@ class Worker {
           if (!regroup(*r)) return make_error(ErrorCode::kUnsupported, "XREADGROUP: " + r->text);
           continue;
         }
-        if (!r->elements.empty() && r->elements[0].elements.size() == 2) entries = entries_of(r->elements[0].elements[1]);
+        if (!r->elements.empty() && r->elements[0].elements.size() == 2)
+          entries = entries_of(r->elements[0].elements[1]);
       }
       // Jobs read are in flight: finish them even when a stop was asked for meanwhile.
       for (const auto& e : entries) {
@@ -186,7 +189,8 @@ class Worker {
   // Times this job was delivered (1 for a fresh read).
   long long deliveries(const std::string& id) {
     auto r = link_.client().command({"XPENDING", s_.stream, s_.group, id, id, "1"});
-    if (!r || r->type != RedisReply::Type::kArray || r->elements.empty() || r->elements[0].elements.size() < 4) {
+    if (!r || r->type != RedisReply::Type::kArray || r->elements.empty() ||
+        r->elements[0].elements.size() < 4) {
       return 2;
     }
     return r->elements[0].elements[3].integer;
@@ -206,10 +210,11 @@ class Worker {
     nlohmann::ordered_json record;
     if (delivered > s_.max_deliveries) {
       record = error_record(name, Error{ErrorCode::kInternal, ""});
-      record["error"] = {{"code", "gave-up"},
-                         {"message", "delivered " + std::to_string(delivered) +
-                                         " times without a result (a worker may have died on it, or a transient "
-                                         "failure persisted)"}};
+      record["error"] = {
+          {"code", "gave-up"},
+          {"message", "delivered " + std::to_string(delivered) +
+                          " times without a result (a worker may have died on it, or a transient "
+                          "failure persisted)"}};
       record["model"] = model_.id;
       record["advisory"] = kAdvisoryNotice;
       ++stats_.gave_up;
@@ -223,7 +228,8 @@ class Worker {
       record["model"] = model_.id;
       record["advisory"] = kAdvisoryNotice;
     }
-    if (record.contains("error") && record["error"]["code"] == "unreadable" && delivered < s_.max_deliveries) {
+    if (record.contains("error") && record["error"]["code"] == "unreadable" &&
+        delivered < s_.max_deliveries) {
       // Maybe transient (a storage hiccup): leave it pending; it is taken again after reclaim_after.
       ++stats_.retried;
       log_("job " + job + ": " + record["error"]["message"].get<std::string>() + "; will retry");
@@ -253,7 +259,8 @@ class Worker {
           link_.drop(pending.error());
           continue;
         }
-        if (pending->type == RedisReply::Type::kArray && pending->elements.empty()) return true;  // done before
+        if (pending->type == RedisReply::Type::kArray && pending->elements.empty())
+          return true;  // done before
       }
       std::vector<std::vector<std::string>> commands = {
           {"MULTI"},
@@ -291,8 +298,8 @@ class Worker {
 
 }  // namespace
 
-Result<WorkerStats> run_worker(const Model& model, const WorkerSettings& settings, const std::atomic<bool>& stop,
-                               const QueueLog& log) {
+Result<WorkerStats> run_worker(const Model& model, const WorkerSettings& settings,
+                               const std::atomic<bool>& stop, const QueueLog& log) {
   Worker worker(model, settings, stop, log);
   return worker.run();
 }
@@ -312,8 +319,9 @@ Result<EnqueueStats> enqueue_jobs(const std::vector<std::string>& paths, const E
     }
     auto replies = link.client().pipeline(batch);
     if (!replies) {
-      return make_error(ErrorCode::kUnreadable, replies.error().message + "; " + std::to_string(stats.enqueued) +
-                                                    " jobs were enqueued before (the last batch may be partly in)");
+      return make_error(ErrorCode::kUnreadable,
+                        replies.error().message + "; " + std::to_string(stats.enqueued) +
+                            " jobs were enqueued before (the last batch may be partly in)");
     }
     for (const auto& r : *replies) {
       if (r.is_error()) return make_error(ErrorCode::kUnsupported, "XADD refused: " + r.text);

@@ -62,7 +62,8 @@ TrainingReference simulated_reference(std::mt19937_64& rng, size_t per_class) {
   return r;
 }
 
-std::vector<ScoredImage> simulated_batch(std::mt19937_64& rng, size_t camera, size_t generated, double shift) {
+std::vector<ScoredImage> simulated_batch(std::mt19937_64& rng, size_t camera, size_t generated,
+                                         double shift) {
   std::vector<ScoredImage> batch;
   for (size_t i = 0; i < camera + generated; ++i) {
     const double v = normal_sample(rng, 1, (i < camera ? 0.0 : 3.0) + shift)[0];
@@ -118,7 +119,8 @@ TEST_CASE("decile edges equal numpy.quantile; each decile bin holds a tenth of t
 TEST_CASE("chi-square 99th percentiles equal scipy.stats.chi2.ppf") {
   const auto expected = numbers(test::python("monitoring_reference.py", {"chi2_99"}));
   REQUIRE(expected.size() == 20);
-  for (int dof = 1; dof <= 20; ++dof) CHECK(chi_square_99(dof) == doctest::Approx(expected[dof - 1]).epsilon(1e-4));
+  for (int dof = 1; dof <= 20; ++dof)
+    CHECK(chi_square_99(dof) == doctest::Approx(expected[dof - 1]).epsilon(1e-4));
 }
 
 TEST_CASE("the PSI noise floor is exceeded about 1 % of the time by batches drawn like the reference") {
@@ -128,8 +130,8 @@ TEST_CASE("the PSI noise floor is exceeded about 1 % of the time by batches draw
   for (int t = 0; t < trials; ++t) {
     const auto reference = normal_sample(rng, 300, 0.0);
     const auto edges = decile_edges(reference);
-    const double psi =
-        population_stability_index(bin_shares(edges, reference), bin_shares(edges, normal_sample(rng, 200, 0.0)));
+    const double psi = population_stability_index(bin_shares(edges, reference),
+                                                  bin_shares(edges, normal_sample(rng, 200, 0.0)));
     exceed += psi > psi_noise_floor(edges.size() + 1, 200, 300) ? 1 : 0;
   }
   // Nominal 1 %; the chi-square approximation is loose in the tails, so allow 0-4 %.
@@ -198,7 +200,8 @@ TEST_CASE("bootstrap percentiles equal numpy.percentile") {
   }
 }
 
-TEST_CASE("compare: identical models are the same everywhere; a model blind to one generator is worse there") {
+TEST_CASE(
+    "compare: identical models are the same everywhere; a model blind to one generator is worse there") {
   std::mt19937_64 rng(13);
   std::uniform_real_distribution<double> low(0.0, 0.3), high(0.7, 1.0), any(0.0, 1.0);
   std::vector<int> labels;
@@ -257,9 +260,10 @@ TEST_CASE("retraining: settings come back from the parent model and lineage list
   CHECK(back.group_by == GroupBy::kFolder);
   CHECK(back.feature_prefixes == std::vector<std::string>{"noise."});
 
-  const std::vector<PreparedItem> items = {item("1", Label::kCamera, "camera"), item("2", Label::kGenerated, "a"),
-                                           item("4", Label::kCamera, "camera"), item("5", Label::kGenerated, "b"),
-                                           item("6", Label::kGenerated, "b")};
+  const std::vector<PreparedItem> items = {
+      item("1", Label::kCamera, "camera"), item("2", Label::kGenerated, "a"),
+      item("4", Label::kCamera, "camera"), item("5", Label::kGenerated, "b"),
+      item("6", Label::kGenerated, "b")};
   const auto lineage = lineage_of(parent, items);
   CHECK(lineage["parent"] == "m-parent");
   CHECK(lineage["added"]["images"] == 3);

@@ -64,7 +64,8 @@ struct MetricSpec {
 };
 const std::vector<MetricSpec> kCameraMetrics = {{"fpr", false}, {"ece", false}};
 const std::vector<MetricSpec> kGeneratorMetrics = {{"roc_auc", true}, {"tpr", true}, {"ece", false}};
-const std::vector<MetricSpec> kAllMetrics = {{"roc_auc", true}, {"tpr", true}, {"fpr", false}, {"ece", false}};
+const std::vector<MetricSpec> kAllMetrics = {
+    {"roc_auc", true}, {"tpr", true}, {"fpr", false}, {"ece", false}};
 
 std::string fixed(const char* format, double v) {
   char buf[64];
@@ -145,8 +146,14 @@ Comparison compare_models(const std::vector<int>& labels, const std::vector<std:
     bool any_better = false;
     for (size_t m = 0; m < specs[r]->size(); ++m) {
       const MetricSpec& spec = (*specs[r])[m];
-      MetricComparison mc{spec.name, spec.higher_is_better, old_values[r][m], new_values[r][m],
-                          new_values[r][m] - old_values[r][m], 0.0, 0.0, "same"};
+      MetricComparison mc{spec.name,
+                          spec.higher_is_better,
+                          old_values[r][m],
+                          new_values[r][m],
+                          new_values[r][m] - old_values[r][m],
+                          0.0,
+                          0.0,
+                          "same"};
       auto& dist = draws[r][m];
       std::sort(dist.begin(), dist.end());
       mc.low = percentile_sorted(dist, tail);
@@ -177,7 +184,8 @@ nlohmann::ordered_json comparison_to_json(const Comparison& c) {
                            {"higher_is_better", m.higher_is_better},
                            {"verdict", m.verdict}};
     }
-    rows.push_back({{"row", row.name}, {"images", row.images}, {"verdict", row.verdict}, {"metrics", metrics}});
+    rows.push_back(
+        {{"row", row.name}, {"images", row.images}, {"verdict", row.verdict}, {"metrics", metrics}});
   }
   return {{"old_model", c.old_id},
           {"new_model", c.new_id},
@@ -194,8 +202,8 @@ nlohmann::ordered_json comparison_to_json(const Comparison& c) {
 std::string comparison_to_text(const Comparison& c) {
   std::string t = "OLD " + c.old_id + "  vs  NEW " + c.new_id + "\n\n";
   char line[200];
-  std::snprintf(line, sizeof line, "  %-18s %6s  %-8s %8s %8s %9s  %-19s %s\n", "row", "images", "metric", "OLD",
-                "NEW", "change", "interval", "verdict");
+  std::snprintf(line, sizeof line, "  %-18s %6s  %-8s %8s %8s %9s  %-19s %s\n", "row", "images", "metric",
+                "OLD", "NEW", "change", "interval", "verdict");
   t += line;
   for (const auto& row : c.rows) {
     bool first = true;
@@ -204,8 +212,8 @@ std::string comparison_to_text(const Comparison& c) {
       const std::string interval = "[" + fixed("%+.3f", m.low) + ", " + fixed("%+.3f", m.high) + "]";
       std::snprintf(line, sizeof line, "  %-18s %6s  %-8s %8.3f %8.3f %+9.3f  %-19s %s\n",
                     first ? row.name.substr(0, 18).c_str() : "",
-                    first ? std::to_string(row.images).c_str() : "", m.metric.c_str(), m.old_value, m.new_value,
-                    change, interval.c_str(), m.verdict.c_str());
+                    first ? std::to_string(row.images).c_str() : "", m.metric.c_str(), m.old_value,
+                    m.new_value, change, interval.c_str(), m.verdict.c_str());
       t += line;
       first = false;
     }
@@ -213,7 +221,8 @@ std::string comparison_to_text(const Comparison& c) {
   }
   t += "\nchange = NEW - OLD; interval: its " + fixed("%.0f", 100 * c.settings.confidence) +
        " % paired bootstrap interval (" + std::to_string(c.settings.resamples) +
-       " resamples); better/worse only when the interval excludes zero. roc_auc and tpr: higher is better; fpr and "
+       " resamples); better/worse only when the interval excludes zero. roc_auc and tpr: higher is better; "
+       "fpr and "
        "ece: lower is better. tpr and fpr at each model's own likely-generated threshold.\n";
   t += c.new_no_worse ? "\nVerdict: NEW is no worse than OLD on every row.\n"
                       : "\nVerdict: NEW is WORSE than OLD on at least one row: do not promote it as it is.\n";

@@ -27,7 +27,8 @@ std::string likely_causes(const std::string& family) {
   if (family == "noise") {
     return "recompression, resizing, denoising or a new camera or phone pipeline are common causes";
   }
-  if (family == "spectral") return "resizing, recompression or a new generator's upsampling are common causes";
+  if (family == "spectral")
+    return "resizing, recompression or a new generator's upsampling are common causes";
   if (family == "resampling") return "resizing, rotation or perspective correction are common causes";
   return "a different mix of images (or of generators) reaches the queue";
 }
@@ -124,7 +125,8 @@ ReferenceHistogram reference_histogram(const std::vector<double>& values, const 
 nlohmann::ordered_json reference_to_json(const TrainingReference& r) {
   nlohmann::ordered_json families = nlohmann::ordered_json::object();
   for (const auto& [family, h] : r.contribution) {
-    families[family] = {{"contribution", histogram_json(h)}, {"distance", histogram_json(r.distance.at(family))}};
+    families[family] = {{"contribution", histogram_json(h)},
+                        {"distance", histogram_json(r.distance.at(family))}};
   }
   return {{"images", r.images},
           {"margin", histogram_json(r.margin)},
@@ -175,7 +177,8 @@ DriftReport assess_drift(const TrainingReference& ref, const std::vector<ScoredI
       if (d != s.distance.end()) distance.push_back(d->second);
     }
     r.rows.push_back(compare_row(family + " contribution", family, h, contribution, prior, ref.images));
-    r.rows.push_back(compare_row(family + " distance", family, ref.distance.at(family), distance, prior, ref.images));
+    r.rows.push_back(
+        compare_row(family + " distance", family, ref.distance.at(family), distance, prior, ref.images));
   }
 
   auto band_share = [](const std::map<std::string, double>& bands, const char* band) {
@@ -184,7 +187,8 @@ DriftReport assess_drift(const TrainingReference& ref, const std::vector<ScoredI
   };
   r.inconclusive_expected = (1.0 - prior) * band_share(ref.camera_bands, "inconclusive") +
                             prior * band_share(ref.generated_bands, "inconclusive");
-  r.inconclusive_actual = batch.empty() ? 0.0 : static_cast<double>(inconclusive) / static_cast<double>(batch.size());
+  r.inconclusive_actual =
+      batch.empty() ? 0.0 : static_cast<double>(inconclusive) / static_cast<double>(batch.size());
   r.declared_miss_expected = std::max(0.0, 1.0 - band_share(ref.generated_bands, "likely-generated"));
 
   r.verdict = "stable";
@@ -200,16 +204,18 @@ DriftReport assess_drift(const TrainingReference& ref, const std::vector<ScoredI
   // Most serious first: PSI rows by size.
   std::vector<const DriftRow*> order;
   for (const auto& row : r.rows) order.push_back(&row);
-  std::stable_sort(order.begin(), order.end(), [](const DriftRow* a, const DriftRow* b) { return a->psi > b->psi; });
+  std::stable_sort(order.begin(), order.end(),
+                   [](const DriftRow* a, const DriftRow* b) { return a->psi > b->psi; });
   for (const DriftRow* row : order) {
     if (row->reading == "stable") continue;
     const bool major = row->reading == "major";
-    std::string sentence = (major ? "Major change" : "Moderate change") + std::string(" in the ") + row->summary +
-                           " (PSI " + fixed("%.2f", row->psi) + "): ";
+    std::string sentence = (major ? "Major change" : "Moderate change") + std::string(" in the ") +
+                           row->summary + " (PSI " + fixed("%.2f", row->psi) + "): ";
     if (row->family.empty()) {
-      sentence += "images are scored differently from the training images; if the queue's share of generated "
-                  "images differs from " +
-                  fixed("%.3f", prior) + ", pass --prior, otherwise the images themselves have changed.";
+      sentence +=
+          "images are scored differently from the training images; if the queue's share of generated "
+          "images differs from " +
+          fixed("%.3f", prior) + ", pass --prior, otherwise the images themselves have changed.";
     } else {
       sentence += "the " + row->family + " traces of these images differ from the training images; " +
                   likely_causes(row->family) + ".";
@@ -220,20 +226,22 @@ DriftReport assess_drift(const TrainingReference& ref, const std::vector<ScoredI
   const double n = static_cast<double>(batch.size());
   const double e = r.inconclusive_expected;
   if (r.inconclusive_actual - e > std::max(0.05, 2.0 * std::sqrt(e * (1.0 - e) / n))) {
-    r.findings.push_back(fixed("%.1f", 100 * r.inconclusive_actual) + " % of the images were inconclusive, against " +
-                         fixed("%.1f", 100 * e) + " % expected from the training data.");
+    r.findings.push_back(fixed("%.1f", 100 * r.inconclusive_actual) +
+                         " % of the images were inconclusive, against " + fixed("%.1f", 100 * e) +
+                         " % expected from the training data.");
     raise("watch");
   }
   if (r.declared_generated >= 10) {
-    const double m = static_cast<double>(r.declared_generated_missed) / static_cast<double>(r.declared_generated);
+    const double m =
+        static_cast<double>(r.declared_generated_missed) / static_cast<double>(r.declared_generated);
     const double em = r.declared_miss_expected;
     const double se = std::sqrt(em * (1.0 - em) / static_cast<double>(r.declared_generated));
     if (m - em > std::max(0.10, 2.0 * se)) {
-      r.findings.push_back(std::to_string(r.declared_generated_missed) + " of " +
-                           std::to_string(r.declared_generated) +
-                           " images whose metadata declares them generated were not scored likely-generated (" +
-                           fixed("%.0f", 100 * m) + " %, against " + fixed("%.0f", 100 * em) +
-                           " % of training generated images): a generator the model has not seen may be in use.");
+      r.findings.push_back(
+          std::to_string(r.declared_generated_missed) + " of " + std::to_string(r.declared_generated) +
+          " images whose metadata declares them generated were not scored likely-generated (" +
+          fixed("%.0f", 100 * m) + " %, against " + fixed("%.0f", 100 * em) +
+          " % of training generated images): a generator the model has not seen may be in use.");
       raise("retrain");
     }
   }
@@ -265,36 +273,43 @@ nlohmann::ordered_json drift_to_json(const DriftReport& r) {
           {"too_few_images", r.too_few},
           {"findings", r.findings},
           {"psi", rows},
-          {"inconclusive", {{"expected_share", r.inconclusive_expected}, {"actual_share", r.inconclusive_actual}}},
+          {"inconclusive",
+           {{"expected_share", r.inconclusive_expected}, {"actual_share", r.inconclusive_actual}}},
           {"declared_generated",
            {{"images", r.declared_generated},
             {"not_likely_generated", r.declared_generated_missed},
             {"expected_miss_share", r.declared_miss_expected}}},
           {"psi_cutoffs",
-           {{"moderate", kPsiModerate}, {"major", kPsiMajor}, {"source", "common practice in model monitoring"}}}};
+           {{"moderate", kPsiModerate},
+            {"major", kPsiMajor},
+            {"source", "common practice in model monitoring"}}}};
 }
 
 std::string drift_to_text(const DriftReport& r) {
-  std::string t = "Drift of " + std::to_string(r.images) + " scored images against the training data (base rate " +
-                  fixed("%.3f", r.prior) + " generated)\n\n";
+  std::string t = "Drift of " + std::to_string(r.images) +
+                  " scored images against the training data (base rate " + fixed("%.3f", r.prior) +
+                  " generated)\n\n";
   char line[160];
   std::snprintf(line, sizeof line, "  %-28s %7s %7s  %s\n", "summary", "PSI", "noise", "reading");
   t += line;
   for (const auto& row : r.rows) {
-    std::snprintf(line, sizeof line, "  %-28s %7.3f %7.3f  %s\n", row.summary.c_str(), row.psi, row.noise_floor,
-                  row.reading.c_str());
+    std::snprintf(line, sizeof line, "  %-28s %7.3f %7.3f  %s\n", row.summary.c_str(), row.psi,
+                  row.noise_floor, row.reading.c_str());
     t += line;
   }
-  std::snprintf(line, sizeof line, "\n  inconclusive: %.1f %% (expected %.1f %%)\n", 100 * r.inconclusive_actual,
-                100 * r.inconclusive_expected);
+  std::snprintf(line, sizeof line, "\n  inconclusive: %.1f %% (expected %.1f %%)\n",
+                100 * r.inconclusive_actual, 100 * r.inconclusive_expected);
   t += line;
-  std::snprintf(line, sizeof line,
-                "  declared generated by metadata: %zu, of which not likely-generated: %zu (expected share %.0f %%)\n",
-                r.declared_generated, r.declared_generated_missed, 100 * r.declared_miss_expected);
+  std::snprintf(
+      line, sizeof line,
+      "  declared generated by metadata: %zu, of which not likely-generated: %zu (expected share %.0f %%)\n",
+      r.declared_generated, r.declared_generated_missed, 100 * r.declared_miss_expected);
   t += line;
-  t += "\nPSI < 0.10 stable, 0.10-0.25 moderate, > 0.25 major: common practice in model monitoring, a rule of "
-       "thumb. noise: the PSI that sampling alone exceeds 1 % of the time at these sample sizes; a row at or below "
-       "it reads stable.\n\n";
+  t +=
+      "\nPSI < 0.10 stable, 0.10-0.25 moderate, > 0.25 major: common practice in model monitoring, a rule of "
+      "thumb. noise: the PSI that sampling alone exceeds 1 % of the time at these sample sizes; a row at or "
+      "below "
+      "it reads stable.\n\n";
   for (const auto& f : r.findings) t += "* " + f + "\n";
   return t;
 }

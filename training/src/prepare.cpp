@@ -86,7 +86,8 @@ PrepareReport prepare_dataset(const Dataset& dataset, const ExtractOptions& opti
   for (size_t i = 0; i < n; ++i) {
     if (outcomes[i].item) {
       (outcomes[i].item->from_cache ? report.cached : report.extracted) += 1;
-      if (outcomes[i].item->from_cache) report.cached_extract_seconds += outcomes[i].item->facts.extract_ms / 1000.0;
+      if (outcomes[i].item->from_cache)
+        report.cached_extract_seconds += outcomes[i].item->facts.extract_ms / 1000.0;
       report.items.push_back(std::move(*outcomes[i].item));
     } else {
       report.failed.emplace_back(dataset.files[i], *outcomes[i].error);

@@ -2,10 +2,10 @@
 
 #include <algorithm>
 #include <array>
-#include <set>
 #include <chrono>
 #include <cmath>
 #include <ctime>
+#include <set>
 
 #include "residue/features/fingerprint.hpp"
 
@@ -109,7 +109,8 @@ TrainSettings settings_from_model(const Model& model) {
   TrainSettings s;
   s.target_fpr = model.thresholds.target_fpr;
   s.generated_miss = model.thresholds.generated_miss;
-  const nlohmann::json p = model.provenance.is_object() ? nlohmann::json(model.provenance) : nlohmann::json::object();
+  const nlohmann::json p =
+      model.provenance.is_object() ? nlohmann::json(model.provenance) : nlohmann::json::object();
   const auto cv = p.value("cross_validation", nlohmann::json::object());
   s.folds = cv.value("folds", s.folds);
   std::string group_by = cv.value("group_by", std::string("duplicates"));

@@ -2,11 +2,10 @@
 // records of one or more scans (shards concatenate).
 #pragma once
 
+#include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
 #include <vector>
-
-#include <nlohmann/json.hpp>
 
 #include "residue/training/model.hpp"
 

@@ -27,8 +27,8 @@ Thresholds effective_thresholds(const Model& model, const ScanSettings& settings
 nlohmann::ordered_json scan_file(const std::string& path, const Model& model, const ScanSettings& settings);
 
 // Scores bytes already in memory (the HTTP service); `path` is only echoed.
-nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::uint8_t> bytes, const Model& model,
-                                  const ScanSettings& settings);
+nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::uint8_t> bytes,
+                                  const Model& model, const ScanSettings& settings);
 
 // What the metadata declares, or null when it declares nothing.
 nlohmann::ordered_json declared_json(const DeclaredMetadata& metadata);

@@ -39,12 +39,12 @@ struct WorkerSettings {
   std::string consumer;  // this worker's name in the group
   std::string results;   // result stream
   ScanSettings scan;
-  int read_count = 8;                               // jobs taken per read
-  std::chrono::milliseconds block{1000};            // longest wait for new jobs (also the stop latency)
-  std::chrono::milliseconds reclaim_after{30000};   // a job pending this long is taken from its worker
-  int max_deliveries = 3;                           // then "gave-up"
-  bool delete_done = true;                          // XDEL finished jobs so the stream stays small
-  std::string jsonl_path;                           // also append each record here (may repeat on retry)
+  int read_count = 8;                              // jobs taken per read
+  std::chrono::milliseconds block{1000};           // longest wait for new jobs (also the stop latency)
+  std::chrono::milliseconds reclaim_after{30000};  // a job pending this long is taken from its worker
+  int max_deliveries = 3;                          // then "gave-up"
+  bool delete_done = true;                         // XDEL finished jobs so the stream stays small
+  std::string jsonl_path;                          // also append each record here (may repeat on retry)
 };
 
 struct WorkerStats {
@@ -61,8 +61,8 @@ using QueueLog = std::function<void(const std::string& line)>;
 // Serves jobs until `stop` becomes true; jobs already read are finished and acknowledged first.
 // Connection failures are retried with backoff, never fatal; only unusable settings (a wrong
 // password, a stream that is not a stream) end it with an error.
-Result<WorkerStats> run_worker(const Model& model, const WorkerSettings& settings, const std::atomic<bool>& stop,
-                               const QueueLog& log);
+Result<WorkerStats> run_worker(const Model& model, const WorkerSettings& settings,
+                               const std::atomic<bool>& stop, const QueueLog& log);
 
 struct EnqueueSettings {
   QueueConnection connection;
@@ -86,9 +86,9 @@ Result<EnqueueStats> enqueue_jobs(const std::vector<std::string>& paths, const E
 struct CollectSettings {
   QueueConnection connection;
   std::string results;
-  std::optional<size_t> expect;  // wait until this many distinct jobs have results
+  std::optional<size_t> expect;           // wait until this many distinct jobs have results
   std::chrono::milliseconds wait{60000};  // longest wait for `expect`
-  bool trim = false;  // delete collected entries from the result stream afterwards
+  bool trim = false;                      // delete collected entries from the result stream afterwards
 };
 
 struct CollectStats {

@@ -10,8 +10,8 @@
 // scores the same draw with both models; the change NEW - OLD gets a (1 - alpha) percentile
 // interval. A metric is "worse" when the whole interval lies on the bad side of zero (below for
 // AUC and TPR, above for FPR and ECE) and the change is larger than `tolerance` that way; "better"
-// symmetrically; "same" otherwise. A row is worse when any of its metrics is; NEW passes when no row is worse.
-// Deterministic for a given seed.
+// symmetrically; "same" otherwise. A row is worse when any of its metrics is; NEW passes when no row is
+// worse. Deterministic for a given seed.
 #pragma once
 
 #include <cstdint>
@@ -31,7 +31,7 @@ struct CompareSettings {
 // Scores of one model on the comparison images.
 struct ModelScores {
   std::string id;
-  std::vector<double> p;  // calibrated P(generated)
+  std::vector<double> p;   // calibrated P(generated)
   double threshold = 0.5;  // likely-generated at or above
 };
 
