@@ -51,7 +51,7 @@ std::vector<std::string> notes_for(const Model& old_model, const Model& new_mode
   const auto new_seen = generators_seen(new_model);
   for (const auto& row : c.rows) {
     if (row.name == "camera" || row.name == "all") continue;
-    const bool o = old_seen.count(row.name) != 0, n = new_seen.count(row.name) != 0;
+    const bool o = old_seen.contains(row.name), n = new_seen.contains(row.name);
     if (!o || !n) {
       notes.push_back("Generator '" + row.name + "' was " + (o ? "" : "not ") +
                       "in OLD's training data and " + (n ? "" : "not ") + "in NEW's.");
@@ -66,7 +66,7 @@ std::vector<std::string> notes_for(const Model& old_model, const Model& new_mode
     }
   }
   if (old_model.thresholds.target_fpr != new_model.thresholds.target_fpr) {
-    notes.push_back(
+    notes.emplace_back(
         "The models' thresholds were chosen for different false-positive targets; FPR and TPR rows "
         "compare different operating points.");
   }

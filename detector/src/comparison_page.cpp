@@ -45,8 +45,10 @@ std::string comparison_page(const Comparison& c, const std::string& data_descrip
       h += "<tr class='" + m.verdict + "'>";
       if (first) {
         const std::string span = std::to_string(row.metrics.size());
-        h += "<th rowspan='" + span + "'>" + html_escape(row.name) + "<br><small>row: " + row.verdict +
-             "</small></th><td rowspan='" + span + "'>" + std::to_string(row.images) + "</td>";
+        h += "<th rowspan='" + span + "'>";
+        h += html_escape(row.name) + "<br><small>row: " + row.verdict + "</small></th><td rowspan='" + span +
+             "'>";
+        h += std::to_string(row.images) + "</td>";
       }
       first = false;
       h += std::string("<td style='text-align:left'>") + metric_label(m.metric) + "</td><td>" +

@@ -39,8 +39,8 @@ std::vector<Entry> entries_of(const RedisReply& list) {
 // configured maximum) and reports each loss once.
 class Link {
  public:
-  Link(const QueueConnection& settings, const std::atomic<bool>* stop, const QueueLog& log)
-      : settings_(settings), stop_(stop), log_(log) {}
+  Link(QueueConnection settings, const std::atomic<bool>* stop, QueueLog log)
+      : settings_(std::move(settings)), stop_(stop), log_(std::move(log)) {}
 
   // Connected, or false when stopping (or, with a deadline, when it has passed).
   bool ensure(std::optional<Clock::time_point> deadline = std::nullopt) {

@@ -223,7 +223,7 @@ DriftReport assess_drift(const TrainingReference& ref, const std::vector<ScoredI
     r.findings.push_back(sentence);
     raise(major ? "retrain" : "watch");
   }
-  const double n = static_cast<double>(batch.size());
+  const auto n = static_cast<double>(batch.size());
   const double e = r.inconclusive_expected;
   if (r.inconclusive_actual - e > std::max(0.05, 2.0 * std::sqrt(e * (1.0 - e) / n))) {
     r.findings.push_back(fixed("%.1f", 100 * r.inconclusive_actual) +
@@ -252,7 +252,7 @@ DriftReport assess_drift(const TrainingReference& ref, const std::vector<ScoredI
   } else if (r.verdict == "watch") {
     r.findings.insert(r.findings.begin(), "Worth watching: a moderate change, not yet a reason to retrain.");
   } else {
-    r.findings.push_back("No material change from the training data.");
+    r.findings.emplace_back("No material change from the training data.");
   }
   return r;
 }

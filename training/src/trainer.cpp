@@ -150,7 +150,7 @@ nlohmann::ordered_json lineage_of(const Model& parent, const std::vector<Prepare
   std::set<std::string> new_generators;
   for (const auto& it : items) {
     const std::string h = short_hash(it.sha256);
-    if (old_files.count(h) != 0) {
+    if (old_files.contains(h)) {
       kept.insert(h);
       continue;
     }
