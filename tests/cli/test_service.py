@@ -231,7 +231,12 @@ with tempfile.TemporaryDirectory() as tmp:
         check(len(answers) == 12 and all(a[0] in (200, 503) for a in answers), "every request answered 200 or 503")
         check(len(busy) >= 5, f"excess requests get 503 ({len(busy)} of 12)")
         check(all(a[2] == "1" for a in busy), "503 carries Retry-After")
-        check(all(a[1] < 1.0 for a in busy), f"503 comes quickly: {[round(a[1], 2) for a in busy]}")
+        # Relative, not a wall-clock bound (the machine may be loaded): a refusal must not wait for
+        # scoring, so every 503 arrives before the fastest accepted request is answered.
+        served_times = [a[1] for a in answers if a[0] == 200]
+        check(served_times and all(a[1] < min(served_times) for a in busy),
+              f"503 comes before any scored answer: 503 {[round(a[1], 2) for a in busy]}, "
+              f"200 {[round(t, 2) for t in served_times]}")
         check(score(base, data)[0] == 200, "the service recovers after the burst")
     finally:
         stop(proc)
