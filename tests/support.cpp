@@ -4,6 +4,7 @@
 
 #include <cstdio>
 #include <fstream>
+#include <sstream>
 #include <stdexcept>
 
 #include "residue/features/decode.hpp"
@@ -92,6 +93,14 @@ void write_floats(const std::filesystem::path& path, const std::vector<float>& v
   std::ofstream(path, std::ios::binary)
       .write(reinterpret_cast<const char*>(values.data()),
              static_cast<std::streamsize>(values.size() * sizeof(float)));
+}
+
+std::vector<double> numbers(const std::string& text) {
+  std::stringstream ss(text);
+  std::vector<double> v;
+  double x = 0;
+  while (ss >> x) v.push_back(x);
+  return v;
 }
 
 std::vector<float> read_floats(const std::filesystem::path& path) {

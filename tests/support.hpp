@@ -32,6 +32,9 @@ Image grey_of(const Image& image);
 void write_floats(const std::filesystem::path& path, const std::vector<float>& values);
 std::vector<float> read_floats(const std::filesystem::path& path);
 
+// The whitespace-separated numbers of a reference script's output.
+std::vector<double> numbers(const std::string& text);
+
 // Writes bytes to a file.
 void write_bytes(const std::filesystem::path& path, const std::vector<std::uint8_t>& bytes);
 

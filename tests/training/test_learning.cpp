@@ -41,14 +41,6 @@ Labelled read_csv(const std::filesystem::path& path) {
   return d;
 }
 
-std::vector<double> numbers(const std::string& text) {
-  std::stringstream ss(text);
-  std::vector<double> v;
-  double x = 0;
-  while (ss >> x) v.push_back(x);
-  return v;
-}
-
 void write_pairs(const std::filesystem::path& path, const std::vector<int>& y, const std::vector<double>& s) {
   std::ofstream out(path);
   out.precision(17);
@@ -67,7 +59,8 @@ TEST_CASE("linear C-SVC decision values equal scikit-learn's SVC(kernel='linear'
   REQUIRE(d.x.cols == 30);
   for (double c : {0.1, 1.0}) {
     CAPTURE(c);
-    const auto expected = numbers(test::python("svm_reference.py", {"svm", csv.string(), std::to_string(c)}));
+    const auto expected =
+        test::numbers(test::python("svm_reference.py", {"svm", csv.string(), std::to_string(c)}));
     REQUIRE(expected.size() == d.x.rows);
     auto model = train_linear_svm(d.x, d.y, balanced_settings(d.y, c));
     REQUIRE(model.ok());
@@ -105,7 +98,7 @@ TEST_CASE("Platt parameters A, B equal scikit-learn's sigmoid calibration") {
   }
   const auto path = test::scratch() / "margins.csv";
   write_pairs(path, labels, margins);
-  const auto expected = numbers(test::python("svm_reference.py", {"platt", path.string()}));
+  const auto expected = test::numbers(test::python("svm_reference.py", {"platt", path.string()}));
   REQUIRE(expected.size() == 2);
   const PlattSigmoid fit = fit_platt(margins, labels);
   // Both minimise the same convex objective (Newton here, BFGS there) to about 1e-5.
@@ -120,7 +113,7 @@ TEST_CASE("ROC AUC, average precision and Brier score equal sklearn.metrics, tie
   const std::vector<double> s = {0.1, 0.4, 0.35, 0.8, 0.4, 0.9, 0.4, 0.05, 0.7, 0.6, 0.2, 0.35};
   const auto path = test::scratch() / "scores.csv";
   write_pairs(path, y, s);
-  const auto expected = numbers(test::python("metrics_reference.py", {path.string()}));
+  const auto expected = test::numbers(test::python("metrics_reference.py", {path.string()}));
   REQUIRE(expected.size() == 3);
   CHECK(roc_auc(s, y) == doctest::Approx(expected[0]).epsilon(1e-12));
   CHECK(average_precision(s, y) == doctest::Approx(expected[1]).epsilon(1e-12));

@@ -15,14 +15,6 @@ using namespace residue;
 
 namespace {
 
-std::vector<double> numbers(const std::string& text) {
-  std::stringstream ss(text);
-  std::vector<double> v;
-  double x = 0;
-  while (ss >> x) v.push_back(x);
-  return v;
-}
-
 std::string joined(const std::vector<double>& v) {
   std::ostringstream out;
   out.precision(17);
@@ -89,13 +81,13 @@ PreparedItem item(const std::string& sha, Label label, const std::string& genera
 
 TEST_CASE("PSI equals the symmetrised Kullback-Leibler divergence of scipy.stats.entropy") {
   const std::vector<double> e = {0.25, 0.25, 0.25, 0.25}, a = {0.1, 0.2, 0.3, 0.4};
-  auto ref = numbers(test::python("monitoring_reference.py", {"psi", joined(e), joined(a)}));
+  auto ref = test::numbers(test::python("monitoring_reference.py", {"psi", joined(e), joined(a)}));
   REQUIRE(ref.size() == 2);
   CHECK(population_stability_index(e, a) == doctest::Approx(ref[0]).epsilon(1e-12));
   CHECK(population_stability_index(e, a) == doctest::Approx(0.2282174).epsilon(1e-6));  // by hand
   // An empty bin on one side: both floored at 1e-4 (common practice).
   const std::vector<double> e2 = {0.5, 0.3, 0.2, 0.0}, a2 = {0.4, 0.3, 0.0, 0.3};
-  ref = numbers(test::python("monitoring_reference.py", {"psi", joined(e2), joined(a2)}));
+  ref = test::numbers(test::python("monitoring_reference.py", {"psi", joined(e2), joined(a2)}));
   CHECK(population_stability_index(e2, a2) == doctest::Approx(ref[0]).epsilon(1e-12));
   CHECK(population_stability_index(e, e) == 0.0);
   CHECK(psi_reading(0.05) == "stable");
@@ -106,8 +98,8 @@ TEST_CASE("PSI equals the symmetrised Kullback-Leibler divergence of scipy.stats
 TEST_CASE("decile edges equal numpy.quantile; each decile bin holds a tenth of the reference") {
   std::mt19937_64 rng(7);
   const auto values = normal_sample(rng, 1000, 0.0);
-  const auto expected =
-      numbers(test::python("monitoring_reference.py", {"deciles", write_values("d.txt", values).string()}));
+  const auto expected = test::numbers(
+      test::python("monitoring_reference.py", {"deciles", write_values("d.txt", values).string()}));
   const auto edges = decile_edges(values);
   REQUIRE(edges.size() == expected.size());
   for (size_t i = 0; i < edges.size(); ++i) CHECK(edges[i] == doctest::Approx(expected[i]).epsilon(1e-12));
@@ -117,7 +109,7 @@ TEST_CASE("decile edges equal numpy.quantile; each decile bin holds a tenth of t
 }
 
 TEST_CASE("chi-square 99th percentiles equal scipy.stats.chi2.ppf") {
-  const auto expected = numbers(test::python("monitoring_reference.py", {"chi2_99"}));
+  const auto expected = test::numbers(test::python("monitoring_reference.py", {"chi2_99"}));
   REQUIRE(expected.size() == 20);
   for (int dof = 1; dof <= 20; ++dof)
     CHECK(chi_square_99(dof) == doctest::Approx(expected[dof - 1]).epsilon(1e-4));
@@ -195,7 +187,7 @@ TEST_CASE("bootstrap percentiles equal numpy.percentile") {
   std::sort(v.begin(), v.end());
   for (double q : {2.5, 50.0, 97.5}) {
     const auto expected =
-        numbers(test::python("monitoring_reference.py", {"percentile", std::to_string(q), path}));
+        test::numbers(test::python("monitoring_reference.py", {"percentile", std::to_string(q), path}));
     CHECK(percentile_sorted(v, q) == doctest::Approx(expected.at(0)).epsilon(1e-12));
   }
 }
