@@ -12,6 +12,7 @@
 #include "residue/training/atomic_file.hpp"
 #include "residue/training/comparison.hpp"
 #include "residue/training/model.hpp"
+#include "residue/training/trainer.hpp"
 
 namespace residue::cli {
 
@@ -40,7 +41,7 @@ size_t training_overlap(const Model& model, const std::vector<PreparedItem>& ite
   std::set<std::string> files;
   for (const auto& h : listed) files.insert(h.get<std::string>());
   size_t n = 0;
-  for (const auto& it : items) n += files.count(it.sha256.substr(0, 16));
+  for (const auto& it : items) n += files.count(training_file_key(it.sha256));
   return n;
 }
 

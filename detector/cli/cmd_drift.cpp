@@ -133,7 +133,7 @@ int run_drift(const DriftArgs& args) {
     j["advisory"] = kAdvisoryNotice;
     std::cout << j.dump(2) << "\n";
   } else {
-    std::cout << "Model " << model->id << "; " << batch.errors << " error records left out; base rate from "
+    std::cout << "Model " << model->id << "; error records left out: " << batch.errors << "; base rate from "
               << prior_source << ".\n"
               << drift_to_text(report) << "\n"
               << kAdvisoryNotice << "\n";

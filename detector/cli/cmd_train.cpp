@@ -114,6 +114,9 @@ int run_train(TrainArgs& args) {
     std::cerr << "residue train: --keep-c needs --from OLD\n";
     return static_cast<int>(ExitCode::kUsage);
   }
+  // Settings first: a parent that cannot give them is refused before any image is read.
+  auto settings = resolve_settings(args, parent);
+  if (!settings) return static_cast<int>(ExitCode::kFailure);
   auto prepared = prepare_from_args(args.data, "train");
   if (!prepared) return static_cast<int>(ExitCode::kFailure);
   const AuditReport audit = audit_dataset(prepared->report.items, prepared->report.failed.size());
@@ -122,8 +125,6 @@ int run_train(TrainArgs& args) {
     std::cerr << "residue train: refused because of the audit warnings above (--strict)\n";
     return static_cast<int>(ExitCode::kFailure);
   }
-  auto settings = resolve_settings(args, parent);
-  if (!settings) return static_cast<int>(ExitCode::kFailure);
   auto outcome = train_model(prepared->report.items, *settings, audit);
   if (!outcome) {
     std::cerr << "residue train: " << outcome.error().message << "\n";

@@ -126,8 +126,13 @@ TEST_CASE("the PSI noise floor is exceeded about 1 % of the time by batches draw
                                                   bin_shares(edges, normal_sample(rng, 200, 0.0)));
     exceed += psi > psi_noise_floor(edges.size() + 1, 200, 300) ? 1 : 0;
   }
-  // Nominal 1 %; the chi-square approximation is loose in the tails, so allow 0-4 %.
+  // Nominal 1 %; the chi-square approximation is loose in the tails, so allow 0.25-4 %.
+  CHECK(exceed >= 1);
   CHECK(exceed <= trials * 4 / 100);
+  // The floor by its formula: 99th percentile of chi-square(9) = 21.666 (scipy, above) over
+  // n_eff = 1 / (1/200 + 1/300) = 120.
+  CHECK(psi_noise_floor(10, 200, 300) == doctest::Approx(21.666 / 120.0).epsilon(1e-4));
+  CHECK(psi_noise_floor(10, 0, 300) == 0.0);
 }
 
 TEST_CASE("drift: a batch drawn like the training data is stable, a shifted one asks for retraining") {
@@ -148,10 +153,19 @@ TEST_CASE("drift: a batch drawn like the training data is stable, a shifted one 
   // ...but reads as a changed score distribution at the training base rate.
   CHECK(assess_drift(ref, mostly_camera, 0.5).rows[0].reading != "stable");
 
+  // Records without family_distance (an older residue): those rows say "no data", never drift.
+  auto no_distance = simulated_batch(rng, 250, 250, 0.0);
+  for (auto& s : no_distance) s.distance.clear();
+  const DriftReport older = assess_drift(ref, no_distance, 0.5);
+  CHECK(older.verdict == "stable");
+  CHECK(older.rows[2].summary == "noise distance");
+  CHECK(older.rows[2].reading == "no data");
+
   // Too few images: figures, no flag.
   const DriftReport few = assess_drift(ref, simulated_batch(rng, 20, 20, 2.0), 0.5);
   CHECK(few.too_few);
   CHECK(few.verdict == "stable");
+  for (const auto& row : few.rows) CHECK(row.reading == "not judged");
 }
 
 TEST_CASE("drift: declared-generated images the model misses are flagged beyond the training miss rate") {

@@ -48,6 +48,10 @@ DriftRow compare_row(const std::string& summary, const std::string& family, cons
   row.psi = population_stability_index(row.expected, row.actual);
   row.noise_floor = psi_noise_floor(row.expected.size(), values.size(), reference_images);
   row.reading = row.psi > row.noise_floor ? psi_reading(row.psi) : "stable";
+  if (values.empty()) {  // e.g. records from a residue that did not write family_distance yet
+    row.psi = 0.0;
+    row.reading = "no data";
+  }
   return row;
 }
 
@@ -92,8 +96,8 @@ std::string psi_reading(double psi) {
 }
 
 double chi_square_99(int dof) {
-  // Upper 1 % points of chi-square, degrees of freedom 1..20 (e.g. NIST/SEMATECH e-Handbook,
-  // table 1.3.6.7.4).
+  // Upper 1 % points of chi-square, degrees of freedom 1..20, as printed in standard tables (e.g.
+  // the NIST/SEMATECH e-Handbook's chi-square table; quoted from memory, checked against scipy).
   static const double table[] = {6.635,  9.210,  11.345, 13.277, 15.086, 16.812, 18.475,
                                  20.090, 21.666, 23.209, 24.725, 26.217, 27.688, 29.141,
                                  30.578, 32.000, 33.409, 34.805, 36.191, 37.566};
@@ -196,9 +200,10 @@ DriftReport assess_drift(const TrainingReference& ref, const std::vector<ScoredI
     if (std::string(level) == "retrain" || r.verdict == "stable") r.verdict = level;
   };
   if (r.too_few) {
+    for (auto& row : r.rows) row.reading = "not judged";
     r.findings.push_back("Only " + std::to_string(batch.size()) + " scored images: at least " +
                          std::to_string(kMinimumImages) +
-                         " are needed before drift is judged (the figures below are shown but not flagged).");
+                         " are needed before drift is judged (the figures above are shown, not judged).");
     return r;
   }
   // Most serious first: PSI rows by size.
@@ -207,7 +212,7 @@ DriftReport assess_drift(const TrainingReference& ref, const std::vector<ScoredI
   std::stable_sort(order.begin(), order.end(),
                    [](const DriftRow* a, const DriftRow* b) { return a->psi > b->psi; });
   for (const DriftRow* row : order) {
-    if (row->reading == "stable") continue;
+    if (row->reading == "stable" || row->reading == "no data") continue;
     const bool major = row->reading == "major";
     std::string sentence = (major ? "Major change" : "Moderate change") + std::string(" in the ") +
                            row->summary + " (PSI " + fixed("%.2f", row->psi) + "): ";

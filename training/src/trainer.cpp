@@ -52,8 +52,6 @@ Result<std::vector<double>> fit_and_score(const std::vector<PreparedItem>& items
 
 const char* const kGroupNames[] = {"duplicates", "folder", "manifest"};
 
-std::string short_hash(const std::string& sha256) { return sha256.substr(0, 16); }
-
 // Histograms of the out-of-fold margins and of each family's contribution and distance under the
 // final model; band shares of each class out of fold.
 TrainingReference training_reference(const Model& model, const std::vector<PreparedItem>& items,
@@ -94,6 +92,8 @@ std::string utc_now() {
 }
 
 }  // namespace
+
+std::string training_file_key(const std::string& sha256) { return sha256.substr(0, 16); }
 
 nlohmann::ordered_json settings_to_json(const TrainSettings& s) {
   return {{"folds", s.folds},
@@ -149,7 +149,7 @@ nlohmann::ordered_json lineage_of(const Model& parent, const std::vector<Prepare
   std::map<std::string, size_t> per_generator;
   std::set<std::string> new_generators;
   for (const auto& it : items) {
-    const std::string h = short_hash(it.sha256);
+    const std::string h = training_file_key(it.sha256);
     if (old_files.contains(h)) {
       kept.insert(h);
       continue;
@@ -267,7 +267,7 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   for (const auto& [c, auc] : cv.auc_by_c) grid.push_back({{"c", c}, {"oof_roc_auc", auc}});
   std::vector<std::string> files;
   files.reserve(items.size());
-  for (const auto& it : items) files.push_back(short_hash(it.sha256));
+  for (const auto& it : items) files.push_back(training_file_key(it.sha256));
   std::sort(files.begin(), files.end());
   model.provenance = {{"counts", counts},
                       {"settings", settings_to_json(settings)},

@@ -5,11 +5,11 @@
 #include <algorithm>
 #include <condition_variable>
 #include <functional>
+#include <istream>
 #include <map>
 #include <mutex>
-#include <thread>
-#include <istream>
 #include <string>
+#include <thread>
 #include <vector>
 
 #include "residue/features/extract.hpp"

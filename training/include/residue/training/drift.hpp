@@ -90,7 +90,8 @@ struct DriftRow {
   std::string family;   // empty for the score
   double psi = 0.0;
   double noise_floor = 0.0;  // psi_noise_floor for this row
-  std::string reading;       // psi_reading, or "stable" when psi <= noise_floor
+  std::string reading;       // psi_reading, "stable" when psi <= noise_floor, "no data" without values,
+                             // "not judged" in a batch under kMinimumImages
   std::vector<double> expected, actual;
 };
 

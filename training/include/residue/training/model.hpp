@@ -46,7 +46,7 @@ struct Model {
   PlattSigmoid calibration;
   double training_prior = 0.5;  // share of generated images in the calibration data
   Thresholds thresholds;
-  nlohmann::ordered_json provenance;  // counts, audit warnings, CV metrics, settings, lineage
+  nlohmann::ordered_json provenance;           // counts, audit warnings, CV metrics, settings, lineage
   std::optional<TrainingReference> reference;  // for drift; absent in models from before it existed
 };
 

@@ -46,6 +46,10 @@ struct TrainOutcome {
 nlohmann::ordered_json settings_to_json(const TrainSettings& settings);
 TrainSettings settings_from_model(const Model& model);
 
+// How a model's provenance lists a training file ("training_files"): the first 16 hex digits of
+// its SHA-256 (64 bits; a chance collision among 10^7 files is about 3 in a million).
+std::string training_file_key(const std::string& sha256);
+
 // What a retrain changed against its parent: images added and removed (by content hash), per
 // class and generator, and generators new to the model. Needs the parent's "training_files".
 nlohmann::ordered_json lineage_of(const Model& parent, const std::vector<PreparedItem>& items);
