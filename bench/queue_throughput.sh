@@ -9,12 +9,8 @@
 set -euo pipefail
 residue=$(realpath "${1:-build/residue}")
 work=${2:-/tmp/residue-queue-bench}
-here=$(cd "$(dirname "$0")/.." && pwd)
-rm -rf "$work" && mkdir -p "$work"
-/usr/bin/python3 "$here/tests/cli/make_labelled.py" "$work/train" 1 jpeg png 40
-/usr/bin/python3 "$here/tests/cli/make_labelled.py" "$work/images" 9 jpeg png 500
-"$residue" train "$work/train" -o "$work/model.json" --no-cache > /dev/null 2>&1
-n=$(find "$work/images" -type f | wc -l)
+source "$(dirname "$0")/simulated_set.sh"
+simulated_set "$residue" "$work"
 port=$(/usr/bin/python3 -c "import socket; s=socket.socket(); s.bind(('127.0.0.1', 0)); print(s.getsockname()[1])")
 redis-server --port "$port" --bind 127.0.0.1 --dir "$work" --appendonly yes --appendfsync everysec --save "" \
   > "$work/redis.log" 2>&1 &

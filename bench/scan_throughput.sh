@@ -7,12 +7,8 @@
 set -euo pipefail
 residue=${1:-build/residue}
 work=${2:-/tmp/residue-scan-bench}
-here=$(cd "$(dirname "$0")/.." && pwd)
-rm -rf "$work" && mkdir -p "$work"
-/usr/bin/python3 "$here/tests/cli/make_labelled.py" "$work/train" 1 jpeg png 40
-/usr/bin/python3 "$here/tests/cli/make_labelled.py" "$work/images" 9 jpeg png 500
-"$residue" train "$work/train" -o "$work/model.json" --no-cache > /dev/null 2>&1
-n=$(find "$work/images" -type f | wc -l)
+source "$(dirname "$0")/simulated_set.sh"
+simulated_set "$residue" "$work"
 echo "images: $n ($(du -sh "$work/images" | cut -f1)), 256 x 256 px, JPEG q90 and PNG"
 for jobs in 1 2; do
   /usr/bin/time -f "%e %M" -o "$work/time" "$residue" scan "$work/model.json" "$work/images" --jobs "$jobs" \
