@@ -1,5 +1,6 @@
 #include <hiredis/hiredis.h>
 
+#include <algorithm>
 #include <charconv>
 
 #include "residue/detector/redis_client.hpp"
@@ -60,6 +61,16 @@ bool parse_int(const std::string& s, int& out) {
 
 }  // namespace
 
+bool RedisReply::is_transient_error() const {
+  if (!is_error()) return false;
+  // The first word of an error reply is its kind (Redis protocol specification, "RESP errors").
+  const std::string kind = text.substr(0, text.find(' '));
+  static const std::vector<std::string> kTransient = {"LOADING",     "BUSY",     "TRYAGAIN", "MASTERDOWN",
+                                                      "CLUSTERDOWN", "READONLY", "OOM"};
+  if (std::find(kTransient.begin(), kTransient.end(), kind) != kTransient.end()) return true;
+  return text.rfind("ERR max number of clients reached", 0) == 0;
+}
+
 Result<RedisAddress> parse_redis_url(const std::string& url) {
   const std::string scheme = "redis://";
   if (url.rfind(scheme, 0) != 0) {
@@ -104,11 +115,13 @@ Result<std::unique_ptr<RedisClient>> RedisClient::connect(const RedisAddress& ad
   if (!address.password.empty()) {
     auto r = client->command({"AUTH", address.password});
     if (!r) return r.error();
+    if (r->is_transient_error()) return make_error(ErrorCode::kUnreadable, "Redis is not ready: " + r->text);
     if (r->is_error()) return make_error(ErrorCode::kUnsupported, "Redis refused the password: " + r->text);
   }
   if (address.db != 0) {
     auto r = client->command({"SELECT", std::to_string(address.db)});
     if (!r) return r.error();
+    if (r->is_transient_error()) return make_error(ErrorCode::kUnreadable, "Redis is not ready: " + r->text);
     if (r->is_error()) return make_error(ErrorCode::kUnsupported, "Redis refused the database: " + r->text);
   }
   return client;

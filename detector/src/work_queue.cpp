@@ -1,5 +1,6 @@
 #include "residue/detector/work_queue.hpp"
 
+#include <algorithm>
 #include <ctime>
 #include <filesystem>
 #include <fstream>
@@ -67,6 +68,30 @@ class Link {
     return true;
   }
   RedisClient& client() { return *client_; }
+
+  // Redis answered "not now" (RedisReply::is_transient_error): wait, doubling and jittered like a
+  // reconnection, and report it once. False when stopping, or when Redis has been answering so
+  // for longer than `give_up_after`.
+  bool wait_busy(const RedisReply& reply,
+                 std::optional<std::chrono::milliseconds> give_up_after = std::nullopt) {
+    if (!busy_since_) {
+      busy_since_ = Clock::now();
+      busy_wait_ = std::chrono::milliseconds(100);
+      log_("Redis is not ready (" + reply.text + "); waiting and trying again");
+    }
+    if (stop_ != nullptr && *stop_) return false;
+    if (give_up_after && Clock::now() - *busy_since_ > *give_up_after) return false;
+    std::uniform_int_distribution<int> jitter(0, static_cast<int>(busy_wait_.count() / 4));
+    std::this_thread::sleep_for(busy_wait_ + std::chrono::milliseconds(jitter(rng_)));
+    busy_wait_ = std::min(busy_wait_ * 2, settings_.max_backoff);
+    return true;
+  }
+  // A command went through: the next "not now" is a new episode.
+  void ready() {
+    if (busy_since_) log_("Redis is ready again");
+    busy_since_.reset();
+  }
+
   void drop(const Error& e) {
     log_("lost the Redis connection: " + e.message);
     client_.reset();
@@ -82,6 +107,8 @@ class Link {
   QueueLog log_;
   std::unique_ptr<RedisClient> client_;
   bool lost_ = false;
+  std::optional<Clock::time_point> busy_since_;
+  std::chrono::milliseconds busy_wait_{100};
   std::optional<Error> fatal_;
   std::mt19937 rng_{std::random_device{}()};
 };
@@ -116,6 +143,10 @@ class Worker {
           link_.drop(made.error());
           continue;
         }
+        if (made->is_transient_error()) {
+          link_.wait_busy(*made);
+          continue;
+        }
         if (made->is_error() && made->text.rfind("BUSYGROUP", 0) != 0) {
           return make_error(ErrorCode::kUnsupported, "cannot create consumer group: " + made->text);
         }
@@ -128,6 +159,10 @@ class Worker {
                                          cursor, "COUNT", std::to_string(s_.read_count)});
         if (!r) {
           link_.drop(r.error());
+          continue;
+        }
+        if (r->is_transient_error()) {
+          link_.wait_busy(*r);
           continue;
         }
         if (r->is_error()) {
@@ -154,6 +189,10 @@ class Worker {
           link_.drop(r.error());
           continue;
         }
+        if (r->is_transient_error()) {
+          link_.wait_busy(*r);
+          continue;
+        }
         if (r->is_error()) {
           if (!regroup(*r)) return make_error(ErrorCode::kUnsupported, "XREADGROUP: " + r->text);
           continue;
@@ -161,6 +200,7 @@ class Worker {
         if (!r->elements.empty() && r->elements[0].elements.size() == 2)
           entries = entries_of(r->elements[0].elements[1]);
       }
+      link_.ready();
       // Jobs read are in flight: finish them even when a stop was asked for meanwhile.
       for (const auto& e : entries) {
         if (auto handled = handle(e, claimed); !handled) return handled.error();
@@ -259,6 +299,10 @@ class Worker {
           link_.drop(pending.error());
           continue;
         }
+        if (pending->is_transient_error()) {
+          if (!link_.wait_busy(*pending)) return true;  // stopping: the job stays pending
+          continue;
+        }
         if (pending->type == RedisReply::Type::kArray && pending->elements.empty())
           return true;  // done before
       }
@@ -275,12 +319,20 @@ class Worker {
         continue;
       }
       const RedisReply& exec = replies->back();
+      const auto not_now = std::find_if(replies->begin(), replies->end(),
+                                        [](const RedisReply& r) { return r.is_transient_error(); });
+      if (exec.type != RedisReply::Type::kArray && not_now != replies->end()) {
+        // The transaction was refused as a whole (EXECABORT): nothing was written; try again.
+        if (!link_.wait_busy(*not_now)) return true;  // stopping: the job stays pending
+        continue;
+      }
       if (exec.type != RedisReply::Type::kArray) {
         for (const auto& r : *replies) {
           if (r.is_error()) return make_error(ErrorCode::kUnsupported, "writing a result failed: " + r.text);
         }
         return make_error(ErrorCode::kUnsupported, "writing a result failed: transaction aborted");
       }
+      link_.ready();
       if (jsonl_) jsonl_ << record << "\n" << std::flush;
       return true;
     }
@@ -317,17 +369,34 @@ Result<EnqueueStats> enqueue_jobs(const std::vector<std::string>& paths, const E
       return make_error(ErrorCode::kUnreadable, "cannot reach Redis; " + std::to_string(stats.enqueued) +
                                                     " jobs were enqueued before the connection was lost");
     }
-    auto replies = link.client().pipeline(batch);
-    if (!replies) {
-      return make_error(ErrorCode::kUnreadable,
-                        replies.error().message + "; " + std::to_string(stats.enqueued) +
-                            " jobs were enqueued before (the last batch may be partly in)");
+    while (!batch.empty()) {
+      auto replies = link.client().pipeline(batch);
+      if (!replies) {
+        return make_error(ErrorCode::kUnreadable,
+                          replies.error().message + "; " + std::to_string(stats.enqueued) +
+                              " jobs were enqueued before (the last batch may be partly in)");
+      }
+      // Jobs refused with "not now" are sent again after a wait; their job ids stay the same.
+      std::vector<std::vector<std::string>> again;
+      const RedisReply* not_now = nullptr;
+      for (size_t i = 0; i < replies->size(); ++i) {
+        const RedisReply& r = (*replies)[i];
+        if (r.is_transient_error()) {
+          not_now = &r;
+          again.push_back(std::move(batch[i]));
+        } else if (r.is_error()) {
+          return make_error(ErrorCode::kUnsupported, "XADD refused: " + r.text);
+        } else {
+          ++stats.enqueued;
+        }
+      }
+      if (not_now != nullptr && !link.wait_busy(*not_now, 3 * s.connection.timeout)) {
+        return make_error(ErrorCode::kUnreadable, "Redis stayed not ready (" + not_now->text + "); " +
+                                                      std::to_string(stats.enqueued) + " jobs were enqueued");
+      }
+      if (not_now == nullptr) link.ready();
+      batch = std::move(again);
     }
-    for (const auto& r : *replies) {
-      if (r.is_error()) return make_error(ErrorCode::kUnsupported, "XADD refused: " + r.text);
-      ++stats.enqueued;
-    }
-    batch.clear();
     return true;
   };
   for (const auto& path : paths) {
@@ -384,7 +453,14 @@ Result<CollectStats> collect_results(const CollectSettings& s,
       link.drop(r.error());
       continue;
     }
+    if (r->is_transient_error()) {
+      if (!link.wait_busy(*r, waiting ? std::nullopt : std::optional(3 * s.connection.timeout))) {
+        return make_error(ErrorCode::kUnreadable, "Redis stayed not ready: " + r->text);
+      }
+      continue;
+    }
     if (r->is_error()) return make_error(ErrorCode::kUnsupported, "XREAD: " + r->text);
+    link.ready();
     if (r->is_nil() || r->elements.empty() || r->elements[0].elements.size() != 2) {
       if (!waiting) break;  // everything there is has been read
       continue;

@@ -25,13 +25,35 @@ class RedisServer:
     def start(self):
         self.process = subprocess.Popen(
             ["redis-server", "--port", str(self.port), "--bind", "127.0.0.1", "--dir", self.folder,
-             "--appendonly", "yes", "--appendfsync", "always", "--save", "", "--protected-mode", "yes"],
+             "--appendonly", "yes", "--appendfsync", "always", "--save", "", "--protected-mode", "yes",
+             "--enable-debug-command", "local"],
             stdout=open(os.path.join(self.folder, "redis.log"), "a"), stderr=subprocess.STDOUT)
-        for _ in range(100):
+        for _ in range(600):  # up to 30 s: after a restart it answers LOADING while reading its file
             if self.ping():
                 return
             time.sleep(0.05)
         raise RuntimeError("redis-server did not start")
+
+    def ballast(self, keys):
+        """Fill Redis with `keys` small keys and write them into the append-only file, so that a
+        restart spends a while loading (Redis answers LOADING meanwhile)."""
+        self.cli("DEBUG", "POPULATE", keys, "ballast", 64)
+        self.cli("BGREWRITEAOF")
+        for _ in range(600):
+            info = self.cli("INFO", "persistence")
+            if "aof_rewrite_in_progress:0" in info and "aof_rewrite_scheduled:0" in info:
+                return
+            time.sleep(0.1)
+        raise RuntimeError("the append-only file rewrite did not finish")
+
+    def busy(self, seconds):
+        """A script that runs for `seconds`: meanwhile Redis answers every other client BUSY
+        (after busy-reply-threshold, set here to 100 ms). Returns the redis-cli process."""
+        self.cli("CONFIG", "SET", "busy-reply-threshold", 100)
+        script = ("local function now() local t = redis.call('TIME') return t[1] + t[2] / 1e6 end "
+                  f"local t0 = now() while now() - t0 < {seconds} do end return 1")
+        return subprocess.Popen(["redis-cli", "-p", str(self.port), "EVAL", script, "0"],
+                                stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
 
     def kill(self):
         """SIGKILL: a crash, not a clean shutdown."""

@@ -3,7 +3,10 @@
 
 - 1,000 jobs over 3 workers: every job has exactly one record; SIGTERM stops workers cleanly.
 - SIGKILL of a worker mid-batch: its pending jobs are taken over; every job still scored once.
-- Redis killed and restarted mid-batch (append-only file on): workers reconnect and finish.
+- Redis killed and restarted mid-batch (append-only file on, with enough data that it answers
+  LOADING for a while after the restart): workers reconnect, wait and finish.
+- Redis busy (a long script: every other client is answered BUSY): workers, enqueue and collect
+  wait and go on.
 - A broken file is a poison input: one error record, acknowledged. A missing file is retried a
   bounded number of times, then gets its error record.
 
@@ -35,12 +38,18 @@ def make(root, seed, count):
 
 def start_worker(redis, model, stream, name, log_folder, *extra):
     log = open(os.path.join(log_folder, name + ".log"), "w")
-    return subprocess.Popen([residue, "worker", model, "--redis", redis.url, "--stream", stream, "--consumer", name,
-                             "--block", "0.2"] + list(extra), stdout=log, stderr=subprocess.STDOUT)
+    worker = subprocess.Popen([residue, "worker", model, "--redis", redis.url, "--stream", stream, "--consumer", name,
+                               "--block", "0.2"] + list(extra), stdout=log, stderr=subprocess.STDOUT)
+    worker.log_path = log.name
+    return worker
 
 
-def enqueue_copies(redis, stream, folder):
-    for k in range(COPIES):
+def logs_of(workers):
+    return "".join(open(w.log_path).read() for w in workers)
+
+
+def enqueue_copies(redis, stream, folder, copies=range(COPIES)):
+    for k in copies:
         r = run(["enqueue", folder, "--redis", redis.url, "--stream", stream, "--batch", f"b{k}"])
         check(r.returncode == 0, f"enqueue exits 0: {r.stderr[-300:]}")
 
@@ -49,6 +58,8 @@ def collect(redis, stream, out, expect):
     r = run(["collect", "--redis", redis.url, "--results", stream + ":results", "-o", out, "--expect", str(expect),
              "--wait", "400"])
     check(r.returncode == 0, f"collect gets all {expect} results: {r.stderr[-300:]}")
+    if not os.path.exists(out):
+        return []
     with open(out) as f:
         return [json.loads(line) for line in f]
 
@@ -72,7 +83,12 @@ def stop_all(workers, what):
         except subprocess.TimeoutExpired:
             w.kill()
             codes.append(None)
-    check(all(c == 0 for c in codes), f"{what}: workers stop cleanly on SIGTERM (exit codes {codes})")
+    clean = all(c == 0 for c in codes)
+    check(clean, f"{what}: workers stop cleanly on SIGTERM (exit codes {codes})")
+    if not clean:
+        for w, c in zip(workers, codes):
+            if c != 0:
+                print(f"--- {w.log_path} (exit {c}), last lines:\n" + "".join(open(w.log_path).readlines()[-15:]))
 
 
 started = time.time()
@@ -145,6 +161,9 @@ with tempfile.TemporaryDirectory() as tmp:
 
         stage("Redis restart")
         # 3. Redis crashes mid-batch and comes back from its append-only file.
+        # A million small keys make Redis spend about 1.5 s loading after the restart, answering
+        # LOADING to every command meanwhile (CI once caught a worker giving up on that reply).
+        redis.ballast(1_000_000)
         workers = [start_worker(redis, model, "jobs3", f"r{i}", tmp) for i in range(2)]
         enqueue_copies(redis, "jobs3", images)
         check(wait_for(lambda: redis.int("XLEN", "jobs3:results") >= 200, 120), "work starts before the crash")
@@ -153,12 +172,34 @@ with tempfile.TemporaryDirectory() as tmp:
         redis.start()
         records = collect(redis, "jobs3", os.path.join(tmp, "restart.jsonl"), 1000)
         every_job_once(records, "after a Redis restart")
-        logs = "".join(open(os.path.join(tmp, f"r{i}.log")).read() for i in range(2))
+        logs = logs_of(workers)
         check("reconnected to Redis" in logs, "workers reconnect after the restart")
+        print("  workers saw Redis loading:", "not ready (LOADING" in logs)
         stop_all(workers, "after a Redis restart")
+        redis.cli("FLUSHDB")
+
+        stage("Redis busy")
+        # 4. A long script: Redis answers every other client BUSY for 3 s. Workers, enqueue and
+        # collect must wait and go on (before, a worker took any error reply as fatal).
+        # The script starts while both workers are busy scoring (a worker waiting inside a blocking
+        # read would only see the script end), and half of the jobs are enqueued during it.
+        workers = [start_worker(redis, model, "jobs5", f"b{i}", tmp) for i in range(2)]
+        enqueue_copies(redis, "jobs5", images, range(COPIES // 2))
+        check(wait_for(lambda: redis.int("XLEN", "jobs5:results") >= 100, 120), "work starts before the script")
+        script = redis.busy(3)
+        time.sleep(0.3)
+        enqueue_copies(redis, "jobs5", images, range(COPIES // 2, COPIES))
+        records = collect(redis, "jobs5", os.path.join(tmp, "busy.jsonl"), 1000)
+        script.wait()
+        every_job_once(records, "while Redis was busy")
+        logs = logs_of(workers)
+        check(all("not ready (BUSY" in open(w.log_path).read() for w in workers),
+              "each worker was told BUSY, waited and went on")
+        check("ready again" in logs, "workers say when Redis answers again")
+        stop_all(workers, "while Redis was busy")
 
         stage("missing file")
-        # 4. A missing file: retried once more, then its error record; never redelivered forever.
+        # 5. A missing file: retried once more, then its error record; never redelivered forever.
         worker = start_worker(redis, model, "jobs4", "m0", tmp, "--reclaim-after", "0.3", "--max-deliveries", "2")
         r = run(["enqueue", "-", "--redis", redis.url, "--stream", "jobs4", "--batch", "gone"],
                 stdin=os.path.join(tmp, "no-such-file.png") + "\n")

@@ -33,3 +33,33 @@ TEST_CASE("Redis URLs: refused with a reason") {
   CHECK_FALSE(parse_redis_url("redis://host:70000"));
   CHECK_FALSE(parse_redis_url("redis://host/x"));
 }
+
+// Error replies as redis-server 7 words them (seen on Debian's redis-server 7.0 while writing the
+// work-queue tests; the kinds are listed in the Redis documentation of error replies, from memory).
+TEST_CASE("Redis error replies: 'not now' is told apart from 'never'") {
+  const auto error = [](const std::string& text) {
+    RedisReply r;
+    r.type = RedisReply::Type::kError;
+    r.text = text;
+    return r;
+  };
+  CHECK(error("LOADING Redis is loading the dataset in memory").is_transient_error());
+  CHECK(error("BUSY Redis is busy running a script. You can only call SCRIPT KILL or SHUTDOWN NOSAVE.")
+            .is_transient_error());
+  CHECK(error("MASTERDOWN Link with MASTER is down and replica-serve-stale-data is set to 'no'.")
+            .is_transient_error());
+  CHECK(error("OOM command not allowed when used memory > 'maxmemory'.").is_transient_error());
+  CHECK(error("READONLY You can't write against a read only replica.").is_transient_error());
+  CHECK(error("ERR max number of clients reached").is_transient_error());
+  // Refusals that waiting does not cure.
+  CHECK_FALSE(error("BUSYGROUP Consumer Group name already exists").is_transient_error());
+  CHECK_FALSE(error("NOGROUP No such key 'jobs' or consumer group 'residue'").is_transient_error());
+  CHECK_FALSE(
+      error("WRONGTYPE Operation against a key holding the wrong kind of value").is_transient_error());
+  CHECK_FALSE(error("ERR unknown command 'XAUTOCLAIM'").is_transient_error());
+  CHECK_FALSE(error("EXECABORT Transaction discarded because of previous errors.").is_transient_error());
+  RedisReply status;
+  status.type = RedisReply::Type::kStatus;
+  status.text = "LOADING";
+  CHECK_FALSE(status.is_transient_error());  // only error replies
+}

@@ -28,6 +28,11 @@ struct RedisReply {
   std::vector<RedisReply> elements;
   [[nodiscard]] bool is_error() const { return type == Type::kError; }
   [[nodiscard]] bool is_nil() const { return type == Type::kNil; }
+  // An error reply that means "not now" rather than "never": Redis still loading its data after a
+  // restart (LOADING), a long script (BUSY), a failover or resharding (MASTERDOWN, CLUSTERDOWN,
+  // TRYAGAIN, READONLY), memory full until results are collected (OOM), too many clients.
+  // The caller waits and tries again.
+  [[nodiscard]] bool is_transient_error() const;
 };
 
 class RedisClient {
