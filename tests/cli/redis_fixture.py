@@ -37,7 +37,7 @@ class RedisServer:
     def ballast(self, keys):
         """Fill Redis with `keys` small keys and write them into the append-only file, so that a
         restart spends a while loading (Redis answers LOADING meanwhile)."""
-        self.cli("DEBUG", "POPULATE", keys, "ballast", 64)
+        self.cli("DEBUG", "POPULATE", keys, "ballast", 64, timeout=120)
         self.cli("BGREWRITEAOF")
         for _ in range(600):
             info = self.cli("INFO", "persistence")
@@ -71,9 +71,9 @@ class RedisServer:
         except subprocess.SubprocessError:
             return False
 
-    def cli(self, *args):
+    def cli(self, *args, timeout=10):
         out = subprocess.run(["redis-cli", "-p", str(self.port)] + [str(a) for a in args],
-                             capture_output=True, text=True, timeout=10)
+                             capture_output=True, text=True, timeout=timeout)
         return out.stdout.strip()
 
     def int(self, *args):
