@@ -8,7 +8,8 @@ q85-in.csv: path,label,generator,group). Steps:
      training (about 70 %) and held-back (30 %) by a hash of the group name.
   2. OLD: trained on the training part without the NEW generator's images (--group-by manifest).
   3. NEW: `residue train --from OLD` on the whole training part (the generator "appears").
-  4. `residue compare OLD NEW` on the held-back part, as published and recompressed (JPEG q85).
+  4. `residue compare OLD NEW` on the held-back part, as published and recompressed (JPEG q85),
+     drawing the source groups whole in the bootstrap.
   5. `residue drift NEW` on scan records of the held-back part as published, and recompressed.
 
 Usage: bench/retrain_quality.py [--residue build/residue] [--work /tmp/residue-quality] [--new hunyuan-dit]
@@ -72,9 +73,11 @@ with open(new) as f:
     print("lineage:", json.dumps(json.load(f)["provenance"]["lineage"]["added"]))
 
 for label, data in (("as published", held_csv), ("recompressed JPEG q85", held_q85_csv)):
-    r = residue("compare", old, new, data, "--cache", cache, "--json")
+    # The bootstrap draws the manifest's source groups whole (a grid's cells are not independent).
+    r = residue("compare", old, new, data, "--cache", cache, "--json", "--group-by", "manifest")
     c = json.loads(r.stdout)
-    print(f"\ncompare OLD NEW on the held-back part, {label}: exit {r.returncode}, new_no_worse={c['new_no_worse']}")
+    print(f"\ncompare OLD NEW on the held-back part, {label}: exit {r.returncode}, new_no_worse={c['new_no_worse']}, "
+          f"{c['noise_margin']['units']} bootstrap units")
     print("| row | images | ROC AUC OLD → NEW | TPR OLD → NEW | FPR OLD → NEW | verdict |")
     print("|---|---:|---|---|---|---|")
     for row in c["rows"]:

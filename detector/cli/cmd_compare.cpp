@@ -25,6 +25,7 @@ struct CompareArgs {
   bool json = false;
   std::string html;
   std::optional<double> prior;
+  std::string group_by = "duplicates";
 };
 
 std::set<std::string> generators_seen(const Model& model) {
@@ -102,11 +103,13 @@ int run_compare(const CompareArgs& args) {
               << " needs both camera and generated images (ROOT/camera, ROOT/generated/<generator>)\n";
     return static_cast<int>(ExitCode::kFailure);
   }
-  const Comparison c = compare_models(labels, generators, old_scores, new_scores, args.settings);
+  const Comparison c = compare_models(labels, generators, old_scores, new_scores, args.settings,
+                                      assign_groups(items, parse_group_by(args.group_by)));
   const auto notes = notes_for(*old_model, *new_model, items, c);
   if (args.json) {
     nlohmann::ordered_json j = comparison_to_json(c);
     j["data"] = args.data.root;
+    j["noise_margin"]["grouped_by"] = args.group_by;
     j["notes"] = notes;
     j["advisory"] = kAdvisoryNotice;
     std::cout << j.dump(2) << "\n";
@@ -116,8 +119,8 @@ int run_compare(const CompareArgs& args) {
     std::cout << "\n" << kAdvisoryNotice << "\n";
   }
   if (!args.html.empty()) {
-    const std::string description =
-        "measured on " + std::to_string(items.size()) + " images of " + args.data.root;
+    const std::string description = "measured on " + std::to_string(items.size()) + " images of " +
+                                    args.data.root + "; bootstrap units grouped by " + args.group_by;
     if (auto w = write_file_atomically(args.html, comparison_page(c, description, notes)); !w) {
       std::cerr << "residue compare: " << w.error().message << "\n";
       return static_cast<int>(ExitCode::kFailure);
@@ -151,6 +154,7 @@ void add_compare_command(CLI::App& app, int& exit_code) {
       ->check(CLI::Range(0.0, 0.5))
       ->capture_default_str();
   cmd->add_option("--seed", args->settings.seed, "bootstrap random seed")->capture_default_str();
+  add_group_by_option(*cmd, args->group_by, "what the bootstrap draws whole");
   cmd->add_option("--prior", args->prior,
                   "shift both models' probabilities to this share of generated images")
       ->check(CLI::Range(0.0001, 0.9999));

@@ -98,10 +98,10 @@ int run_worker_command(WorkerArgs& args) {
     log(stats.error().message);
     return static_cast<int>(ExitCode::kFailure);
   }
-  log("stopped: " + std::to_string(stats->scored) + " scored, " + std::to_string(stats->failed) +
-      " error records, " + std::to_string(stats->gave_up) + " given up, " + std::to_string(stats->reclaimed) +
-      " taken over, " + std::to_string(stats->retried) + " left for retry, " +
-      std::to_string(stats->reconnects) + " reconnections");
+  log("stopped: scored " + std::to_string(stats->scored) + ", error records " +
+      std::to_string(stats->failed) + ", given up " + std::to_string(stats->gave_up) + ", taken over " +
+      std::to_string(stats->reclaimed) + ", left for retry " + std::to_string(stats->retried) +
+      ", reconnections " + std::to_string(stats->reconnects));
   return 0;
 }
 

@@ -32,12 +32,6 @@ struct AuditArgs {
   bool json = false;
 };
 
-GroupBy parse_group_by(const std::string& s) {
-  if (s == "folder") return GroupBy::kFolder;
-  if (s == "manifest") return GroupBy::kManifest;
-  return GroupBy::kDuplicates;
-}
-
 int run_audit(const AuditArgs& args) {
   auto prepared = prepare_from_args(args.data, "audit");
   if (!prepared) return static_cast<int>(ExitCode::kFailure);
@@ -188,11 +182,7 @@ void add_train_command(CLI::App& app, int& exit_code) {
                   "share of generated images allowed in likely-camera (sets that threshold)")
       ->check(CLI::Range(0.0, 0.5))
       ->capture_default_str();
-  cmd->add_option(
-         "--group-by", args->group_by,
-         "what must stay on one side of a split: duplicates, folder (+duplicates), manifest (+duplicates)")
-      ->check(CLI::IsMember({"duplicates", "folder", "manifest"}))
-      ->capture_default_str();
+  add_group_by_option(*cmd, args->group_by, "what must stay on one side of a split");
   cmd->add_option("--only", args->only,
                   "use only features whose names start with these prefixes (e.g. spectral.)");
   cmd->add_option("--from", args->from,

@@ -77,4 +77,17 @@ std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const 
   return out;
 }
 
+void add_group_by_option(CLI::App& command, std::string& group_by, const std::string& what) {
+  command
+      .add_option("--group-by", group_by, what + ": duplicates, folder (+duplicates), manifest (+duplicates)")
+      ->check(CLI::IsMember({"duplicates", "folder", "manifest"}))
+      ->capture_default_str();
+}
+
+GroupBy parse_group_by(const std::string& s) {
+  if (s == "folder") return GroupBy::kFolder;
+  if (s == "manifest") return GroupBy::kManifest;
+  return GroupBy::kDuplicates;
+}
+
 }  // namespace residue::cli

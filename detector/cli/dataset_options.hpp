@@ -7,6 +7,7 @@
 #include <string>
 
 #include "residue/training/cache.hpp"
+#include "residue/training/groups.hpp"
 #include "residue/training/prepare.hpp"
 
 namespace residue::cli {
@@ -33,6 +34,11 @@ struct PreparedDataset {
   [[nodiscard]] double seconds_saved() const { return report.cached_extract_seconds / jobs; }
 };
 std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const char* command);
+
+// --group-by: what belongs together (duplicates, folder, manifest), for train's folds and compare's
+// bootstrap.
+void add_group_by_option(CLI::App& command, std::string& group_by, const std::string& what);
+GroupBy parse_group_by(const std::string& s);
 
 // The default cache file: $XDG_CACHE_HOME/residue/features.sqlite or ~/.cache/residue/...
 std::string default_cache_path();

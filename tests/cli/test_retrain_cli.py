@@ -108,6 +108,17 @@ with tempfile.TemporaryDirectory() as tmp:
     check("worse than OLD" in html and "Advisory:" in html, "the HTML page gives the verdict and the advisory")
     r = run(["compare", old, blind, train, "--cache", cache])
     check("comparison flatters" in r.stdout, "compare warns when comparison images were training images")
+    # Copies of one picture are one bootstrap unit (drawn whole), not three more pieces of evidence.
+    copied = os.path.join(tmp, "held-with-copies")
+    shutil.copytree(held, copied)
+    first = sorted(os.listdir(os.path.join(copied, "camera")))[0]
+    for k in range(3):
+        shutil.copy(os.path.join(copied, "camera", first), os.path.join(copied, "camera", f"copy{k}-{first}"))
+    r = run(["compare", old, blind, copied, "--cache", cache, "--json"])
+    margin = json.loads(r.stdout)["noise_margin"] if r.stdout.startswith("{") else {}
+    units = c["noise_margin"]["units"]  # the same comparison without the copies
+    check(margin.get("grouped_by") == "duplicates" and margin.get("units") == units,
+          f"three copies of a picture add no bootstrap unit ({margin.get('units')} units, was {units})")
 
     # Grow the training folder; the retrain extracts only the new files.
     extra = os.path.join(tmp, "extra")

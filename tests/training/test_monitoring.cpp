@@ -247,6 +247,64 @@ TEST_CASE(
         regression.rows[2].metrics[0].low);
 }
 
+// Cluster bootstrap (Davison & Hinkley 1997, sec. 3.8): drawing whole groups, a set in which every
+// picture appears ten times gives the same intervals as the pictures once (each draw picks the
+// same pictures, ten copies each, and AUC, TPR, FPR and ECE are unchanged by repeating every
+// image alike), while drawing the copies one by one makes the intervals about sqrt(10) narrower.
+TEST_CASE("compare: groups of copies are drawn whole, so copies do not narrow the interval") {
+  std::mt19937_64 rng(21);
+  std::uniform_real_distribution<double> camera_p(0.0, 0.6), generated_p(0.3, 1.0), wobble(-0.2, 0.2);
+  std::vector<int> labels, copied_labels, groups;
+  std::vector<std::string> generators, copied_generators;
+  ModelScores a{"m-a", {}, 0.5}, b{"m-b", {}, 0.5}, copied_a{"m-a", {}, 0.5}, copied_b{"m-b", {}, 0.5};
+  for (int i = 0; i < 120; ++i) {
+    const bool generated = i % 2 == 1;
+    const double p = generated ? generated_p(rng) : camera_p(rng);
+    const double q = std::clamp(p + wobble(rng), 0.0, 1.0);
+    labels.push_back(generated ? 1 : 0);
+    generators.push_back(generated ? "g" : "camera");
+    a.p.push_back(p);
+    b.p.push_back(q);
+    for (int copy = 0; copy < 10; ++copy) {
+      copied_labels.push_back(labels.back());
+      copied_generators.push_back(generators.back());
+      copied_a.p.push_back(p);
+      copied_b.p.push_back(q);
+      groups.push_back(i);
+    }
+  }
+  const CompareSettings settings;
+  const Comparison once = compare_models(labels, generators, a, b, settings);
+  const Comparison grouped =
+      compare_models(copied_labels, copied_generators, copied_a, copied_b, settings, groups);
+  const Comparison one_by_one =
+      compare_models(copied_labels, copied_generators, copied_a, copied_b, settings);
+  CHECK(once.units == 120);
+  CHECK(grouped.units == 120);
+  CHECK(one_by_one.units == 1200);
+  REQUIRE(grouped.rows.size() == once.rows.size());
+  double width_ratio = 0.0;
+  int metrics = 0;
+  for (size_t r = 0; r < once.rows.size(); ++r) {
+    for (size_t m = 0; m < once.rows[r].metrics.size(); ++m) {
+      const auto& o = once.rows[r].metrics[m];
+      const auto& g = grouped.rows[r].metrics[m];
+      CHECK(g.change == doctest::Approx(o.change).epsilon(1e-12));
+      CHECK(g.low == doctest::Approx(o.low).epsilon(1e-9));
+      CHECK(g.high == doctest::Approx(o.high).epsilon(1e-9));
+      const auto& n = one_by_one.rows[r].metrics[m];
+      if (o.high - o.low > 1e-6) {
+        width_ratio += (n.high - n.low) / (o.high - o.low);
+        ++metrics;
+      }
+    }
+  }
+  REQUIRE(metrics > 0);
+  width_ratio /= metrics;
+  CHECK(width_ratio > 0.2);  // 1 / sqrt(10) = 0.32, give or take bootstrap noise
+  CHECK(width_ratio < 0.45);
+}
+
 TEST_CASE("retraining: settings come back from the parent model and lineage lists what was added") {
   TrainSettings s;
   s.folds = 4;

@@ -19,6 +19,25 @@ struct Strata {
   std::vector<std::vector<size_t>> generators;  // indices per generator
 };
 
+// One stratum's images in bootstrap units: the images of one group each, in order of first
+// appearance (without groups every image is its own unit).
+using Units = std::vector<std::vector<size_t>>;
+
+Units units_of(const std::vector<size_t>& idx, const std::vector<int>& groups) {
+  Units out;
+  std::map<int, size_t> slot;
+  for (size_t i : idx) {
+    if (groups.empty()) {
+      out.push_back({i});
+      continue;
+    }
+    const auto [it, fresh] = slot.try_emplace(groups[i], out.size());
+    if (fresh) out.emplace_back();
+    out[it->second].push_back(i);
+  }
+  return out;
+}
+
 // One model's metric values per row for one draw of the images; rows in output order.
 std::vector<std::vector<double>> row_values(const std::vector<double>& p, double threshold, const Strata& s) {
   auto gather = [&p](const std::vector<size_t>& idx) {
@@ -85,7 +104,7 @@ double percentile_sorted(const std::vector<double>& sorted, double q) {
 
 Comparison compare_models(const std::vector<int>& labels, const std::vector<std::string>& generators,
                           const ModelScores& old_model, const ModelScores& new_model,
-                          const CompareSettings& settings) {
+                          const CompareSettings& settings, const std::vector<int>& groups) {
   Strata s;
   std::map<std::string, std::vector<size_t>> by_generator;
   for (size_t i = 0; i < labels.size(); ++i) {
@@ -100,7 +119,14 @@ Comparison compare_models(const std::vector<int>& labels, const std::vector<std:
     s.generators.push_back(std::move(idx));
   }
 
-  Comparison c{old_model.id, new_model.id, settings, {}, true};
+  Comparison c{old_model.id, new_model.id, settings, {}, true, 0};
+  const Units camera_units = units_of(s.camera, groups);
+  std::vector<Units> generator_units;
+  c.units = camera_units.size();
+  for (const auto& idx : s.generators) {
+    generator_units.push_back(units_of(idx, groups));
+    c.units += generator_units.back().size();
+  }
   const auto old_values = row_values(old_model.p, old_model.threshold, s);
   const auto new_values = row_values(new_model.p, new_model.threshold, s);
   std::vector<const std::vector<MetricSpec>*> specs = {&kCameraMetrics};
@@ -118,18 +144,22 @@ Comparison compare_models(const std::vector<int>& labels, const std::vector<std:
   std::vector<std::vector<std::vector<double>>> draws(c.rows.size());
   for (size_t r = 0; r < c.rows.size(); ++r) draws[r].resize(specs[r]->size());
   std::mt19937_64 rng(settings.seed);
-  auto resample = [&rng](const std::vector<size_t>& idx) {
-    std::vector<size_t> out(idx.size());
-    if (idx.empty()) return out;
-    std::uniform_int_distribution<size_t> pick(0, idx.size() - 1);
-    for (auto& v : out) v = idx[pick(rng)];
+  // As many units as the stratum has, drawn with replacement; a drawn unit brings all its images.
+  auto resample = [&rng](const Units& units) {
+    std::vector<size_t> out;
+    if (units.empty()) return out;
+    std::uniform_int_distribution<size_t> pick(0, units.size() - 1);
+    for (size_t k = 0; k < units.size(); ++k) {
+      const auto& unit = units[pick(rng)];
+      out.insert(out.end(), unit.begin(), unit.end());
+    }
     return out;
   };
   for (int b = 0; b < settings.resamples; ++b) {
     Strata d;
-    d.camera = resample(s.camera);
+    d.camera = resample(camera_units);
     d.names = s.names;
-    for (const auto& idx : s.generators) d.generators.push_back(resample(idx));
+    for (const auto& units : generator_units) d.generators.push_back(resample(units));
     const auto o = row_values(old_model.p, old_model.threshold, d);
     const auto n = row_values(new_model.p, new_model.threshold, d);
     for (size_t r = 0; r < c.rows.size(); ++r) {
@@ -191,8 +221,9 @@ nlohmann::ordered_json comparison_to_json(const Comparison& c) {
           {"new_model", c.new_id},
           {"new_no_worse", c.new_no_worse},
           {"noise_margin",
-           {{"method", "paired stratified percentile bootstrap"},
+           {{"method", "paired stratified cluster percentile bootstrap"},
             {"resamples", c.settings.resamples},
+            {"units", c.units},
             {"confidence", c.settings.confidence},
             {"tolerance", c.settings.tolerance},
             {"seed", c.settings.seed}}},
@@ -220,8 +251,10 @@ std::string comparison_to_text(const Comparison& c) {
     t += "  " + std::string(18, ' ') + "        row: " + row.verdict + "\n";
   }
   t += "\nchange = NEW - OLD; interval: its " + fixed("%.0f", 100 * c.settings.confidence) +
-       " % paired bootstrap interval (" + std::to_string(c.settings.resamples) +
-       " resamples); better/worse only when the interval excludes zero. roc_auc and tpr: higher is better; "
+       " % paired bootstrap interval (" + std::to_string(c.settings.resamples) + " resamples of " +
+       std::to_string(c.units) +
+       " units, each group of images drawn whole); better/worse only when the interval excludes zero. "
+       "roc_auc and tpr: higher is better; "
        "fpr and "
        "ece: lower is better. tpr and fpr at each model's own likely-generated threshold.\n";
   t += c.new_no_worse ? "\nVerdict: NEW is no worse than OLD on every row.\n"

@@ -7,11 +7,13 @@
 //
 // Noise margin: a paired, stratified percentile bootstrap (Efron & Tibshirani 1993, ch. 13). Each
 // replicate draws camera images and each generator's images with replacement, separately, and
-// scores the same draw with both models; the change NEW - OLD gets a (1 - alpha) percentile
-// interval. A metric is "worse" when the whole interval lies on the bad side of zero (below for
-// AUC and TPR, above for FPR and ECE) and the change is larger than `tolerance` that way; "better"
-// symmetrically; "same" otherwise. A row is worse when any of its metrics is; NEW passes when no row is
-// worse. Deterministic for a given seed.
+// scores the same draw with both models. With groups (duplicates, a shoot, a source) it draws whole
+// groups within each stratum, a cluster bootstrap (Davison & Hinkley 1997, sec. 3.8): copies of one
+// picture are not independent evidence, and drawing them one by one makes the interval too narrow.
+// The change NEW - OLD gets a (1 - alpha) percentile interval. A metric is "worse" when the whole interval
+// lies on the bad side of zero (below for AUC and TPR, above for FPR and ECE) and the change is larger than
+// `tolerance` that way; "better" symmetrically; "same" otherwise. A row is worse when any of its metrics is;
+// NEW passes when no row is worse. Deterministic for a given seed.
 #pragma once
 
 #include <cstdint>
@@ -56,16 +58,17 @@ struct Comparison {
   CompareSettings settings;
   std::vector<ComparisonRow> rows;
   bool new_no_worse = true;
+  size_t units = 0;  // what the bootstrap draws: groups within strata (images without groups)
 };
 
 // Percentile of sorted values with linear interpolation (numpy.percentile's default).
 double percentile_sorted(const std::vector<double>& sorted, double q);
 
-// labels: 1 generated, 0 camera; generators: "camera" for camera images. Needs camera images and at
-// least one generator.
+// labels: 1 generated, 0 camera; generators: "camera" for camera images; groups: a group id per
+// image, or empty (every image its own). Needs camera images and at least one generator.
 Comparison compare_models(const std::vector<int>& labels, const std::vector<std::string>& generators,
                           const ModelScores& old_model, const ModelScores& new_model,
-                          const CompareSettings& settings);
+                          const CompareSettings& settings, const std::vector<int>& groups = {});
 
 nlohmann::ordered_json comparison_to_json(const Comparison& c);
 std::string comparison_to_text(const Comparison& c);
