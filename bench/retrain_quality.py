@@ -78,13 +78,13 @@ for label, data in (("as published", held_csv), ("recompressed JPEG q85", held_q
     c = json.loads(r.stdout)
     print(f"\ncompare OLD NEW on the held-back part, {label}: exit {r.returncode}, new_no_worse={c['new_no_worse']}, "
           f"{c['noise_margin']['units']} bootstrap units")
-    print("| row | images | ROC AUC OLD → NEW | TPR OLD → NEW | FPR OLD → NEW | verdict |")
+    print("| row | images (groups) | ROC AUC OLD → NEW | TPR OLD → NEW | FPR OLD → NEW | verdict |")
     print("|---|---:|---|---|---|---|")
     for row in c["rows"]:
         m = row["metrics"]
         cell = lambda k: (f"{m[k]['old']:.3f} → {m[k]['new']:.3f} [{m[k]['interval'][0]:+.2f}, {m[k]['interval'][1]:+.2f}]"  # noqa: E731
                           if k in m else "–")
-        print(f"| {row['row']} | {row['images']} | {cell('roc_auc')} | {cell('tpr')} | {cell('fpr')} | {row['verdict']} |")
+        print(f"| {row['row']} | {row['images']} ({row['units']}) | {cell('roc_auc')} | {cell('tpr')} | {cell('fpr')} | {row['verdict']} |")
     for n in c["notes"]:
         print("note:", n)
 

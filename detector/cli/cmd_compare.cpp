@@ -155,6 +155,10 @@ void add_compare_command(CLI::App& app, int& exit_code) {
       ->capture_default_str();
   cmd->add_option("--seed", args->settings.seed, "bootstrap random seed")->capture_default_str();
   add_group_by_option(*cmd, args->group_by, "what the bootstrap draws whole");
+  cmd->add_option("--min-units", args->settings.min_units,
+                  "rows with fewer bootstrap units (groups) than this are 'too few' and not judged")
+      ->check(CLI::Range(1, 1000))
+      ->capture_default_str();
   cmd->add_option("--prior", args->prior,
                   "shift both models' probabilities to this share of generated images")
       ->check(CLI::Range(0.0001, 0.9999));

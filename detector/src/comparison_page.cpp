@@ -25,10 +25,10 @@ const char* metric_label(const std::string& metric) {
 
 std::string comparison_page(const Comparison& c, const std::string& data_description,
                             const std::vector<std::string>& notes) {
-  std::string h = measurement_page_start(
-      "residue model comparison",
-      ".better{background:#e3f1e3}.worse{background:#f8dcdc;font-weight:bold}.verdict{font-size:1.15em;"
-      "padding:.6em 1em;border:2px solid #444}");
+  std::string h = measurement_page_start("residue model comparison",
+                                         ".better{background:#e3f1e3}.worse{background:#f8dcdc;font-weight:"
+                                         "bold}.too-few{color:#777}.verdict{font-size:1.15em;"
+                                         "padding:.6em 1em;border:2px solid #444}");
   h += "<p>OLD <code>" + html_escape(c.old_id) + "</code> against NEW <code>" + html_escape(c.new_id) +
        "</code>, " + html_escape(data_description) + ".</p>";
   h += std::string("<p class='verdict ") +
@@ -42,7 +42,7 @@ std::string comparison_page(const Comparison& c, const std::string& data_descrip
   for (const auto& row : c.rows) {
     bool first = true;
     for (const auto& m : row.metrics) {
-      h += "<tr class='" + m.verdict + "'>";
+      h += "<tr class='" + (m.verdict == "too few" ? std::string("too-few") : m.verdict) + "'>";
       if (first) {
         const std::string span = std::to_string(row.metrics.size());
         h += "<th rowspan='" + span + "'>";
@@ -61,13 +61,16 @@ std::string comparison_page(const Comparison& c, const std::string& data_descrip
        "Intervals come from "
        "a paired, stratified percentile bootstrap with " +
        std::to_string(c.settings.resamples) +
-       " resamples (Efron &amp; Tibshirani 1993): a metric is called better or worse only when its whole "
+       " resamples (Efron &amp; Tibshirani 1993) that draws groups of duplicates whole (" +
+       std::to_string(c.units) +
+       " units; Davison &amp; Hinkley 1997): a metric is called better or worse only when its whole "
        "interval lies on one side of zero" +
        (c.settings.tolerance > 0 ? " and the change exceeds " + number("%.3f", c.settings.tolerance)
                                  : std::string()) +
        ". TPR and FPR are taken at each model's own likely-generated threshold. Rows with few images give "
        "wide "
-       "intervals: a 'same' there means 'not shown to differ', not 'equal'.</p>";
+       "intervals: a 'same' there means 'not shown to differ', not 'equal'; rows with fewer than " +
+       std::to_string(c.settings.min_units) + " units are 'too few' and not judged.</p>";
   if (!notes.empty()) {
     h += "<h2>Notes</h2><ul class='warn'>";
     for (const auto& n : notes) h += "<li>" + html_escape(n) + "</li>";

@@ -305,6 +305,36 @@ TEST_CASE("compare: groups of copies are drawn whole, so copies do not narrow th
   CHECK(width_ratio < 0.45);
 }
 
+TEST_CASE("compare: a row drawn from fewer than min_units groups is 'too few', never worse") {
+  // Four camera groups and two generators: "g" in 10 groups, "h" in 2 groups of 5 copies.
+  std::vector<int> labels, groups;
+  std::vector<std::string> generators;
+  ModelScores before{"m-before", {}, 0.5}, after{"m-after", {}, 0.5};
+  auto add = [&](int label, const std::string& generator, int group, double p_before, double p_after) {
+    labels.push_back(label);
+    generators.push_back(generator);
+    groups.push_back(group);
+    before.p.push_back(p_before);
+    after.p.push_back(p_after);
+  };
+  for (int i = 0; i < 40; ++i) add(0, "camera", i % 8, 0.05 + 0.01 * (i % 8), 0.05 + 0.01 * (i % 8));
+  for (int i = 0; i < 10; ++i) add(1, "g", 100 + i, 0.9, 0.9);
+  for (int i = 0; i < 10; ++i) add(1, "h", 200 + i % 2, 0.9, 0.1);  // NEW misses every h image
+  const Comparison c = compare_models(labels, generators, before, after, CompareSettings{}, groups);
+  REQUIRE(c.rows.size() == 4);
+  CHECK(c.rows[0].units == 8);
+  CHECK(c.rows[2].name == "h");
+  CHECK(c.rows[2].units == 2);
+  CHECK(c.rows[2].verdict == "too few");
+  for (const auto& m : c.rows[2].metrics) CHECK(m.verdict == "too few");
+  CHECK(c.rows[2].metrics[1].change == doctest::Approx(-1.0));  // the TPR change is still shown
+  CHECK(c.rows[3].verdict == "worse");                          // and counts in "all" (20 groups)
+  CHECK_FALSE(c.new_no_worse);
+  CompareSettings lenient;
+  lenient.min_units = 2;
+  CHECK(compare_models(labels, generators, before, after, lenient, groups).rows[2].verdict == "worse");
+}
+
 TEST_CASE("retraining: settings come back from the parent model and lineage lists what was added") {
   TrainSettings s;
   s.folds = 4;

@@ -130,15 +130,15 @@ Comparison compare_models(const std::vector<int>& labels, const std::vector<std:
   const auto old_values = row_values(old_model.p, old_model.threshold, s);
   const auto new_values = row_values(new_model.p, new_model.threshold, s);
   std::vector<const std::vector<MetricSpec>*> specs = {&kCameraMetrics};
-  c.rows.push_back({"camera", s.camera.size(), {}, ""});
+  c.rows.push_back({"camera", s.camera.size(), {}, "", camera_units.size()});
   size_t generated = 0;
   for (size_t g = 0; g < s.names.size(); ++g) {
     specs.push_back(&kGeneratorMetrics);
-    c.rows.push_back({s.names[g], s.generators[g].size(), {}, ""});
+    c.rows.push_back({s.names[g], s.generators[g].size(), {}, "", generator_units[g].size()});
     generated += s.generators[g].size();
   }
   specs.push_back(&kAllMetrics);
-  c.rows.push_back({"all", s.camera.size() + generated, {}, ""});
+  c.rows.push_back({"all", s.camera.size() + generated, {}, "", c.units});
 
   // Bootstrap distribution of each change NEW - OLD: [row][metric][replicate].
   std::vector<std::vector<std::vector<double>>> draws(c.rows.size());
@@ -172,7 +172,8 @@ Comparison compare_models(const std::vector<int>& labels, const std::vector<std:
   const double tail = 100.0 * (1.0 - settings.confidence) / 2.0;
   for (size_t r = 0; r < c.rows.size(); ++r) {
     ComparisonRow& row = c.rows[r];
-    row.verdict = "same";
+    const bool judged = row.units >= settings.min_units;
+    row.verdict = judged ? "same" : "too few";
     bool any_better = false;
     for (size_t m = 0; m < specs[r]->size(); ++m) {
       const MetricSpec& spec = (*specs[r])[m];
@@ -183,13 +184,13 @@ Comparison compare_models(const std::vector<int>& labels, const std::vector<std:
                           new_values[r][m] - old_values[r][m],
                           0.0,
                           0.0,
-                          "same"};
+                          judged ? "same" : "too few"};
       auto& dist = draws[r][m];
       std::sort(dist.begin(), dist.end());
       mc.low = percentile_sorted(dist, tail);
       mc.high = percentile_sorted(dist, 100.0 - tail);
-      const bool up = mc.low > 0.0 && mc.change > settings.tolerance;
-      const bool down = mc.high < 0.0 && mc.change < -settings.tolerance;
+      const bool up = judged && mc.low > 0.0 && mc.change > settings.tolerance;
+      const bool down = judged && mc.high < 0.0 && mc.change < -settings.tolerance;
       if (up) mc.verdict = spec.higher_is_better ? "better" : "worse";
       if (down) mc.verdict = spec.higher_is_better ? "worse" : "better";
       if (mc.verdict == "worse") row.verdict = "worse";
@@ -214,8 +215,11 @@ nlohmann::ordered_json comparison_to_json(const Comparison& c) {
                            {"higher_is_better", m.higher_is_better},
                            {"verdict", m.verdict}};
     }
-    rows.push_back(
-        {{"row", row.name}, {"images", row.images}, {"verdict", row.verdict}, {"metrics", metrics}});
+    rows.push_back({{"row", row.name},
+                    {"images", row.images},
+                    {"units", row.units},
+                    {"verdict", row.verdict},
+                    {"metrics", metrics}});
   }
   return {{"old_model", c.old_id},
           {"new_model", c.new_id},
@@ -224,6 +228,7 @@ nlohmann::ordered_json comparison_to_json(const Comparison& c) {
            {{"method", "paired stratified cluster percentile bootstrap"},
             {"resamples", c.settings.resamples},
             {"units", c.units},
+            {"min_units", c.settings.min_units},
             {"confidence", c.settings.confidence},
             {"tolerance", c.settings.tolerance},
             {"seed", c.settings.seed}}},
@@ -253,7 +258,10 @@ std::string comparison_to_text(const Comparison& c) {
   t += "\nchange = NEW - OLD; interval: its " + fixed("%.0f", 100 * c.settings.confidence) +
        " % paired bootstrap interval (" + std::to_string(c.settings.resamples) + " resamples of " +
        std::to_string(c.units) +
-       " units, each group of images drawn whole); better/worse only when the interval excludes zero. "
+       " units, each group of images drawn whole); better/worse only when the interval excludes zero; "
+       "'too few': fewer than " +
+       std::to_string(c.settings.min_units) +
+       " units, not judged. "
        "roc_auc and tpr: higher is better; "
        "fpr and "
        "ece: lower is better. tpr and fpr at each model's own likely-generated threshold.\n";

@@ -12,7 +12,8 @@
 // picture are not independent evidence, and drawing them one by one makes the interval too narrow.
 // The change NEW - OLD gets a (1 - alpha) percentile interval. A metric is "worse" when the whole interval
 // lies on the bad side of zero (below for AUC and TPR, above for FPR and ECE) and the change is larger than
-// `tolerance` that way; "better" symmetrically; "same" otherwise. A row is worse when any of its metrics is;
+// `tolerance` that way; "better" symmetrically; "same" otherwise; "too few" in rows with fewer than
+// `min_units` units. A row is worse when any of its metrics is;
 // NEW passes when no row is worse. Deterministic for a given seed.
 #pragma once
 
@@ -28,6 +29,10 @@ struct CompareSettings {
   double confidence = 0.95;
   double tolerance = 0.0;  // improvements smaller than this never count as better or worse
   std::uint64_t seed = 1;
+  // Rows drawn from fewer units are "too few" and never judged: with one group the bootstrap
+  // interval collapses to a point and would call any change certain. 5 is our choice (with 5
+  // units a draw repeats one unit only with probability 5 x 0.2^5 = 0.16 %), not a standard.
+  size_t min_units = 5;
 };
 
 // Scores of one model on the comparison images.
@@ -43,14 +48,15 @@ struct MetricComparison {
   double old_value = 0.0, new_value = 0.0;
   double change = 0.0;           // NEW - OLD
   double low = 0.0, high = 0.0;  // bootstrap interval of the change
-  std::string verdict;           // "better", "same", "worse"
+  std::string verdict;           // "better", "same", "worse", "too few"
 };
 
 struct ComparisonRow {
   std::string name;  // "camera", a generator, or "all"
   size_t images = 0;
   std::vector<MetricComparison> metrics;
-  std::string verdict;
+  std::string verdict;  // "better", "same", "worse", or "too few" (fewer than min_units units)
+  size_t units = 0;     // bootstrap units (groups) in the row
 };
 
 struct Comparison {
