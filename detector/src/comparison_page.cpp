@@ -48,7 +48,8 @@ std::string comparison_page(const Comparison& c, const std::string& data_descrip
         h += "<th rowspan='" + span + "'>";
         h += html_escape(row.name) + "<br><small>row: " + row.verdict + "</small></th><td rowspan='" + span +
              "'>";
-        h += std::to_string(row.images) + "</td>";
+        h += std::to_string(row.images) + "<br><small>" + std::to_string(row.units) +
+             (row.units == 1 ? " group" : " groups") + "</small></td>";
       }
       first = false;
       h += std::string("<td style='text-align:left'>") + metric_label(m.metric) + "</td><td>" +

@@ -238,22 +238,23 @@ nlohmann::ordered_json comparison_to_json(const Comparison& c) {
 std::string comparison_to_text(const Comparison& c) {
   std::string t = "OLD " + c.old_id + "  vs  NEW " + c.new_id + "\n\n";
   char line[200];
-  std::snprintf(line, sizeof line, "  %-18s %6s  %-8s %8s %8s %9s  %-19s %s\n", "row", "images", "metric",
-                "OLD", "NEW", "change", "interval", "verdict");
+  std::snprintf(line, sizeof line, "  %-18s %6s %6s  %-8s %8s %8s %9s  %-19s %s\n", "row", "images", "groups",
+                "metric", "OLD", "NEW", "change", "interval", "verdict");
   t += line;
   for (const auto& row : c.rows) {
     bool first = true;
     for (const auto& m : row.metrics) {
       const double change = m.change;
       const std::string interval = "[" + fixed("%+.3f", m.low) + ", " + fixed("%+.3f", m.high) + "]";
-      std::snprintf(line, sizeof line, "  %-18s %6s  %-8s %8.3f %8.3f %+9.3f  %-19s %s\n",
+      std::snprintf(line, sizeof line, "  %-18s %6s %6s  %-8s %8.3f %8.3f %+9.3f  %-19s %s\n",
                     first ? row.name.substr(0, 18).c_str() : "",
-                    first ? std::to_string(row.images).c_str() : "", m.metric.c_str(), m.old_value,
+                    first ? std::to_string(row.images).c_str() : "",
+                    first ? std::to_string(row.units).c_str() : "", m.metric.c_str(), m.old_value,
                     m.new_value, change, interval.c_str(), m.verdict.c_str());
       t += line;
       first = false;
     }
-    t += "  " + std::string(18, ' ') + "        row: " + row.verdict + "\n";
+    t += "  " + std::string(18, ' ') + "               row: " + row.verdict + "\n";
   }
   t += "\nchange = NEW - OLD; interval: its " + fixed("%.0f", 100 * c.settings.confidence) +
        " % paired bootstrap interval (" + std::to_string(c.settings.resamples) + " resamples of " +
