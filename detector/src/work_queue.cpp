@@ -322,8 +322,10 @@ class Worker {
       const auto not_now = std::find_if(replies->begin(), replies->end(),
                                         [](const RedisReply& r) { return r.is_transient_error(); });
       if (exec.type != RedisReply::Type::kArray && not_now != replies->end()) {
-        // The transaction was refused as a whole (EXECABORT): nothing was written; try again.
+        // Refused (EXECABORT: nothing was written). Check the job is still pending before
+        // sending again, in case MULTI itself was refused and the commands ran on their own.
         if (!link_.wait_busy(*not_now)) return true;  // stopping: the job stays pending
+        retrying = true;
         continue;
       }
       if (exec.type != RedisReply::Type::kArray) {
