@@ -145,10 +145,27 @@ int run_train(TrainArgs& args) {
             << report_to_text(cv.report);
   std::printf(
       "\nCalibration: Platt sigmoid A = %.4f, B = %.4f; training base rate %.3f generated.\n"
-      "Bands: likely-generated at P >= %.3f (%.1f %% camera false positives out of fold), likely-camera "
-      "below %.3f.\n",
+      "Bands: likely-generated at P >= %.3f, likely-camera below %.3f.\n",
       model.calibration.a, model.calibration.b, model.training_prior, model.thresholds.likely_generated,
-      100 * model.thresholds.target_fpr, model.thresholds.likely_camera);
+      model.thresholds.likely_camera);
+  std::cout << "Promise of likely-generated: " << promise_text(model.thresholds) << ".\n";
+  if (model.thresholds.promise && !model.thresholds.promise->met) {
+    std::cout
+        << "  Until then the threshold sits above every camera image's out-of-fold score, and the bound "
+           "above is all that can be promised.\n";
+  }
+  if (const auto& a = model.applicability) {
+    size_t resampled = 0;
+    for (const auto& [bin, count] : a->camera.resampling_bin) resampled += count;
+    std::cout << "Applicability: images outside what " << static_cast<int>(100 * a->coverage)
+              << " % of the training images showed (out of fold) are scored inconclusive; limits per family:";
+    for (const auto& f : a->families) std::printf(" %s %.2f", f.family.c_str(), f.limit);
+    std::cout << ".\n  Processing the training's camera photos showed (at least " << a->min_support
+              << " needed to judge such an image): " << a->camera.quantised << " palette, "
+              << a->camera.lossy_webp << " lossy WebP, " << a->camera.jpeg_quality.size()
+              << " JPEG qualities, " << resampled << " resampled, " << a->camera.screenshot_like
+              << " screenshot-like.\n";
+  }
   if (auto saved = save_model(model, args.output); !saved) {
     std::cerr << "residue train: " << saved.error().message << "\n";
     return static_cast<int>(ExitCode::kFailure);
@@ -175,7 +192,9 @@ void add_train_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--c-grid", args->settings.c_grid, "SVM C values tried by cross-validation")
       ->capture_default_str();
   cmd->add_option("--target-fpr", args->settings.target_fpr,
-                  "share of camera images allowed in likely-generated (sets that threshold)")
+                  "camera false-positive rate that likely-generated promises: the threshold is the lowest "
+                  "whose upper 95 % Clopper-Pearson bound (out of fold, over images and over groups) is at "
+                  "most this")
       ->check(CLI::Range(0.0001, 0.5))
       ->capture_default_str();
   cmd->add_option("--generated-miss", args->settings.generated_miss,

@@ -1,5 +1,7 @@
 #include "residue/detector/record.hpp"
 
+#include "residue/training/applicability.hpp"
+
 namespace residue {
 
 nlohmann::ordered_json error_record(const std::string& path, const Error& error) {
@@ -32,11 +34,13 @@ nlohmann::ordered_json features_record(const std::string& path, const Extraction
       {"extractor", {{"version", std::string(kExtractorVersion)}, {"schema", feature_schema_id()}}},
       {"features", values},
       {"compression_history", compression},
+      {"processing", processing_to_json(e.processing)},
       {"timings_ms",
        {{"decode", e.timings.decode_ms},
         {"spectral", e.timings.spectral_ms},
         {"noise", e.timings.noise_ms},
         {"resampling", e.timings.resampling_ms},
+        {"processing", e.timings.processing_ms},
         {"total", e.timings.total_ms}}},
   };
 }

@@ -43,18 +43,32 @@ nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::
     r["advisory"] = kAdvisoryNotice;
     return r;
   }
-  const Score s = score(model, extraction->features, settings.prior);
   const Thresholds t = effective_thresholds(model, settings);
+  const Score s = score(model, extraction->features, settings.prior, &extraction->processing, &t);
   r["width"] = extraction->header.width;
   r["height"] = extraction->header.height;
   r["format"] = std::string(image_format_name(extraction->header.format));
   r["p_generated"] = s.p_generated;
-  r["band"] = band_of(t, s.p_generated);
+  r["band"] = s.band;
   r["margin"] = s.margin;
   r["contributions"] = s.contributions;
   r["declared"] = declared_json(read_metadata(bytes));
   r["model"] = model.id;
   r["advisory"] = kAdvisoryNotice;
+  // What limits the score: processing evidence (reported, never learned), whether the image lies
+  // inside what the training data showed, and why the record is inconclusive.
+  r["processing"] = processing_to_json(extraction->processing);
+  r["in_domain"] = s.domain ? nlohmann::ordered_json(s.domain->in_domain) : nlohmann::ordered_json(nullptr);
+  if (s.domain) {
+    r["applicability"] = {{"distance", s.domain->distance},
+                          {"limit", s.domain->limit},
+                          {"families_out", s.domain->families_out}};
+  } else {
+    r["applicability"] = {{"note",
+                           "this model has no applicability reference (trained before residue "
+                           "recorded one): whether the image is inside its domain is unknown; retrain"}};
+  }
+  r["reasons"] = s.reasons;
   // Beyond the contract: what a reviewer may want to know about how the score was made.
   r["prior"] = settings.prior ? nlohmann::ordered_json(*settings.prior) : nlohmann::ordered_json(nullptr);
   r["windows"] = {{"size", extraction->layout.size},

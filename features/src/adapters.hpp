@@ -1,6 +1,7 @@
 // Private adapters: the only places that speak libjpeg, OpenCV and FFTW.
 #pragma once
 
+#include <array>
 #include <span>
 
 #include "residue/features/decode.hpp"
@@ -28,6 +29,17 @@ Result<Image> decode_with_opencv(std::span<const std::uint8_t> bytes, const Imag
 
 // Encodes with OpenCV's imgcodecs (libjpeg-turbo, libpng).
 Result<std::vector<std::uint8_t>> encode(const Image& image, ImageFormat format, int quality);
+
+enum class ResizeFilter { kArea, kBilinear, kBicubic };
+// Resampling with OpenCV's resize (INTER_AREA, INTER_LINEAR, INTER_CUBIC), per plane.
+Image resize(const Image& image, int width, int height, ResizeFilter filter);
+// Gaussian blur with standard deviation `sigma` px (OpenCV GaussianBlur, reflected borders).
+Image gaussian_blur(const Image& image, double sigma);
+
+// A palette PNG (colour type 3, 8-bit indices) through libpng: `indices` width x height,
+// `palette` up to 256 RGB triples.
+Result<std::vector<std::uint8_t>> encode_palette_png(int width, int height, const std::vector<std::uint8_t>& indices,
+                                                     const std::vector<std::array<std::uint8_t, 3>>& palette);
 
 // 3 x 3 median filter with replicated borders (OpenCV medianBlur), in place of a copy.
 void median3(const float* src, float* dst, int width, int height);

@@ -124,6 +124,9 @@ Result<Extraction> extract_bytes(std::span<const std::uint8_t> bytes, const Extr
   out.decoder_warnings = decoded->decoder_warnings;
   if (decoded->jpeg_tables) out.compression.jpeg = estimate_jpeg_quality(*decoded->jpeg_tables);
   out.features = extract_tiles(decoded->tiles, &out.timings, &out.compression.block_grid_strength);
+  const auto processing_start = Clock::now();
+  out.processing = assess_processing(*decoded, out.compression.jpeg);
+  out.timings.processing_ms = ms_since(processing_start);
   out.timings.total_ms = ms_since(start);
   return out;
 }
@@ -142,8 +145,17 @@ Result<Extraction> extract_image(const Image& image, const ExtractOptions& optio
   out.channels = image.channels;
   out.layout = *layout;
   out.decoded_rows = static_cast<std::uint64_t>(image.height);
-  out.features = extract_tiles(cut_tiles(image, *layout), &out.timings, &out.compression.block_grid_strength);
-  out.timings.total_ms = out.timings.spectral_ms + out.timings.noise_ms + out.timings.resampling_ms;
+  DecodedWindows decoded;
+  decoded.header = out.header;
+  decoded.channels = image.channels;
+  decoded.layout = *layout;
+  decoded.tiles = cut_tiles(image, *layout);
+  out.features = extract_tiles(decoded.tiles, &out.timings, &out.compression.block_grid_strength);
+  const auto processing_start = Clock::now();
+  out.processing = assess_processing(decoded, std::nullopt);
+  out.timings.processing_ms = ms_since(processing_start);
+  out.timings.total_ms =
+      out.timings.spectral_ms + out.timings.noise_ms + out.timings.resampling_ms + out.timings.processing_ms;
   return out;
 }
 

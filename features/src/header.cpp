@@ -42,6 +42,7 @@ Result<ImageHeader> png_header(Bytes b) {
     case 3:
       h.channels = 3;
       h.bit_depth = 8;
+      h.palette = true;
       break;  // palette entries are 8-bit RGB
     case 4:
       h.channels = 2;
@@ -72,8 +73,10 @@ Result<ImageHeader> jpeg_header(Bytes b) {
     const size_t length = be16(b, i);
     if (is_sof(marker)) {
       if (i + 8 > b.size()) return truncated_header("JPEG");
-      return ImageHeader{ImageFormat::kJpeg, static_cast<int>(be16(b, i + 5)),
-                         static_cast<int>(be16(b, i + 3)), b[i + 7], b[i + 2]};
+      ImageHeader h{ImageFormat::kJpeg, static_cast<int>(be16(b, i + 5)), static_cast<int>(be16(b, i + 3)),
+                    b[i + 7], b[i + 2]};
+      h.lossy = marker != 0xC3 && marker != 0xC7 && marker != 0xCB && marker != 0xCF;  // not lossless
+      return h;
     }
     i += length;
   }
@@ -97,6 +100,7 @@ Result<ImageHeader> bmp_header(Bytes b) {
   } else {
     return make_error(ErrorCode::kUnsupported, "BMP info header of " + std::to_string(dib) + " bytes");
   }
+  h.palette = h.bit_depth > 0 && h.bit_depth <= 8;  // 1-, 4- and 8-bit BMPs index a colour table
   h.channels = h.bit_depth == 32 ? 4 : (h.bit_depth == 8 ? 1 : 3);
   h.bit_depth = 8;
   return h;
@@ -106,6 +110,18 @@ Result<ImageHeader> webp_header(Bytes b) {
   if (b.size() < 30) return truncated_header("WebP");
   ImageHeader h{ImageFormat::kWebp, 0, 0, 3, 8};
   const std::string chunk(b.begin() + 12, b.begin() + 16);
+  // Lossy when the image data is a "VP8 " chunk (RFC 9649); after VP8X it follows optional chunks.
+  for (size_t at = 12; at + 8 <= b.size();) {
+    const std::string id(b.begin() + static_cast<std::ptrdiff_t>(at),
+                         b.begin() + static_cast<std::ptrdiff_t>(at) + 4);
+    if (id == "VP8 " || id == "VP8L") {
+      h.lossy = id == "VP8 ";
+      break;
+    }
+    const std::uint64_t next = at + 8 + ((std::uint64_t{le32(b, at + 4)} + 1) & ~std::uint64_t{1});
+    if (next <= at || next > b.size()) break;
+    at = static_cast<size_t>(next);
+  }
   if (chunk == "VP8 ") {
     h.width = static_cast<int>(le16(b, 26) & 0x3FFF);
     h.height = static_cast<int>(le16(b, 28) & 0x3FFF);
@@ -144,6 +160,8 @@ Result<ImageHeader> tiff_header(Bytes b) {
     if (tag == 257) h.height = static_cast<int>(std::min<std::uint32_t>(value, INT32_MAX));
     if (tag == 258 && u32(e + 4) == 1) h.bit_depth = static_cast<int>(value);
     if (tag == 277) h.channels = static_cast<int>(value);
+    if (tag == 259) h.lossy = value == 6 || value == 7;  // old-style and new-style JPEG compression
+    if (tag == 262) h.palette = value == 3;              // PhotometricInterpretation: palette colour
   }
   if (h.width <= 0 || h.height <= 0) {
     return make_error(ErrorCode::kCorrupt, "TIFF first directory has no image width/height");

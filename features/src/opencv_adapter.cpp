@@ -70,11 +70,36 @@ Result<std::vector<std::uint8_t>> encode(const Image& image, ImageFormat format,
       cv::imencode(".jpg", mat, out, {cv::IMWRITE_JPEG_QUALITY, quality});
     } else if (format == ImageFormat::kPng) {
       cv::imencode(".png", mat, out, {cv::IMWRITE_PNG_COMPRESSION, 3});
+    } else if (format == ImageFormat::kWebp) {
+      cv::imencode(".webp", mat, out, {cv::IMWRITE_WEBP_QUALITY, quality});  // lossy below 100
     } else {
-      return make_error(ErrorCode::kUnsupported, "encoding is offered for JPEG and PNG only");
+      return make_error(ErrorCode::kUnsupported, "encoding is offered for JPEG, PNG and WebP only");
     }
   } catch (const cv::Exception& e) {
     return make_error(ErrorCode::kInternal, std::string("encoder: ") + e.what());
+  }
+  return out;
+}
+
+Image resize(const Image& image, int width, int height, ResizeFilter filter) {
+  const int interpolation = filter == ResizeFilter::kArea      ? cv::INTER_AREA
+                            : filter == ResizeFilter::kBicubic ? cv::INTER_CUBIC
+                                                               : cv::INTER_LINEAR;
+  Image out = Image::zeros(width, height, image.channels);
+  for (int c = 0; c < image.channels; ++c) {
+    const cv::Mat in(image.height, image.width, CV_32F, const_cast<float*>(image.plane(c)));
+    cv::Mat dst(height, width, CV_32F, out.plane(c));
+    cv::resize(in, dst, cv::Size(width, height), 0, 0, interpolation);
+  }
+  return out;
+}
+
+Image gaussian_blur(const Image& image, double sigma) {
+  Image out = Image::zeros(image.width, image.height, image.channels);
+  for (int c = 0; c < image.channels; ++c) {
+    const cv::Mat in(image.height, image.width, CV_32F, const_cast<float*>(image.plane(c)));
+    cv::Mat dst(image.height, image.width, CV_32F, out.plane(c));
+    cv::GaussianBlur(in, dst, cv::Size(0, 0), sigma, sigma, cv::BORDER_REFLECT_101);
   }
   return out;
 }

@@ -172,7 +172,7 @@ TEST_CASE("a model round-trips through its file; wrong extractor or damaged file
   m.linear.bias = 0.1;
   m.calibration = {-2.0, 0.3};
   m.training_prior = 0.25;
-  m.thresholds = {0.8, 0.2, 0.01, 0.05};
+  m.thresholds = {0.8, 0.2, 0.01, 0.05, std::nullopt};
   const auto path = test::scratch() / "model.json";
   REQUIRE(save_model(m, path).ok());
   auto back = load_model(path);

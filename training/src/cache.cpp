@@ -1,6 +1,8 @@
 // SQLite adapter for the feature cache.
 #include "residue/training/cache.hpp"
 
+#include "residue/training/applicability.hpp"
+
 #include <sqlite3.h>
 
 #include <cstring>
@@ -26,6 +28,7 @@ nlohmann::json facts_to_json(const FileFacts& f) {
           {"has_xmp", f.metadata.has_xmp},
           {"digital_source_type", f.metadata.digital_source_type},
           {"generation_text", f.metadata.generation_text},
+          {"processing", processing_to_json(f.processing)},
           {"extract_ms", f.extract_ms}};
 }
 
@@ -46,6 +49,9 @@ FileFacts facts_from_json(const nlohmann::json& j) {
   f.metadata.has_xmp = j.at("has_xmp");
   f.metadata.digital_source_type = j.at("digital_source_type");
   f.metadata.generation_text = j.at("generation_text");
+  // Rows stored before processing evidence existed lack it: throwing here makes them a miss,
+  // so the file is extracted again (the vector itself would be unchanged).
+  f.processing = processing_from_json(j.at("processing"));
   f.extract_ms = j.value("extract_ms", 0.0);  // absent in rows stored before it was recorded
   return f;
 }

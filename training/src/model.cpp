@@ -1,6 +1,7 @@
 #include "residue/training/model.hpp"
 
 #include <cmath>
+#include <cstdio>
 #include <fstream>
 #include <sstream>
 
@@ -15,12 +16,42 @@ std::string band_of(const Thresholds& t, double p) {
   return "inconclusive";
 }
 
-Score score(const Model& model, const FeatureVector& features, std::optional<double> prior) {
+namespace {
+
+std::string percent(double v) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, v < 0.1 ? "%.1f %%" : "%.0f %%", 100 * v);
+  return buf;
+}
+
+}  // namespace
+
+std::string promise_text(const Thresholds& t) {
+  if (!t.promise) {
+    return "the camera false-positive rate was set to " + percent(t.target_fpr) +
+           " out of fold, without a confidence bound (model trained before bounds were recorded)";
+  }
+  const FprPromise& p = *t.promise;
+  const std::string from = "from " + std::to_string(p.camera_images) + " camera images in " +
+                           std::to_string(p.camera_groups) + " groups";
+  const std::string conf = percent(p.confidence);
+  if (p.met)
+    return "camera false-positive rate at most " + percent(p.bound) + " with " + conf + " confidence, " +
+           from;
+  return "the target of " + percent(t.target_fpr) + " cannot be promised " + from + ": at most " +
+         percent(p.bound) + " with " + conf + " confidence; " + std::to_string(p.groups_needed) +
+         " more independent camera groups (none scored as generated) are needed";
+}
+
+Score score(const Model& model, const FeatureVector& features, std::optional<double> prior,
+            const ProcessingEvidence* processing, const Thresholds* thresholds) {
   Score s;
   s.margin = model.linear.bias;
   std::map<std::string, int> members;
+  std::vector<double> zs(model.feature_index.size());
   for (size_t k = 0; k < model.feature_index.size(); ++k) {
     const double z = (features.values[model.feature_index[k]] - model.scaler.mean[k]) / model.scaler.scale[k];
+    zs[k] = z;
     const double c = model.linear.weights[k] * z;
     s.margin += c;
     s.contributions[model.families[k]] += c;
@@ -30,7 +61,22 @@ Score score(const Model& model, const FeatureVector& features, std::optional<dou
   for (auto& [family, d] : s.distances) d = std::sqrt(d / members[family]);
   s.p_generated = model.calibration.probability(s.margin);
   if (prior) s.p_generated = shift_prior(s.p_generated, model.training_prior, *prior);
-  s.band = band_of(model.thresholds, s.p_generated);
+  const Thresholds& t = thresholds != nullptr ? *thresholds : model.thresholds;
+  s.band = band_of(t, s.p_generated);
+  if (model.applicability) {
+    s.domain = check_domain(*model.applicability, zs, processing);
+    s.reasons = s.domain->reasons;
+  }
+  if (!s.reasons.empty()) {
+    s.band = "inconclusive";
+  } else if (s.band == "inconclusive") {
+    char buf[200];
+    std::snprintf(buf, sizeof buf,
+                  "the score (p %.3f) lies between the likely-camera threshold (%.3f) and the "
+                  "likely-generated threshold (%.3f)",
+                  s.p_generated, t.likely_camera, t.likely_generated);
+    s.reasons.emplace_back(buf);
+  }
   return s;
 }
 
@@ -68,8 +114,20 @@ nlohmann::ordered_json model_to_json(const Model& m) {
                      {"likely_camera", m.thresholds.likely_camera},
                      {"target_fpr", m.thresholds.target_fpr},
                      {"generated_miss", m.thresholds.generated_miss}};
+  if (const auto& p = m.thresholds.promise) {
+    j["thresholds"]["promise"] = {{"confidence", p->confidence},
+                                  {"camera_images", p->camera_images},
+                                  {"camera_groups", p->camera_groups},
+                                  {"false_positive_images", p->false_positive_images},
+                                  {"false_positive_groups", p->false_positive_groups},
+                                  {"fpr_upper_bound", p->bound},
+                                  {"met", p->met},
+                                  {"groups_needed", p->groups_needed},
+                                  {"text", promise_text(m.thresholds)}};
+  }
   j["provenance"] = m.provenance;
   if (m.reference) j["training_reference"] = reference_to_json(*m.reference);
+  if (m.applicability) j["applicability"] = applicability_to_json(*m.applicability);
   return j;
 }
 
@@ -115,12 +173,33 @@ Result<Model> model_from_json(const nlohmann::json& j) {
     m.thresholds.likely_camera = j.at("thresholds").at("likely_camera");
     m.thresholds.target_fpr = j.at("thresholds").at("target_fpr");
     m.thresholds.generated_miss = j.at("thresholds").at("generated_miss");
+    if (j.at("thresholds").contains("promise")) {
+      const auto& p = j["thresholds"]["promise"];
+      m.thresholds.promise = FprPromise{p.at("confidence"),
+                                        p.at("camera_images"),
+                                        p.at("camera_groups"),
+                                        p.at("false_positive_images"),
+                                        p.at("false_positive_groups"),
+                                        p.at("fpr_upper_bound"),
+                                        p.at("met"),
+                                        p.at("groups_needed")};
+    }
     m.provenance = j.value("provenance", nlohmann::ordered_json::object());
     if (j.contains("training_reference")) {
       m.reference = reference_from_json(j["training_reference"]);
       if (!m.reference) return make_error(ErrorCode::kCorrupt, "model's training reference is damaged");
     }
     const size_t d = m.features.size();
+    if (j.contains("applicability")) {
+      m.applicability = applicability_from_json(j["applicability"]);
+      for (const auto& f : m.applicability->families) {
+        for (size_t c : f.columns) {
+          if (c >= d)
+            return make_error(ErrorCode::kCorrupt,
+                              "model's applicability reference names a feature it lacks");
+        }
+      }
+    }
     if (m.scaler.mean.size() != d || m.scaler.scale.size() != d || m.linear.weights.size() != d) {
       return make_error(ErrorCode::kCorrupt, "model arrays do not match its feature list");
     }

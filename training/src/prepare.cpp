@@ -47,6 +47,7 @@ Outcome prepare_one(const LabelledFile& file, const ExtractOptions& options, Fea
   f.file_bytes = bytes->size();
   if (auto preview = decode_preview(*bytes, options.limits)) f.dhash = difference_hash(*preview);
   f.metadata = read_metadata(*bytes);
+  f.processing = std::move(extraction->processing);
   item.features = std::move(extraction->features);
   f.extract_ms = std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - start).count();
   if (cache != nullptr) (void)cache->store(item.sha256, {item.facts, item.features});

@@ -52,6 +52,96 @@ Result<std::vector<double>> fit_and_score(const std::vector<PreparedItem>& items
 
 const char* const kGroupNames[] = {"duplicates", "folder", "manifest"};
 
+// The lowest likely-generated threshold whose promise holds: the upper Clopper-Pearson bound of
+// the camera FPR, over images and over groups, at most the target. Walks the camera scores from
+// the top, flagging one more image at a time. When no threshold keeps the promise, the one that
+// flags no camera image out of fold (just above the highest camera score), and says so.
+std::pair<double, FprPromise> promised_threshold(const std::vector<double>& p, const std::vector<int>& labels,
+                                                 const std::vector<int>& groups, double target,
+                                                 double confidence) {
+  std::vector<size_t> camera;
+  std::set<int> camera_groups;
+  for (size_t i = 0; i < p.size(); ++i) {
+    if (labels[i] == 0) {
+      camera.push_back(i);
+      camera_groups.insert(groups[i]);
+    }
+  }
+  std::sort(camera.begin(), camera.end(), [&](size_t a, size_t b) { return p[a] > p[b]; });
+  FprPromise promise;
+  promise.confidence = confidence;
+  promise.camera_images = camera.size();
+  promise.camera_groups = camera_groups.size();
+  auto bound = [&](size_t k_images, size_t k_groups) {
+    return std::max(clopper_pearson_upper(k_images, promise.camera_images, confidence),
+                    clopper_pearson_upper(k_groups, promise.camera_groups, confidence));
+  };
+  double threshold = camera.empty() ? 0.5 : std::nextafter(p[camera.front()], 2.0);
+  promise.bound = bound(0, 0);
+  promise.met = promise.bound <= target;
+  std::set<int> flagged;
+  for (size_t j = 0; j < camera.size() && promise.met; ++j) {
+    flagged.insert(groups[camera[j]]);
+    // Ties: every camera image with the same score is flagged together.
+    if (j + 1 < camera.size() && p[camera[j + 1]] == p[camera[j]]) continue;
+    const double b = bound(j + 1, flagged.size());
+    if (b > target) break;
+    threshold = p[camera[j]];
+    promise.bound = b;
+    promise.false_positive_images = j + 1;
+    promise.false_positive_groups = flagged.size();
+  }
+  const size_t needed = trials_needed(target, confidence);
+  promise.groups_needed = promise.met || needed <= promise.camera_groups ? 0 : needed - promise.camera_groups;
+  return {threshold, promise};
+}
+
+// The applicability reference (applicability.hpp): per family, PPCA on the standardised training
+// values; limits from out-of-fold distances (the reference refitted without each fold), so that
+// `coverage` of the training images pass every family; the processing profile per class.
+Applicability fit_applicability(const std::vector<PreparedItem>& items, const std::vector<int>& labels,
+                                const std::vector<int>& fold, int folds, const Model& model,
+                                double coverage) {
+  Matrix z{items.size(), model.feature_index.size(),
+           std::vector<double>(items.size() * model.feature_index.size())};
+  std::vector<double> raw(model.feature_index.size());
+  for (size_t i = 0; i < items.size(); ++i) {
+    for (size_t c = 0; c < raw.size(); ++c) raw[c] = items[i].features.values[model.feature_index[c]];
+    model.scaler.apply_row(raw.data(), z.row(i));
+  }
+  std::map<std::string, std::vector<size_t>> columns;
+  for (size_t c = 0; c < model.families.size(); ++c) columns[model.families[c]].push_back(c);
+  auto rows_of = [&](const std::vector<size_t>& rows) {
+    Matrix m{rows.size(), z.cols, std::vector<double>(rows.size() * z.cols)};
+    for (size_t r = 0; r < rows.size(); ++r) std::copy_n(z.row(rows[r]), z.cols, m.row(r));
+    return m;
+  };
+  std::vector<std::vector<double>> oof(columns.size(), std::vector<double>(items.size(), 0.0));
+  for (int f = 0; f < folds; ++f) {
+    std::vector<size_t> train, test;
+    for (size_t i = 0; i < items.size(); ++i) (fold[i] == f ? test : train).push_back(i);
+    if (test.empty() || train.size() < 3) continue;
+    const Matrix zt = rows_of(train);
+    size_t k = 0;
+    for (const auto& [family, cols] : columns) {
+      const FamilyReference r = fit_family_reference(family, cols, zt);
+      for (size_t i : test) oof[k][i] = r.distance(z.row(i));
+      ++k;
+    }
+  }
+  const auto limits = joint_limits(oof, coverage);
+  Applicability a;
+  a.coverage = coverage;
+  size_t k = 0;
+  for (const auto& [family, cols] : columns) {
+    a.families.push_back(fit_family_reference(family, cols, z));
+    a.families.back().limit = limits[k++];
+  }
+  for (size_t i = 0; i < items.size(); ++i)
+    (labels[i] == 1 ? a.generated : a.camera) += items[i].facts.processing;
+  return a;
+}
+
 // Histograms of the out-of-fold margins and of each family's contribution and distance under the
 // final model; band shares of each class out of fold.
 TrainingReference training_reference(const Model& model, const std::vector<PreparedItem>& items,
@@ -101,6 +191,8 @@ nlohmann::ordered_json settings_to_json(const TrainSettings& s) {
           {"large_set", s.large_set},
           {"target_fpr", s.target_fpr},
           {"generated_miss", s.generated_miss},
+          {"fpr_confidence", s.fpr_confidence},
+          {"domain_coverage", s.domain_coverage},
           {"group_by", kGroupNames[static_cast<int>(s.group_by)]},
           {"only", s.feature_prefixes}};
 }
@@ -121,6 +213,8 @@ TrainSettings settings_from_model(const Model& model) {
     s.large_set = j.value("large_set", s.large_set);
     s.target_fpr = j.value("target_fpr", s.target_fpr);
     s.generated_miss = j.value("generated_miss", s.generated_miss);
+    s.fpr_confidence = j.value("fpr_confidence", s.fpr_confidence);
+    s.domain_coverage = j.value("domain_coverage", s.domain_coverage);
     group_by = j.value("group_by", group_by);
     s.feature_prefixes = j.value("only", s.feature_prefixes);
   }
@@ -226,17 +320,21 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   for (double m : cv.margins) cv.probabilities.push_back(model.calibration.probability(m));
   model.training_prior = static_cast<double>(positives) / static_cast<double>(items.size());
 
-  std::vector<double> camera_p, generated_p;
-  for (size_t i = 0; i < items.size(); ++i)
-    (labels[i] ? generated_p : camera_p).push_back(cv.probabilities[i]);
+  std::vector<double> generated_p;
+  for (size_t i = 0; i < items.size(); ++i) {
+    if (labels[i] == 1) generated_p.push_back(cv.probabilities[i]);
+  }
   model.thresholds.target_fpr = settings.target_fpr;
   model.thresholds.generated_miss = settings.generated_miss;
-  model.thresholds.likely_generated = std::min(1.0, threshold_for_fpr(camera_p, settings.target_fpr));
+  const auto [threshold, promise] =
+      promised_threshold(cv.probabilities, labels, groups, settings.target_fpr, settings.fpr_confidence);
+  model.thresholds.likely_generated = threshold;
+  model.thresholds.promise = promise;
   std::sort(generated_p.begin(), generated_p.end());
   const auto miss =
       static_cast<size_t>(std::floor(settings.generated_miss * static_cast<double>(generated_p.size())));
-  model.thresholds.likely_camera =
-      std::min(generated_p[std::min(miss, generated_p.size() - 1)], model.thresholds.likely_generated);
+  model.thresholds.likely_camera = std::min(generated_p[std::min(miss, generated_p.size() - 1)],
+                                            std::min(1.0, model.thresholds.likely_generated));
 
   std::vector<std::string> generators;
   generators.reserve(items.size());
@@ -281,6 +379,7 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
                         {"metrics", report_to_json(cv.report)}}},
                       {"training_files", files}};
   model.reference = training_reference(model, items, labels, cv);
+  model.applicability = fit_applicability(items, labels, cv.fold, k, model, settings.domain_coverage);
   stamp_model_id(model);
   return out;
 }

@@ -18,6 +18,7 @@
 
 #include "residue/features/compression.hpp"
 #include "residue/features/decode.hpp"
+#include "residue/features/processing.hpp"
 
 namespace residue {
 
@@ -46,6 +47,7 @@ struct FamilyTimings {
   double spectral_ms = 0;
   double noise_ms = 0;
   double resampling_ms = 0;
+  double processing_ms = 0;  // processing evidence (not a family: reported, never learned)
   double total_ms = 0;
 };
 
@@ -58,6 +60,7 @@ struct Extraction {
   int decoder_warnings = 0;
   FeatureVector features;
   CompressionHistory compression;
+  ProcessingEvidence processing;
   FamilyTimings timings;
 };
 

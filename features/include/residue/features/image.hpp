@@ -23,6 +23,8 @@ struct ImageHeader {
   int height = 0;
   int channels = 0;   // as stored, alpha included; 0 where the header does not say
   int bit_depth = 0;  // bits per sample; 0 where the header does not say
+  bool palette = false;  // samples are indices into a colour table (PNG colour type 3, BMP <= 8 bit)
+  bool lossy = false;    // lossy coding (JPEG, WebP "VP8 ", TIFF with JPEG compression)
 };
 
 // A whole decoded image (alpha dropped), 1 (grey) or 3 (RGB) channels.

@@ -17,6 +17,7 @@
 #include <vector>
 
 #include "residue/features/extract.hpp"
+#include "residue/training/applicability.hpp"
 #include "residue/training/calibration.hpp"
 #include "residue/training/drift.hpp"
 #include "residue/training/linear.hpp"
@@ -26,12 +27,31 @@ namespace residue {
 inline constexpr const char* kModelFormat = "residue-model";
 inline constexpr int kModelFormatVersion = 1;
 
-struct Thresholds {
-  double likely_generated = 0.5;  // P at or above: "likely-generated" (chosen for target_fpr)
-  double likely_camera = 0.5;     // P below: "likely-camera"
-  double target_fpr = 0.01;       // share of camera images allowed at or above likely_generated
-  double generated_miss = 0.05;   // share of generated images allowed below likely_camera
+// What the likely-generated threshold promises about camera photos: the one-sided upper
+// Clopper-Pearson bound of the camera false-positive rate at `confidence`, out of fold, the larger
+// of the bound over images and the bound over groups (a group counts when any of its images is
+// at or above the threshold), so near-duplicates cannot inflate the evidence.
+struct FprPromise {
+  double confidence = 0.95;
+  size_t camera_images = 0;
+  size_t camera_groups = 0;
+  size_t false_positive_images = 0;  // out of fold, at the threshold
+  size_t false_positive_groups = 0;
+  double bound = 1.0;        // the promise: camera FPR at most this, with `confidence`
+  bool met = false;          // bound <= target_fpr
+  size_t groups_needed = 0;  // camera groups needed to promise target_fpr with none flagged
 };
+
+struct Thresholds {
+  double likely_generated = 0.5;      // P at or above: "likely-generated" (chosen for target_fpr)
+  double likely_camera = 0.5;         // P below: "likely-camera"
+  double target_fpr = 0.01;           // camera FPR promised (upper confidence bound) at likely_generated
+  double generated_miss = 0.05;       // share of generated images allowed below likely_camera
+  std::optional<FprPromise> promise;  // absent in models from before it existed
+};
+
+// "at most 1 % with 95 % confidence, from 412 camera images in 300 groups", or what is missing.
+std::string promise_text(const Thresholds& thresholds);
 
 struct Model {
   std::string id;       // content fingerprint, e.g. "m-3fa2c1d09e8b7a65"
@@ -48,17 +68,23 @@ struct Model {
   Thresholds thresholds;
   nlohmann::ordered_json provenance;           // counts, audit warnings, CV metrics, settings, lineage
   std::optional<TrainingReference> reference;  // for drift; absent in models from before it existed
+  std::optional<Applicability> applicability;  // absent in models from before it existed
 };
 
 struct Score {
   double margin = 0.0;
   double p_generated = 0.0;
-  std::string band;
   std::map<std::string, double> contributions;  // per family: sum of w_j z_j (bias excluded)
   std::map<std::string, double> distances;      // per family: sqrt(mean z_j^2), in training std. devs
+  std::optional<DomainCheck> domain;            // absent when the model has no applicability reference
+  std::string band;                             // after the domain check (`reasons` say why inconclusive)
+  std::vector<std::string> reasons;
 };
 
-Score score(const Model& model, const FeatureVector& features, std::optional<double> prior = std::nullopt);
+// Scores a vector. With `processing` (the file's evidence), processing the training data never
+// showed also makes the band "inconclusive". `thresholds` overrides the model's.
+Score score(const Model& model, const FeatureVector& features, std::optional<double> prior = std::nullopt,
+            const ProcessingEvidence* processing = nullptr, const Thresholds* thresholds = nullptr);
 std::string band_of(const Thresholds& thresholds, double p);
 
 nlohmann::ordered_json model_to_json(const Model& model);

@@ -20,7 +20,9 @@ struct TrainSettings {
   // steeply with C and n (10k images: minutes at C <= 1, far longer at C = 10; see
   // docs/performance.md). 0 keeps the grid as given (the CLI does so when --c-grid is set).
   size_t large_set = 3000;
-  double target_fpr = 0.01;      // on camera images, for the likely-generated threshold
+  double target_fpr = 0.01;       // camera FPR the likely-generated threshold promises ...
+  double fpr_confidence = 0.95;   // ... as an upper Clopper-Pearson bound at this confidence
+  double domain_coverage = 0.99;  // share of training images (out of fold) inside the domain
   double generated_miss = 0.05;  // on generated images, for the likely-camera threshold
   GroupBy group_by = GroupBy::kDuplicates;
   std::vector<std::string> feature_prefixes;  // empty: every feature

@@ -1,0 +1,79 @@
+"""The development set as the benchmarks see it (reads ../shared/data/dev in place; copies nothing
+into the project): camera photographs, generated singles, and the cells cut from the sample grids
+whose layout the manifest gives (written losslessly as PNG under a scratch folder).
+
+items(dev, work) -> [(path, label, generator, group_in_distribution, group_unseen)]
+  group_in_distribution: one source picture (a grid's cells together; camera sets that share
+  scenes, LIVE1 + Kodak24 and Set5/Set14 + OpenCV's samples, one group each; DreamBooth objects one
+  group per object); group_unseen: for generated images their generator family.
+"""
+import csv
+import os
+import re
+
+from PIL import Image
+
+
+def family_of(path):
+    parts = path.split("/")
+    return parts[2] if parts[0] == "grids" else (parts[1] if parts[0] == "generated" else "camera")
+
+
+def camera_group(row):
+    src = row["path_in_source"]
+    if "LIVE1" in src or "Kodak24" in src:
+        return "scenes:live1-kodak"
+    if "Set5" in src or "Set14" in src or row["source"] == "debian:opencv-doc":
+        return "scenes:classic-test-images"
+    if row["source"] == "google/dreambooth":
+        return "object:" + src.split("/")[-2]
+    return "file:" + row["path"]
+
+
+def cells(row):
+    """Yields (x, y, w, h) cells of a grid whose layout the note gives; nothing otherwise."""
+    w, h, note = int(row["width"]), int(row["height"]), row["note"]
+    m = re.search(r"(\d+)x(\d+) grid of (\d+)px tiles", note) or re.search(r"(\d+) tiles of (\d+)", note) \
+        or re.search(r"(\d+)px tiles", note) or re.search(r"(\d+)x(\d+) tile grid", note) \
+        or re.search(r"strip, (\d+) tiles$", note) or re.search(r"strip of (\d+) ", note)
+    if "padding" in note or "collage" in note or "SeFa" in note or m is None:
+        return
+    if "tile grid" in note:
+        nx, ny = int(m.group(1)), int(m.group(2))
+        tw, th = w // nx, h // ny
+    elif "grid of" in note:
+        tw = th = int(m.group(3))
+    elif "tiles of" in note:
+        tw = th = int(m.group(2))
+    elif "px tiles" in note:
+        tw = th = int(m.group(1))
+    else:  # a strip of n tiles separated by thin gaps
+        n = int(m.group(1))
+        tw, th = w // n, h
+    for y in range(0, h - th + 1, th):
+        for x in range(0, w - tw + 1, tw):
+            yield x, y, tw, th
+
+
+def items(dev, work):
+    with open(os.path.join(dev, "manifest.tsv")) as f:
+        rows = list(csv.DictReader(f, delimiter="\t"))
+    items = []  # (path, label, generator, group_in_distribution, group_unseen)
+    cut_dir = os.path.join(work, "cells")
+    for row in rows:
+        fam = family_of(row["path"])
+        src = os.path.join(dev, row["path"])
+        if row["grid"] == "1":
+            image = None
+            for k, (x, y, tw, th) in enumerate(cells(row)):
+                out = os.path.join(cut_dir, fam, os.path.basename(row["path"]).rsplit(".", 1)[0] + f"__cell{k:02d}.png")
+                if not os.path.exists(out):
+                    image = image or Image.open(src).convert("RGB")
+                    os.makedirs(os.path.dirname(out), exist_ok=True)
+                    image.crop((x, y, x + tw, y + th)).save(out)
+                items.append((out, "generated", fam, "grid:" + row["path"], "family:" + fam))
+        elif row["class"] == "camera":
+            items.append((src, "camera", "camera", camera_group(row), camera_group(row)))
+        else:
+            items.append((src, "generated", fam, "file:" + row["path"], "family:" + fam))
+    return items

@@ -1,0 +1,202 @@
+#!/usr/bin/python3
+"""Everyday processing on the development set (reads ../shared/data/dev in place; copies nothing
+into the project). Prints the tables of docs/quality.md, "Everyday processing".
+
+What it does:
+  1. Takes the development set as bench/quality.py does (grid cells included) and splits its
+     source groups (a grid's cells, a scene set, an object) into three folds, so that no picture
+     and none of its relatives is on both sides.
+  2. For each fold: trains `residue train --group-by manifest` on the other two folds, processes
+     every held-out image with each everyday transform — done here with Pillow, an implementation
+     independent of residue's own (`residue evaluate --processing`) — and scans the processed
+     copies with `residue scan`.
+  3. Per transform, over the three held-out folds: camera photos put in likely-generated, camera
+     photos made inconclusive (and how many of them by the applicability check or processing the
+     training never showed, "guarded"), generated images still caught, generated images made
+     inconclusive, ROC AUC of p_generated.
+With --old OTHER_RESIDUE it repeats everything with another build (e.g. the previous release) for
+a before/after table; an older build has no guards, so its guarded share reads 0.
+
+Usage: bench/processing_quality.py [--residue build/residue] [--old PATH] [--dev ../shared/data/dev]
+                                   [--work /tmp/residue-processing] [--jobs 2]
+"""
+import argparse
+import csv
+import hashlib
+import json
+import os
+import subprocess
+import sys
+
+from PIL import Image, ImageFilter
+
+import devset
+
+parser = argparse.ArgumentParser()
+parser.add_argument("--residue", default="build/residue")
+parser.add_argument("--old", default=None)
+parser.add_argument("--dev", default="../shared/data/dev")
+parser.add_argument("--work", default="/tmp/residue-processing")
+parser.add_argument("--jobs", default="2")
+parser.add_argument("--folds", type=int, default=3)
+args = parser.parse_args()
+dev = os.path.abspath(args.dev)
+work = os.path.abspath(args.work)
+os.makedirs(work, exist_ok=True)
+items = devset.items(dev, os.path.join(work, "set"))
+
+
+def rgb(path):
+    return Image.open(path).convert("RGB")
+
+
+def scaled(im, f, resample):
+    return im.resize((max(1, round(im.width * f)), max(1, round(im.height * f))), resample)
+
+
+def centre_crop(im, f):
+    w, h = max(1, int(im.width * f)), max(1, int(im.height * f))
+    x, y = (im.width - w) // 2, (im.height - h) // 2
+    return im.crop((x, y, x + w, y + h))
+
+
+TRANSFORMS = {
+    "as-published": None,
+    "jpeg-q95": lambda p, out: rgb(p).save(out, "JPEG", quality=95),
+    "jpeg-q75": lambda p, out: rgb(p).save(out, "JPEG", quality=75),
+    "jpeg-q50": lambda p, out: rgb(p).save(out, "JPEG", quality=50),
+    "webp-q80": lambda p, out: rgb(p).save(out, "WEBP", quality=80),
+    "downscale-0.5": lambda p, out: scaled(rgb(p), 0.5, Image.BOX).save(out, "PNG"),
+    "upscale-1.5": lambda p, out: scaled(rgb(p), 1.5, Image.BICUBIC).save(out, "PNG"),
+    "palette-256": lambda p, out: rgb(p).quantize(256).save(out, "PNG"),
+    "sharpen": lambda p, out: rgb(p).filter(ImageFilter.UnsharpMask(radius=1, percent=80, threshold=0)).save(out, "PNG"),
+    "crop-centre-0.6": lambda p, out: centre_crop(rgb(p), 0.6).save(out, "PNG"),
+    "screenshot-0.8": lambda p, out: scaled(rgb(p), 0.8, Image.BILINEAR).save(out, "PNG"),
+}
+EXT = {"jpeg-q95": "jpg", "jpeg-q75": "jpg", "jpeg-q50": "jpg", "webp-q80": "webp"}
+
+
+def processed(path, name):
+    if TRANSFORMS[name] is None:
+        return path
+    key = hashlib.sha256(path.encode()).hexdigest()[:16]
+    out = os.path.join(work, "processed", name, key + "." + EXT.get(name, "png"))
+    if not os.path.exists(out):
+        os.makedirs(os.path.dirname(out), exist_ok=True)
+        TRANSFORMS[name](path, out + ".tmp")
+        os.replace(out + ".tmp", out)
+    return out
+
+
+def fold_of(group):
+    return int(hashlib.sha256(group.encode()).hexdigest(), 16) % args.folds
+
+
+def run(cmd):
+    r = subprocess.run(cmd, capture_output=True, text=True)
+    if r.returncode not in (0, 3):
+        sys.exit(f"{' '.join(cmd)} failed ({r.returncode}):\n{r.stderr[-3000:]}")
+    return r
+
+
+def auc(pos, neg):
+    """Mann-Whitney ROC AUC with ties counted half."""
+    if not pos or not neg:
+        return float("nan")
+    ranked = sorted([(p, 1) for p in pos] + [(p, 0) for p in neg])
+    rank_sum, i = 0.0, 0
+    while i < len(ranked):
+        j = i
+        while j < len(ranked) and ranked[j][0] == ranked[i][0]:
+            j += 1
+        mean_rank = (i + j + 1) / 2
+        rank_sum += mean_rank * sum(1 for k in range(i, j) if ranked[k][1] == 1)
+        i = j
+    return (rank_sum - len(pos) * (len(pos) + 1) / 2) / (len(pos) * len(neg))
+
+
+def evaluate(binary, tag):
+    records = {name: [] for name in TRANSFORMS}
+    promises = []
+    for f in range(args.folds):
+        train = [it for it in items if fold_of(it[3]) != f]
+        test = [it for it in items if fold_of(it[3]) == f]
+        manifest = os.path.join(work, f"{tag}-train-{f}.csv")
+        with open(manifest, "w", newline="") as fh:
+            w = csv.writer(fh)
+            w.writerow(["path", "label", "generator", "group"])
+            for p, label, gen, group, _ in train:
+                w.writerow([p, label, gen, group])
+        model = os.path.join(work, f"{tag}-model-{f}.json")
+        run([binary, "train", manifest, "-o", model, "--group-by", "manifest", "--jobs", args.jobs,
+             "--cache", os.path.join(work, f"{tag}-cache.sqlite")])
+        with open(model) as fh:
+            promises.append(json.load(fh)["thresholds"])
+        for name in TRANSFORMS:
+            paths = [processed(p, name) for p, *_ in test]
+            truth = {pp: it for pp, it in zip(paths, test)}
+            out = os.path.join(work, f"{tag}-scan-{f}-{name}.jsonl")
+            listing = os.path.join(work, "paths.txt")
+            with open(listing, "w") as fh:
+                fh.write("\n".join(paths) + "\n")
+            with open(listing) as stdin:
+                r = subprocess.run([binary, "scan", model, "-", "-o", out, "--jobs", args.jobs], stdin=stdin,
+                                   capture_output=True, text=True)
+            if r.returncode not in (0, 3):
+                sys.exit(f"scan failed: {r.stderr[-2000:]}")
+            with open(out) as fh:
+                for line in fh:
+                    rec = json.loads(line)
+                    rec["truth"] = truth[rec["path"]][1]
+                    records[name].append(rec)
+    return records, promises
+
+
+def table(records):
+    rows = []
+    for name, recs in records.items():
+        ok = [r for r in recs if "error" not in r]
+        cam = [r for r in ok if r["truth"] == "camera"]
+        gen = [r for r in ok if r["truth"] == "generated"]
+
+        def share(rs, pred):
+            return sum(1 for r in rs if pred(r)) / len(rs) if rs else float("nan")
+
+        def guarded(r):
+            return r["band"] == "inconclusive" and any(not s.startswith("the score") for s in r.get("reasons", []))
+
+        rows.append((name, len(cam), len(gen), len(recs) - len(ok),
+                     share(cam, lambda r: r["band"] == "likely-generated"),
+                     share(cam, lambda r: r["band"] == "inconclusive"), share(cam, guarded),
+                     share(gen, lambda r: r["band"] == "likely-generated"),
+                     share(gen, lambda r: r["band"] == "inconclusive"), share(gen, guarded),
+                     auc([r["p_generated"] for r in gen], [r["p_generated"] for r in cam])))
+    return rows
+
+
+def pct(v):
+    return f"{100 * v:.1f} %"
+
+
+def print_table(title, rows):
+    print(f"### {title}\n")
+    print("| transform | camera | generated | camera → likely-generated | camera inconclusive (guarded) "
+          "| generated caught | generated inconclusive (guarded) | AUC |")
+    print("|---|---:|---:|---:|---:|---:|---:|---:|")
+    for name, nc, ng, failed, flagged, inc, g_c, caught, ginc, g_g, a in rows:
+        bold = "**" if flagged > 0.02 else ""
+        print(f"| {name} | {nc} | {ng} | {bold}{pct(flagged)}{bold} | {pct(inc)} ({pct(g_c)}) | {pct(caught)} "
+              f"| {pct(ginc)} ({pct(g_g)}) | {a:.3f} |" + (f" {failed} failed" if failed else ""))
+    print()
+
+
+print(f"{len(items)} images ({sum(1 for i in items if i[1] == 'camera')} camera), {args.folds} grouped folds\n")
+builds = [("new", args.residue)] + ([("old", args.old)] if args.old else [])
+for tag, binary in builds:
+    records, promises = evaluate(binary, tag)
+    for f, t in enumerate(promises):
+        p = t.get("promise")
+        print(f"fold {f}: likely-generated threshold {t['likely_generated']:.4f}"
+              + (f"; {p['text']}" if p else " (no promise recorded)"))
+    print()
+    print_table(f"{tag}: {binary}", table(records))

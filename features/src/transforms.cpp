@@ -1,0 +1,167 @@
+// Everyday processing of uploads (transforms.hpp).
+#include "residue/features/transforms.hpp"
+
+#include <algorithm>
+#include <cmath>
+
+#include "adapters.hpp"
+
+namespace residue {
+
+namespace {
+
+Image crop(const Image& image, int x0, int y0, int width, int height) {
+  Image out = Image::zeros(width, height, image.channels);
+  for (int c = 0; c < image.channels; ++c) {
+    for (int y = 0; y < height; ++y) {
+      std::copy_n(image.plane(c) + static_cast<size_t>(y0 + y) * image.width + x0, width,
+                  out.plane(c) + static_cast<size_t>(y) * width);
+    }
+  }
+  return out;
+}
+
+Image scaled(const Image& image, double factor, detail::ResizeFilter filter) {
+  const int w = std::max(1, static_cast<int>(std::lround(image.width * factor)));
+  const int h = std::max(1, static_cast<int>(std::lround(image.height * factor)));
+  return detail::resize(image, w, h, filter);
+}
+
+// Unsharp masking, the usual "sharpen": x + amount (x - gaussian(x, sigma)), clamped.
+Image sharpened(const Image& image, double sigma, double amount) {
+  const Image blurred = detail::gaussian_blur(image, sigma);
+  Image out = image;
+  for (size_t i = 0; i < out.samples.size(); ++i) {
+    out.samples[i] =
+        std::clamp(static_cast<float>(image.samples[i] + amount * (image.samples[i] - blurred.samples[i])),
+                   0.0F, 255.0F);
+  }
+  return out;
+}
+
+Image as_rgb(const Image& image) {
+  if (image.channels == 3) return image;
+  Image out = Image::zeros(image.width, image.height, 3);
+  for (int c = 0; c < 3; ++c) std::copy(image.samples.begin(), image.samples.end(), out.plane(c));
+  return out;
+}
+
+}  // namespace
+
+const std::vector<TransformInfo>& everyday_transforms() {
+  static const std::vector<TransformInfo> t = {
+      {"as-published", "the file as it is"},
+      {"jpeg-q95", "recompressed as JPEG, quality 95 (IJG scale, 4:2:0)"},
+      {"jpeg-q75", "recompressed as JPEG, quality 75"},
+      {"jpeg-q50", "recompressed as JPEG, quality 50"},
+      {"webp-q80", "converted to lossy WebP, quality 80"},
+      {"downscale-0.5", "downscaled to half size (area filter), saved as PNG"},
+      {"upscale-1.5", "upscaled 1.5 times (bicubic), saved as PNG"},
+      {"palette-256", "quantised to 256 colours (median cut), saved as a palette PNG"},
+      {"sharpen", "unsharp mask (sigma 1 px, amount 0.8), saved as PNG"},
+      {"crop-centre-0.6", "centre 60 % of each side, saved as PNG"},
+      {"screenshot-0.8", "rescaled to 0.8 (bilinear) as a screen capture would, saved as PNG"},
+  };
+  return t;
+}
+
+Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> bytes,
+                                                  const std::string& name, const DecodeLimits& limits) {
+  if (name == "as-published") return std::vector<std::uint8_t>(bytes.begin(), bytes.end());
+  const auto known = std::any_of(everyday_transforms().begin(), everyday_transforms().end(),
+                                 [&](const TransformInfo& t) { return t.name == name; });
+  if (!known) return make_error(ErrorCode::kUnsupported, "unknown transform '" + name + "'");
+  auto decoded = decode_image(bytes, limits);
+  if (!decoded) return decoded.error();
+  const Image& image = *decoded;
+  using detail::ResizeFilter;
+  if (name == "jpeg-q95") return encode_image(image, ImageFormat::kJpeg, 95);
+  if (name == "jpeg-q75") return encode_image(image, ImageFormat::kJpeg, 75);
+  if (name == "jpeg-q50") return encode_image(image, ImageFormat::kJpeg, 50);
+  if (name == "webp-q80") return encode_image(image, ImageFormat::kWebp, 80);
+  if (name == "downscale-0.5")
+    return encode_image(scaled(image, 0.5, ResizeFilter::kArea), ImageFormat::kPng);
+  if (name == "upscale-1.5")
+    return encode_image(scaled(image, 1.5, ResizeFilter::kBicubic), ImageFormat::kPng);
+  if (name == "sharpen") return encode_image(sharpened(image, 1.0, 0.8), ImageFormat::kPng);
+  if (name == "screenshot-0.8")
+    return encode_image(scaled(image, 0.8, ResizeFilter::kBilinear), ImageFormat::kPng);
+  if (name == "crop-centre-0.6") {
+    const int w = std::max(1, static_cast<int>(image.width * 0.6));
+    const int h = std::max(1, static_cast<int>(image.height * 0.6));
+    return encode_image(crop(image, (image.width - w) / 2, (image.height - h) / 2, w, h), ImageFormat::kPng);
+  }
+  // palette-256
+  const Image rgb = as_rgb(image);
+  const Quantised q = median_cut(rgb, 256);
+  return detail::encode_palette_png(rgb.width, rgb.height, q.indices, q.palette);
+}
+
+Quantised median_cut(const Image& image, int colours) {
+  const size_t n = static_cast<size_t>(image.width) * image.height;
+  auto value = [&](size_t pixel, int c) {
+    return static_cast<std::uint8_t>(std::clamp(std::lround(image.plane(c)[pixel]), 0L, 255L));
+  };
+  std::vector<std::array<std::uint8_t, 3>> pixels(n);
+  for (size_t i = 0; i < n; ++i) pixels[i] = {value(i, 0), value(i, 1), value(i, 2)};
+  std::vector<std::uint32_t> order(n);
+  for (size_t i = 0; i < n; ++i) order[i] = static_cast<std::uint32_t>(i);
+  struct Box {
+    size_t begin, end;
+    int channel;  // the longest side
+    int range;    // its extent (0: cannot be split)
+  };
+  auto make_box = [&](size_t begin, size_t end) {
+    std::array<int, 3> lo{255, 255, 255}, hi{0, 0, 0};
+    for (size_t k = begin; k < end; ++k) {
+      for (size_t c = 0; c < 3; ++c) {
+        lo[c] = std::min<int>(lo[c], pixels[order[k]][c]);
+        hi[c] = std::max<int>(hi[c], pixels[order[k]][c]);
+      }
+    }
+    Box b{begin, end, 0, 0};
+    for (int c = 0; c < 3; ++c) {
+      const int r = hi[static_cast<size_t>(c)] - lo[static_cast<size_t>(c)];
+      if (r > b.range) b = {begin, end, c, r};
+    }
+    return b;
+  };
+  std::vector<Box> boxes = {make_box(0, n)};
+  while (static_cast<int>(boxes.size()) < colours) {
+    // The most populous box that still spans more than one value.
+    int pick = -1;
+    for (size_t b = 0; b < boxes.size(); ++b) {
+      if (boxes[b].range == 0) continue;
+      if (pick < 0 || boxes[b].end - boxes[b].begin >
+                          boxes[static_cast<size_t>(pick)].end - boxes[static_cast<size_t>(pick)].begin) {
+        pick = static_cast<int>(b);
+      }
+    }
+    if (pick < 0) break;
+    const Box box = boxes[static_cast<size_t>(pick)];
+    const size_t mid = box.begin + (box.end - box.begin) / 2;
+    const auto channel = static_cast<size_t>(box.channel);
+    auto less = [&](std::uint32_t a, std::uint32_t b) { return pixels[a][channel] < pixels[b][channel]; };
+    std::nth_element(order.begin() + static_cast<std::ptrdiff_t>(box.begin),
+                     order.begin() + static_cast<std::ptrdiff_t>(mid),
+                     order.begin() + static_cast<std::ptrdiff_t>(box.end), less);
+    boxes[static_cast<size_t>(pick)] = make_box(box.begin, mid);
+    boxes.push_back(make_box(mid, box.end));
+  }
+  Quantised q;
+  q.indices.resize(n);
+  for (size_t b = 0; b < boxes.size(); ++b) {
+    std::array<double, 3> sum{0, 0, 0};
+    for (size_t k = boxes[b].begin; k < boxes[b].end; ++k) {
+      for (int c = 0; c < 3; ++c) sum[static_cast<size_t>(c)] += pixels[order[k]][static_cast<size_t>(c)];
+      q.indices[order[k]] = static_cast<std::uint8_t>(b);
+    }
+    const double count = static_cast<double>(std::max<size_t>(1, boxes[b].end - boxes[b].begin));
+    q.palette.push_back({static_cast<std::uint8_t>(std::lround(sum[0] / count)),
+                         static_cast<std::uint8_t>(std::lround(sum[1] / count)),
+                         static_cast<std::uint8_t>(std::lround(sum[2] / count))});
+  }
+  return q;
+}
+
+}  // namespace residue

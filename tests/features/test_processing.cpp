@@ -1,0 +1,174 @@
+// Processing evidence and the everyday transforms, on scikit-image's astronaut photograph
+// (python3-skimage, public domain) and on arrays made by the tests.
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <fstream>
+#include <set>
+
+#include "residue/features/extract.hpp"
+#include "residue/features/processing.hpp"
+#include "residue/features/transforms.hpp"
+#include "support.hpp"
+
+using namespace residue;
+
+namespace {
+
+std::vector<std::uint8_t> file_bytes(const std::filesystem::path& path) {
+  auto bytes = read_file(path);
+  REQUIRE(bytes);
+  return *bytes;
+}
+
+ProcessingEvidence evidence_of(const std::vector<std::uint8_t>& bytes) {
+  auto e = extract_bytes(bytes);
+  REQUIRE(e);
+  return e->processing;
+}
+
+std::vector<std::uint8_t> transformed(const std::vector<std::uint8_t>& bytes, const std::string& name) {
+  auto out = apply_transform(bytes, name);
+  REQUIRE(out);
+  return *out;
+}
+
+}  // namespace
+
+TEST_CASE("dct8x8 equals scipy.fft.dctn(norm='ortho') on a block of a photograph") {
+  const Image camera = test::load(test::sample("camera.png"));
+  std::array<double, 64> block{};
+  const auto csv = test::scratch() / "block.csv";
+  std::ofstream out(csv);
+  for (int y = 0; y < 8; ++y) {
+    for (int x = 0; x < 8; ++x) {
+      block[static_cast<size_t>(y * 8 + x)] =
+          camera.plane(0)[static_cast<size_t>(200 + y) * camera.width + 240 + x];
+      out << (x ? "," : "") << block[static_cast<size_t>(y * 8 + x)];
+    }
+    out << "\n";
+  }
+  out.close();
+  const auto expected = test::numbers(test::python("applicability_reference.py", {"dct", csv.string()}));
+  const auto d = dct8x8(block);
+  REQUIRE(expected.size() == 64);
+  for (size_t k = 0; k < 64; ++k) CHECK(d[k] == doctest::Approx(expected[k]).epsilon(1e-10).scale(1.0));
+}
+
+TEST_CASE("resampling factor candidates invert Kirchner's peak position 1/w folded into [0, 0.5]") {
+  // Kirchner (2008), sec. 3: scaling by w puts the p-map peak at f = 1/w, aliased into [0, 0.5].
+  for (double w : {1.1, 1.25, 1.5, 1.8, 2.5, 4.0, 0.6, 0.8, 0.9}) {
+    double f = std::fmod(1.0 / w, 1.0);
+    if (f > 0.5) f = 1.0 - f;
+    const auto c = resampling_factor_candidates(f);
+    REQUIRE(c.size() == 4);
+    bool found = false;
+    for (double v : c) found = found || std::fabs(v - w) < 1e-9;
+    CHECK_MESSAGE(found, "w = " << w);
+  }
+  CHECK(resampling_factor_candidates(0.0).empty());
+  CHECK(resampling_factor_candidates(0.6).empty());
+}
+
+TEST_CASE("histogram_dips counts levels emptied by double quantisation (hand-worked example)") {
+  // Every second level nearly empty: the six small counts are each under 0.2 x the mean of the
+  // up-to-five levels around them (e.g. level 1: 5 < 0.2 x (400+5+300+6)/4 = 35.6; level 11:
+  // 1 < 0.2 x (2+80+1)/3 = 5.5), the six large ones are not (level 2: 300 > 0.2 x 182.2).
+  const std::vector<double> h = {400, 5, 300, 6, 200, 4, 150, 3, 100, 2, 80, 1};
+  CHECK(histogram_dips(h) == doctest::Approx(0.5));
+  // A smooth geometric histogram has no dips.
+  std::vector<double> smooth;
+  for (int v = 0; v < 20; ++v) smooth.push_back(1000.0 * std::pow(0.85, v));
+  CHECK(histogram_dips(smooth) == 0.0);
+  // Too few populated levels to judge.
+  CHECK(histogram_dips({100, 0, 100}) == 0.0);
+}
+
+TEST_CASE("processing evidence: an untouched photograph shows none") {
+  const auto e = evidence_of(file_bytes(test::sample("astronaut.png")));
+  CHECK_FALSE(e.quantised);
+  CHECK_FALSE(e.resampling.detected);
+  CHECK_FALSE(e.jpeg_quality.has_value());
+  CHECK_FALSE(e.lossy_webp);
+  CHECK_FALSE(e.screenshot_like);
+  CHECK(e.distinct_colours > 20000);
+  CHECK(e.notes.empty());
+}
+
+TEST_CASE("processing evidence: palette PNG, lossy WebP, upscaling, JPEG quality and double JPEG") {
+  const auto original = file_bytes(test::sample("astronaut.png"));
+
+  const auto palette = evidence_of(transformed(original, "palette-256"));
+  CHECK(palette.palette_file);
+  CHECK(palette.quantised);
+  CHECK(palette.distinct_colours <= 256);
+
+  const auto webp = evidence_of(transformed(original, "webp-q80"));
+  CHECK(webp.lossy_webp);
+  CHECK_FALSE(webp.quantised);
+
+  // Bicubic upscaling by 1.5: the p-map peak at 1 - 1/1.5 = 1/3 cycles/pixel (Kirchner 2008),
+  // within 1.5 bins of a 256-point spectrum.
+  const auto up = evidence_of(transformed(original, "upscale-1.5"));
+  CHECK_MESSAGE(up.resampling.detected, "strength " << up.resampling.strength << ", "
+                                                    << up.resampling.windows_agreeing << " of "
+                                                    << up.resampling.windows);
+  CHECK(std::fabs(up.resampling.frequency - 1.0 / 3.0) <= 1.5 / 256);
+  CHECK(resampling_factor_candidates(up.resampling.frequency)[0] == doctest::Approx(1.5).epsilon(0.02));
+
+  // IJG quality 75 read back from the tables; one compression is not double compression.
+  const auto once = transformed(original, "jpeg-q75");
+  const auto q75 = evidence_of(once);
+  REQUIRE(q75.jpeg_quality);
+  CHECK(*q75.jpeg_quality == 75);
+  CHECK_FALSE(q75.double_jpeg.detected);
+  // Quality 50 then 80: the second, finer quantisation leaves empty levels between multiples of
+  // q1/q2 (Popescu & Farid 2004).
+  const Image decoded = test::load(test::sample("astronaut.png"));
+  auto first = encode_image(decoded, ImageFormat::kJpeg, 50);
+  REQUIRE(first);
+  auto again = decode_image(*first);
+  REQUIRE(again);
+  auto second = encode_image(*again, ImageFormat::kJpeg, 80);
+  REQUIRE(second);
+  const auto twice = evidence_of(*second);
+  CHECK(twice.double_jpeg.detected);
+  CHECK(twice.double_jpeg.strength > 0.25);
+  CHECK(*twice.jpeg_quality == 80);
+}
+
+TEST_CASE("median cut keeps an image of four colours exact and caps the palette") {
+  Image four = Image::zeros(64, 64, 3);
+  const float colours[4][3] = {{10, 20, 30}, {200, 10, 10}, {0, 255, 0}, {90, 90, 90}};
+  for (int y = 0; y < 64; ++y) {
+    for (int x = 0; x < 64; ++x) {
+      const int k = (y / 32) * 2 + x / 32;
+      for (int c = 0; c < 3; ++c) four.plane(c)[static_cast<size_t>(y) * 64 + x] = colours[k][c];
+    }
+  }
+  const auto q = median_cut(four, 256);
+  CHECK(q.palette.size() == 4);
+  for (int y = 0; y < 64; y += 7) {
+    for (int x = 0; x < 64; x += 5) {
+      const auto& p = q.palette[q.indices[static_cast<size_t>(y) * 64 + x]];
+      const int k = (y / 32) * 2 + x / 32;
+      for (int c = 0; c < 3; ++c) CHECK(p[static_cast<size_t>(c)] == colours[k][c]);
+    }
+  }
+  const auto photo = median_cut(test::load(test::sample("astronaut.png")), 256);
+  CHECK(photo.palette.size() == 256);
+  CHECK(std::set<std::uint8_t>(photo.indices.begin(), photo.indices.end()).size() == 256);
+}
+
+TEST_CASE("apply_transform refuses an unknown name and keeps as-published byte for byte") {
+  const auto original = file_bytes(test::sample("astronaut.png"));
+  CHECK(transformed(original, "as-published") == original);
+  auto bad = apply_transform(original, "sepia");
+  REQUIRE_FALSE(bad);
+  CHECK(bad.error().code == ErrorCode::kUnsupported);
+  const auto half = transformed(original, "downscale-0.5");
+  auto header = read_header(half);
+  REQUIRE(header);
+  CHECK(header->width == 256);
+  CHECK(header->height == 256);
+}

@@ -1,0 +1,147 @@
+// The applicability check and the promised threshold: Clopper-Pearson bounds against
+// scipy.stats, the PPCA distance against numpy, the joint limits against their definition, and
+// the guards of a model on processing its training data never showed.
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <fstream>
+#include <random>
+
+#include "residue/training/applicability.hpp"
+#include "residue/training/model.hpp"
+#include "support.hpp"
+
+using namespace residue;
+
+TEST_CASE("Clopper-Pearson upper bounds equal scipy.stats.binomtest(...).proportion_ci(method='exact')") {
+  // scipy.stats.binomtest(k, n, alternative="less").proportion_ci(0.95, "exact").high and
+  // scipy.stats.beta.ppf(0.95, k + 1, n - k) (Debian python3-scipy).
+  const std::pair<size_t, size_t> cases[] = {{0, 299}, {0, 40}, {3, 412}, {1, 10}, {25, 1000}, {7, 7000}};
+  for (const auto& [k, n] : cases) {
+    const auto ref = test::numbers(
+        test::python("applicability_reference.py", {"cp", std::to_string(k), std::to_string(n), "0.95"}));
+    REQUIRE(ref.size() == 2);
+    CHECK(clopper_pearson_upper(k, n, 0.95) == doctest::Approx(ref[0]).epsilon(1e-9));
+    CHECK(clopper_pearson_upper(k, n, 0.95) == doctest::Approx(ref[1]).epsilon(1e-9));
+  }
+  // Closed form for k = 0: 1 - (1 - c)^(1/n) ("rule of three" territory: about 3/n).
+  CHECK(clopper_pearson_upper(0, 100, 0.95) == doctest::Approx(1 - std::pow(0.05, 0.01)).epsilon(1e-12));
+  CHECK(clopper_pearson_upper(5, 5, 0.95) == 1.0);
+  CHECK(clopper_pearson_upper(0, 0, 0.95) == 1.0);
+  // ceil(ln 0.05 / ln 0.99) = ceil(298.07) = 299 camera groups to promise 1 % with none flagged.
+  CHECK(trials_needed(0.01, 0.95) == 299);
+  CHECK(clopper_pearson_upper(0, 299, 0.95) <= 0.01);
+  CHECK(clopper_pearson_upper(0, 298, 0.95) > 0.01);
+}
+
+TEST_CASE("the PPCA distance equals numpy's on a worked example") {
+  // Training rows: 60 draws of a correlated 5-D Gaussian (the test's own), test rows: 4 points.
+  std::mt19937 rng(7);
+  std::normal_distribution<double> g(0.0, 1.0);
+  Matrix z{60, 6, std::vector<double>(60 * 6)};
+  for (size_t i = 0; i < z.rows; ++i) {
+    const double a = g(rng), b = g(rng);
+    double* r = z.row(i);
+    r[0] = 9.0;  // a column of another family, ignored
+    r[1] = 2 * a + 0.1 * g(rng);
+    r[2] = a - b + 0.1 * g(rng);
+    r[3] = 0.5 * b + 0.3 * g(rng);
+    r[4] = g(rng);
+    r[5] = a + b + 0.2 * g(rng);
+  }
+  const std::vector<size_t> columns = {1, 2, 3, 4, 5};
+  const FamilyReference ref = fit_family_reference("noise", columns, z, 0.95);
+  const std::vector<std::vector<double>> points = {
+      {0, 0.1, -0.2, 0.3, 0.0, 0.1}, {0, 2, 1, 0.5, -1, 1.5}, {0, -4, 3, 2, 2, -1}, {0, 0, 0, 0, 6, 0}};
+  const auto train_csv = test::scratch() / "ppca_train.csv";
+  const auto test_csv = test::scratch() / "ppca_test.csv";
+  {
+    std::ofstream t(train_csv), u(test_csv);
+    t.precision(17);
+    u.precision(17);
+    for (size_t i = 0; i < z.rows; ++i) {
+      for (size_t c = 0; c < columns.size(); ++c) t << (c ? "," : "") << z.row(i)[columns[c]];
+      t << "\n";
+    }
+    for (const auto& p : points) {
+      for (size_t c = 0; c < columns.size(); ++c) u << (c ? "," : "") << p[columns[c]];
+      u << "\n";
+    }
+  }
+  const auto expected = test::numbers(
+      test::python("applicability_reference.py", {"ppca", train_csv.string(), test_csv.string(), "0.95"}));
+  REQUIRE(expected.size() == points.size());
+  for (size_t i = 0; i < points.size(); ++i)
+    CHECK(ref.distance(points[i].data()) == doctest::Approx(expected[i]).epsilon(1e-8));
+  // A point far off the training plane is far; the mean itself is near 0.
+  CHECK(ref.distance(points[3].data()) > 2.0);
+}
+
+TEST_CASE("joint limits let the requested share of images pass every family, and no more than needed") {
+  std::mt19937 rng(3);
+  std::exponential_distribution<double> e(1.0);
+  std::vector<std::vector<double>> d(3, std::vector<double>(500));
+  for (auto& family : d) {
+    for (double& v : family) v = e(rng);
+  }
+  const auto limits = joint_limits(d, 0.99);
+  REQUIRE(limits.size() == 3);
+  auto passing = [&](const std::vector<double>& t) {
+    size_t pass = 0;
+    for (size_t i = 0; i < 500; ++i) pass += (d[0][i] <= t[0] && d[1][i] <= t[1] && d[2][i] <= t[2]) ? 1 : 0;
+    return pass;
+  };
+  CHECK(passing(limits) >= 495);  // 99 % of 500
+  CHECK(passing(limits) <= 497);  // and not far beyond: the limits are not simply the maxima
+  // One family: the 0.99 quantile, numpy.quantile's linear rule (position 0.99 x 499 = 494.01).
+  std::vector<double> one = d[0];
+  const auto single = joint_limits({one}, 0.99);
+  std::sort(one.begin(), one.end());
+  CHECK(single[0] == doctest::Approx(one[494] + 0.01 * (one[495] - one[494])).epsilon(1e-12));
+}
+
+TEST_CASE("a model abstains on processing its camera photos never showed, and says why") {
+  Applicability a;
+  FamilyReference r;
+  r.family = "noise";
+  r.columns = {0};
+  r.mean = {0.0};
+  r.basis = {1.0};
+  r.variances = {1.0};
+  r.limit = 3.0;
+  a.families.push_back(r);
+  for (int i = 0; i < 6; ++i) {
+    ProcessingEvidence jpeg;
+    jpeg.jpeg_quality = 90;
+    a.camera += jpeg;
+  }
+  ProcessingEvidence palette;
+  palette.quantised = true;
+  ProcessingEvidence webp;
+  webp.lossy_webp = true;
+  ProcessingEvidence strong_jpeg;
+  strong_jpeg.jpeg_quality = 50;
+  ProcessingEvidence usual_jpeg;
+  usual_jpeg.jpeg_quality = 88;
+  ProcessingEvidence resampled;
+  resampled.resampling.detected = true;
+  resampled.resampling.frequency = 1.0 / 3.0;
+
+  CHECK(check_domain(a, {0.5}, &usual_jpeg).reasons.empty());
+  CHECK(check_domain(a, {0.5}, &palette).reasons.at(0).starts_with("palette or few-colour image"));
+  CHECK(check_domain(a, {0.5}, &webp).reasons.at(0).starts_with("lossy WebP"));
+  CHECK(check_domain(a, {0.5}, &strong_jpeg).reasons.at(0).starts_with("JPEG quality about 50"));
+  const auto up = check_domain(a, {0.5}, &resampled);
+  REQUIRE(up.reasons.size() == 1);
+  CHECK(up.reasons[0].find("1.50") != std::string::npos);  // Kirchner: 1 / (1 - 1/3)
+  const auto far = check_domain(a, {4.0}, nullptr);
+  CHECK_FALSE(far.in_domain);
+  CHECK(far.families_out == std::vector<std::string>{"noise"});
+  CHECK(far.distance.at("noise") == doctest::Approx(4.0));
+
+  // The JSON round trip keeps everything the check uses.
+  const Applicability back = applicability_from_json(nlohmann::json(applicability_to_json(a)));
+  CHECK(back.camera.jpeg_quality.at(90) == 6);
+  CHECK(back.families.at(0).limit == 3.0);
+  CHECK(check_domain(back, {0.5}, &palette).reasons.size() == 1);
+}

@@ -1,0 +1,102 @@
+// May the model judge this image? Three pieces a model keeps beside its weights:
+//
+//  1. A reference of its training vectors per feature family: probabilistic PCA (Tipping &
+//     Bishop 1999, "Probabilistic principal component analysis") of the standardised values z of
+//     the family: mean mu, the k leading eigenvectors v_i with variances l_i (k: the fewest that
+//     explain 95 % of the variance) and the mean sigma^2 of the discarded variances. The distance
+//     of an image is the PPCA Mahalanobis distance per dimension,
+//         d = sqrt((sum_i p_i^2 / l_i + (|c|^2 - sum_i p_i^2) / sigma^2) / D),
+//     c = z - mu, p_i = v_i . c, D the family's number of values: about 1 for a typical training
+//     image. Each family's limit is set on out-of-fold distances so that 99 % of the training
+//     images pass every family at once.
+//  2. A processing profile: how many of the training images (per class) showed each kind of
+//     everyday processing (processing.hpp). Processing that fewer than `min_support` camera photos
+//     showed is processing the model never learned to tell apart from generator traces.
+//  3. Clopper-Pearson bounds (Clopper & Pearson 1934) behind the likely-generated threshold.
+//
+// Thread safety: pure functions and immutable data.
+#pragma once
+
+#include <array>
+#include <map>
+#include <nlohmann/json.hpp>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "residue/features/processing.hpp"
+#include "residue/training/linear.hpp"
+
+namespace residue {
+
+// --- processing evidence in JSON (scan records, the feature cache) ---
+nlohmann::ordered_json processing_to_json(const ProcessingEvidence& evidence);
+// Throws nlohmann::json::exception on a damaged document.
+ProcessingEvidence processing_from_json(const nlohmann::json& json);
+
+// --- Clopper-Pearson ---
+// One-sided upper confidence bound of a binomial proportion with k successes in n trials:
+// the `confidence` quantile of Beta(k + 1, n - k) (1 when k = n; 1 when n = 0).
+double clopper_pearson_upper(size_t k, size_t n, double confidence);
+// The smallest n whose bound with k = 0 is at most `target`: ceil(ln(1 - confidence) / ln(1 - target)).
+size_t trials_needed(double target, double confidence);
+
+// --- the PPCA reference of one family ---
+struct FamilyReference {
+  std::string family;
+  std::vector<size_t> columns;     // positions in the model's feature list
+  std::vector<double> mean;        // D
+  std::vector<double> basis;       // k x D, row-major, orthonormal rows
+  std::vector<double> variances;   // k
+  double residual_variance = 1.0;  // sigma^2
+  double limit = 0.0;              // distance above which the image is outside the domain
+  [[nodiscard]] double distance(const double* z_model) const;  // z over the model's features
+};
+
+// Fits mean, basis and variances on rows of standardised values (all the model's features);
+// `columns` picks the family's. The limit is left at 0.
+FamilyReference fit_family_reference(const std::string& family, const std::vector<size_t>& columns,
+                                     const Matrix& z, double explained = 0.95);
+
+// The common quantile level q at which per-family limits (the q-quantile of each family's
+// out-of-fold distances, linear interpolation as numpy.quantile) let `coverage` of the images
+// pass every family; returns the limits (one per family, in the order given).
+std::vector<double> joint_limits(const std::vector<std::vector<double>>& distances, double coverage);
+
+// --- processing profile ---
+struct ProcessingCounts {
+  size_t images = 0;
+  size_t quantised = 0;
+  size_t lossy_webp = 0;
+  size_t screenshot_like = 0;
+  size_t double_jpeg = 0;
+  std::map<int, size_t> jpeg_quality;    // quality -> images
+  std::map<int, size_t> resampling_bin;  // round(256 f) of detected traces -> images
+};
+ProcessingCounts& operator+=(ProcessingCounts& counts, const ProcessingEvidence& evidence);
+
+struct Applicability {
+  std::vector<FamilyReference> families;
+  double coverage = 0.99;  // share of training images inside every limit, out of fold
+  ProcessingCounts camera;
+  ProcessingCounts generated;
+  size_t min_support = 5;  // camera photos that must have shown a kind of processing
+};
+
+struct DomainCheck {
+  bool in_domain = true;
+  std::map<std::string, double> distance;  // per family
+  std::map<std::string, double> limit;
+  std::vector<std::string> families_out;
+  std::vector<std::string> reasons;  // plain sentences; empty when the model may judge the image
+};
+
+// `z`: the image's standardised values over the model's features.
+DomainCheck check_domain(const Applicability& applicability, const std::vector<double>& z,
+                         const ProcessingEvidence* processing);
+
+nlohmann::ordered_json applicability_to_json(const Applicability& applicability);
+// Throws nlohmann::json::exception on a damaged document.
+Applicability applicability_from_json(const nlohmann::json& json);
+
+}  // namespace residue

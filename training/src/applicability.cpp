@@ -1,0 +1,321 @@
+#include "residue/training/applicability.hpp"
+
+#include <Eigen/Dense>
+#include <algorithm>
+#include <boost/math/special_functions/beta.hpp>
+#include <cmath>
+#include <cstdio>
+
+namespace residue {
+
+namespace {
+
+std::string fixed(double v, int digits) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, "%.*f", digits, v);
+  return buf;
+}
+
+// Linear-interpolation quantile of sorted values (numpy.quantile's default, "linear").
+double quantile_sorted(const std::vector<double>& sorted, double q) {
+  if (sorted.empty()) return 0.0;
+  const double pos = q * static_cast<double>(sorted.size() - 1);
+  const auto lo = static_cast<size_t>(std::floor(pos));
+  const size_t hi = std::min(lo + 1, sorted.size() - 1);
+  return sorted[lo] + (pos - static_cast<double>(lo)) * (sorted[hi] - sorted[lo]);
+}
+
+size_t support_at_or_below(const std::map<int, size_t>& histogram, int value) {
+  size_t n = 0;
+  for (const auto& [v, count] : histogram) n += v <= value ? count : 0;
+  return n;
+}
+
+size_t support_near(const std::map<int, size_t>& histogram, int bin, int radius) {
+  size_t n = 0;
+  for (const auto& [b, count] : histogram) n += std::abs(b - bin) <= radius ? count : 0;
+  return n;
+}
+
+nlohmann::ordered_json counts_to_json(const ProcessingCounts& c) {
+  nlohmann::ordered_json quality = nlohmann::ordered_json::object();
+  for (const auto& [q, n] : c.jpeg_quality) quality[std::to_string(q)] = n;
+  nlohmann::ordered_json resampling = nlohmann::ordered_json::object();
+  for (const auto& [b, n] : c.resampling_bin) resampling[std::to_string(b)] = n;
+  return {{"images", c.images},
+          {"quantised", c.quantised},
+          {"lossy_webp", c.lossy_webp},
+          {"screenshot_like", c.screenshot_like},
+          {"double_jpeg", c.double_jpeg},
+          {"jpeg_quality", quality},
+          {"resampling_bin_256", resampling}};
+}
+
+ProcessingCounts counts_from_json(const nlohmann::json& j) {
+  ProcessingCounts c;
+  c.images = j.at("images");
+  c.quantised = j.at("quantised");
+  c.lossy_webp = j.at("lossy_webp");
+  c.screenshot_like = j.at("screenshot_like");
+  c.double_jpeg = j.at("double_jpeg");
+  for (const auto& [q, n] : j.at("jpeg_quality").items()) c.jpeg_quality[std::stoi(q)] = n.get<size_t>();
+  for (const auto& [b, n] : j.at("resampling_bin_256").items())
+    c.resampling_bin[std::stoi(b)] = n.get<size_t>();
+  return c;
+}
+
+}  // namespace
+
+nlohmann::ordered_json processing_to_json(const ProcessingEvidence& e) {
+  return {
+      {"quantised", e.quantised},
+      {"palette_file", e.palette_file},
+      {"distinct_colours", e.distinct_colours},
+      {"histogram_gaps", e.histogram_gaps},
+      {"resampled", e.resampling.detected},
+      {"resampling",
+       {{"frequency", e.resampling.frequency},
+        {"strength", e.resampling.strength},
+        {"windows_agreeing", e.resampling.windows_agreeing},
+        {"windows", e.resampling.windows},
+        {"factor_candidates", e.resampling.detected ? resampling_factor_candidates(e.resampling.frequency)
+                                                    : std::vector<double>{}}}},
+      {"jpeg_quality", e.jpeg_quality ? nlohmann::ordered_json(*e.jpeg_quality) : nlohmann::ordered_json()},
+      {"double_jpeg", e.double_jpeg.detected},
+      {"double_jpeg_strength", e.double_jpeg.strength},
+      {"lossy_webp", e.lossy_webp},
+      {"flat_share", e.flat_share},
+      {"screenshot_like", e.screenshot_like},
+      {"notes", e.notes}};
+}
+
+ProcessingEvidence processing_from_json(const nlohmann::json& j) {
+  ProcessingEvidence e;
+  e.quantised = j.at("quantised");
+  e.palette_file = j.at("palette_file");
+  e.distinct_colours = j.at("distinct_colours");
+  e.histogram_gaps = j.at("histogram_gaps");
+  e.resampling.detected = j.at("resampled");
+  const auto& r = j.at("resampling");
+  e.resampling.frequency = r.at("frequency");
+  e.resampling.strength = r.at("strength");
+  e.resampling.windows_agreeing = r.at("windows_agreeing");
+  e.resampling.windows = r.at("windows");
+  if (!j.at("jpeg_quality").is_null()) e.jpeg_quality = j.at("jpeg_quality").get<int>();
+  e.double_jpeg.detected = j.at("double_jpeg");
+  e.double_jpeg.strength = j.at("double_jpeg_strength");
+  e.lossy_webp = j.at("lossy_webp");
+  e.flat_share = j.at("flat_share");
+  e.screenshot_like = j.at("screenshot_like");
+  e.notes = j.at("notes").get<std::vector<std::string>>();
+  return e;
+}
+
+double clopper_pearson_upper(size_t k, size_t n, double confidence) {
+  if (n == 0 || k >= n) return 1.0;
+  return boost::math::ibeta_inv(static_cast<double>(k + 1), static_cast<double>(n - k), confidence);
+}
+
+size_t trials_needed(double target, double confidence) {
+  return static_cast<size_t>(std::ceil(std::log(1.0 - confidence) / std::log(1.0 - target) - 1e-9));
+}
+
+double FamilyReference::distance(const double* z) const {
+  const size_t d = columns.size();
+  std::vector<double> c(d);
+  double norm = 0.0;
+  for (size_t j = 0; j < d; ++j) {
+    c[j] = z[columns[j]] - mean[j];
+    norm += c[j] * c[j];
+  }
+  double explained = 0.0, whitened = 0.0;
+  for (size_t i = 0; i < variances.size(); ++i) {
+    double p = 0.0;
+    for (size_t j = 0; j < d; ++j) p += basis[i * d + j] * c[j];
+    explained += p * p;
+    whitened += p * p / variances[i];
+  }
+  const double residual = std::max(0.0, norm - explained);
+  return std::sqrt((whitened + residual / residual_variance) / static_cast<double>(d));
+}
+
+FamilyReference fit_family_reference(const std::string& family, const std::vector<size_t>& columns,
+                                     const Matrix& z, double explained) {
+  FamilyReference r;
+  r.family = family;
+  r.columns = columns;
+  const auto d = static_cast<Eigen::Index>(columns.size());
+  const auto n = static_cast<Eigen::Index>(z.rows);
+  Eigen::MatrixXd x(n, d);
+  for (Eigen::Index i = 0; i < n; ++i) {
+    for (Eigen::Index j = 0; j < d; ++j)
+      x(i, j) = z.row(static_cast<size_t>(i))[columns[static_cast<size_t>(j)]];
+  }
+  const Eigen::RowVectorXd mu = x.colwise().mean();
+  x.rowwise() -= mu;
+  const Eigen::MatrixXd covariance = (x.transpose() * x) / std::max<double>(1.0, static_cast<double>(n - 1));
+  const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> eig(covariance);
+  // Eigen sorts ascending; we want descending.
+  std::vector<double> values(eig.eigenvalues().data(), eig.eigenvalues().data() + d);
+  std::reverse(values.begin(), values.end());
+  for (double& v : values) v = std::max(v, 0.0);
+  double total = 0.0;
+  for (double v : values) total += v;
+  const double floor = std::max(1e-3 * total / static_cast<double>(std::max<Eigen::Index>(d, 1)), 1e-12);
+  size_t k = 0;
+  double cumulative = 0.0;
+  const size_t k_max = static_cast<size_t>(std::max<Eigen::Index>(1, std::min(d - 1, n - 2)));
+  while (k < k_max && cumulative < explained * total) cumulative += values[k++];
+  k = std::max<size_t>(k, 1);
+  r.mean.assign(mu.data(), mu.data() + d);
+  for (size_t i = 0; i < k; ++i) {
+    r.variances.push_back(std::max(values[i], floor));
+    const auto col = eig.eigenvectors().col(d - 1 - static_cast<Eigen::Index>(i));
+    for (Eigen::Index j = 0; j < d; ++j) r.basis.push_back(col(j));
+  }
+  double rest = 0.0;
+  for (size_t i = k; i < values.size(); ++i) rest += values[i];
+  r.residual_variance =
+      values.size() > k ? std::max(rest / static_cast<double>(values.size() - k), floor) : floor;
+  return r;
+}
+
+std::vector<double> joint_limits(const std::vector<std::vector<double>>& distances, double coverage) {
+  std::vector<std::vector<double>> sorted = distances;
+  for (auto& s : sorted) std::sort(s.begin(), s.end());
+  const size_t n = distances.empty() ? 0 : distances.front().size();
+  auto limits_at = [&](double q) {
+    std::vector<double> t;
+    t.reserve(sorted.size());
+    for (const auto& s : sorted) t.push_back(quantile_sorted(s, q));
+    return t;
+  };
+  auto pass_share = [&](const std::vector<double>& t) {
+    size_t pass = 0;
+    for (size_t i = 0; i < n; ++i) {
+      bool ok = true;
+      for (size_t f = 0; f < distances.size() && ok; ++f) ok = distances[f][i] <= t[f];
+      pass += ok ? 1 : 0;
+    }
+    return n > 0 ? static_cast<double>(pass) / static_cast<double>(n) : 1.0;
+  };
+  double lo = coverage, hi = 1.0;
+  if (pass_share(limits_at(lo)) >= coverage) return limits_at(lo);
+  for (int it = 0; it < 50; ++it) {
+    const double mid = 0.5 * (lo + hi);
+    (pass_share(limits_at(mid)) >= coverage ? hi : lo) = mid;
+  }
+  return limits_at(hi);
+}
+
+ProcessingCounts& operator+=(ProcessingCounts& c, const ProcessingEvidence& e) {
+  c.images += 1;
+  c.quantised += e.quantised ? 1 : 0;
+  c.lossy_webp += e.lossy_webp ? 1 : 0;
+  c.screenshot_like += e.screenshot_like ? 1 : 0;
+  c.double_jpeg += e.double_jpeg.detected ? 1 : 0;
+  if (e.jpeg_quality) c.jpeg_quality[*e.jpeg_quality] += 1;
+  if (e.resampling.detected)
+    c.resampling_bin[static_cast<int>(std::lround(256 * e.resampling.frequency))] += 1;
+  return c;
+}
+
+DomainCheck check_domain(const Applicability& a, const std::vector<double>& z, const ProcessingEvidence* p) {
+  DomainCheck out;
+  for (const auto& f : a.families) {
+    const double d = f.distance(z.data());
+    out.distance[f.family] = d;
+    out.limit[f.family] = f.limit;
+    if (!(d <= f.limit)) out.families_out.push_back(f.family);
+  }
+  out.in_domain = out.families_out.empty();
+  if (!out.in_domain) {
+    std::string names;
+    for (const auto& f : out.families_out) {
+      names += (names.empty() ? "" : ", ") + f + " " + fixed(out.distance[f], 2) + " (limit " +
+               fixed(out.limit[f], 2) + ")";
+    }
+    out.reasons.push_back("unlike the training images: its " + names +
+                          " traces lie outside what 99 % of them showed");
+  }
+  if (p == nullptr) return out;
+  const size_t need = a.min_support;
+  const auto& cam = a.camera;
+  auto seen = [&](size_t k) {
+    return " (the training data held " + std::to_string(k) + " such camera photos; " + std::to_string(need) +
+           " are needed to judge it)";
+  };
+  if (p->quantised && cam.quantised < need) {
+    out.reasons.push_back("palette or few-colour image" + seen(cam.quantised));
+  }
+  if (p->lossy_webp && cam.lossy_webp < need) out.reasons.push_back("lossy WebP" + seen(cam.lossy_webp));
+  if (p->jpeg_quality) {
+    const size_t k = support_at_or_below(cam.jpeg_quality, *p->jpeg_quality + 5);
+    if (k < need) {
+      out.reasons.push_back("JPEG quality about " + std::to_string(*p->jpeg_quality) +
+                            ", stronger compression than the training's camera photos showed" + seen(k));
+    }
+  }
+  if (p->resampling.detected) {
+    const int bin = static_cast<int>(std::lround(256 * p->resampling.frequency));
+    const size_t k = support_near(cam.resampling_bin, bin, 2);
+    if (k < need) {
+      const auto f = resampling_factor_candidates(p->resampling.frequency);
+      out.reasons.push_back("resampled (scaled by about " + fixed(f[0], 2) + ", " + fixed(f[2], 2) + " or " +
+                            fixed(f[1], 2) + ") in a way the training's camera photos were not" + seen(k));
+    }
+  }
+  if (p->screenshot_like && cam.screenshot_like < need) {
+    out.reasons.push_back("screenshot or graphics-like flat colour areas" + seen(cam.screenshot_like));
+  }
+  return out;
+}
+
+nlohmann::ordered_json applicability_to_json(const Applicability& a) {
+  nlohmann::ordered_json families = nlohmann::ordered_json::array();
+  for (const auto& f : a.families) {
+    families.push_back({{"family", f.family},
+                        {"columns", f.columns},
+                        {"mean", f.mean},
+                        {"basis", f.basis},
+                        {"variances", f.variances},
+                        {"residual_variance", f.residual_variance},
+                        {"limit", f.limit}});
+  }
+  return {{"method", "ppca-tipping-bishop-1999"},
+          {"coverage", a.coverage},
+          {"families", families},
+          {"min_support", a.min_support},
+          {"processing", {{"camera", counts_to_json(a.camera)}, {"generated", counts_to_json(a.generated)}}}};
+}
+
+Applicability applicability_from_json(const nlohmann::json& j) {
+  Applicability a;
+  a.coverage = j.at("coverage");
+  a.min_support = j.at("min_support");
+  for (const auto& f : j.at("families")) {
+    FamilyReference r;
+    r.family = f.at("family");
+    r.columns = f.at("columns").get<std::vector<size_t>>();
+    r.mean = f.at("mean").get<std::vector<double>>();
+    r.basis = f.at("basis").get<std::vector<double>>();
+    r.variances = f.at("variances").get<std::vector<double>>();
+    r.residual_variance = f.at("residual_variance");
+    r.limit = f.at("limit");
+    const size_t d = r.columns.size();
+    if (r.mean.size() != d || r.basis.size() != r.variances.size() * d || r.variances.empty() ||
+        !(r.residual_variance > 0)) {
+      throw nlohmann::json::other_error::create(
+          501, "applicability reference of " + r.family + " is inconsistent", nullptr);
+    }
+    for (double v : r.variances) {
+      if (!(v > 0)) throw nlohmann::json::other_error::create(501, "non-positive variance", nullptr);
+    }
+    a.families.push_back(std::move(r));
+  }
+  a.camera = counts_from_json(j.at("processing").at("camera"));
+  a.generated = counts_from_json(j.at("processing").at("generated"));
+  return a;
+}
+
+}  // namespace residue
