@@ -1,4 +1,5 @@
 // `residue evaluate MODEL ROOT`: metrics of a model on labelled folders it did not see.
+#include <algorithm>
 #include <iostream>
 #include <memory>
 #include <optional>
@@ -36,6 +37,15 @@ std::vector<std::string> chosen_transforms(const EvaluateArgs& args) {
 }
 
 int run_evaluate(const EvaluateArgs& args) {
+  for (const auto& name : args.transforms) {
+    const auto& all = everyday_transforms();
+    if (std::none_of(all.begin(), all.end(), [&](const TransformInfo& t) { return t.name == name; })) {
+      std::cerr << "residue evaluate: unknown transform '" << name << "'; known:";
+      for (const auto& t : all) std::cerr << " " << t.name;
+      std::cerr << "\n";
+      return static_cast<int>(ExitCode::kUsage);
+    }
+  }
   auto model = load_model(args.model_path);
   if (!model) {
     std::cerr << "residue evaluate: " << model.error().message << "\n";

@@ -72,6 +72,22 @@ Result<Explanation> explain_image(const std::string& image, const Model& model, 
                 record["p_generated"].get<double>(), record["band"].get<std::string>().c_str(),
                 record["margin"].get<double>(), model.id.c_str());
   text += line;
+  if (record.contains("reasons") && !record["reasons"].empty()) {
+    text += "Why inconclusive:\n";
+    for (const auto& reason : record["reasons"]) text += "  - " + reason.get<std::string>() + "\n";
+  }
+  if (record.contains("processing")) {
+    text += "Processing found (reported, never learned):";
+    const auto& notes = record["processing"]["notes"];
+    if (notes.empty()) text += " none";
+    text += "\n";
+    for (const auto& note : notes) text += "  - " + note.get<std::string>() + "\n";
+  }
+  if (record.contains("in_domain")) {
+    text += record["in_domain"].is_null()
+                ? "Inside the training domain: unknown (the model has no applicability reference)\n"
+                : std::string("Inside the training domain: ") + (record["in_domain"].get<bool>() ? "yes" : "no") + "\n";
+  }
   text += "Strongest evidence (weight x standardised value):\n";
   for (size_t i = 0; i < std::min<size_t>(8, evidence.size()); ++i) {
     std::snprintf(line, sizeof line, "  %+7.3f  %s\n", evidence[i].first, evidence[i].second.c_str());

@@ -97,6 +97,53 @@ std::string folder_of(const std::string& path) {
 
 }  // namespace
 
+namespace {
+
+// The reason kind: a record's reason up to its first parenthesis or colon.
+std::string reason_kind(const std::string& reason) {
+  const size_t cut = std::min(reason.find(" ("), reason.find(':'));
+  return reason.substr(0, cut);
+}
+
+// Why records are inconclusive: counts per reason kind and the first records with their reasons
+// and processing notes, so a reviewer sees what the tool could not judge and why.
+std::string why_inconclusive(const std::vector<nlohmann::json>& records) {
+  std::map<std::string, size_t> kinds;
+  std::vector<const nlohmann::json*> shown;
+  for (const auto& r : records) {
+    if (r.contains("error") || r.value("band", "") != "inconclusive") continue;
+    if (shown.size() < 50) shown.push_back(&r);
+    for (const auto& reason : r.value("reasons", nlohmann::json::array())) {
+      ++kinds[reason_kind(reason.get<std::string>())];
+    }
+  }
+  std::string h = "<h2>Why inconclusive</h2>";
+  if (shown.empty()) return h + "<p>No record is inconclusive.</p>";
+  h += "<p>The tool abstains rather than guess when an image lies outside what its training data showed, when "
+       "it carries processing the training photos never showed, or when its score falls between the two "
+       "thresholds. The probability is still given, but it is not a judgement.</p><table><tr><th>reason</th>"
+       "<th>records</th></tr>";
+  for (const auto& [kind, n] : kinds) {
+    h += "<tr><td>" + html_escape(kind) + "</td><td class='n'>" + std::to_string(n) + "</td></tr>";
+  }
+  h += "</table><table><tr><th>file</th><th>P(generated)</th><th>reasons</th><th>processing found</th></tr>";
+  for (const auto* r : shown) {
+    std::string reasons, notes;
+    for (const auto& x : r->value("reasons", nlohmann::json::array())) reasons += html_escape(x.get<std::string>()) + "<br>";
+    if (r->contains("processing") && (*r)["processing"].is_object()) {
+      for (const auto& x : (*r)["processing"].value("notes", nlohmann::json::array())) {
+        notes += html_escape(x.get<std::string>()) + "<br>";
+      }
+    }
+    h += "<tr><td><code>" + html_escape((*r)["path"].get<std::string>()) + "</code></td><td class='n'>" +
+         fmt("%.3f", r->value("p_generated", 0.0)) + "</td><td>" + (reasons.empty() ? "–" : reasons) + "</td><td>" +
+         (notes.empty() ? "–" : notes) + "</td></tr>";
+  }
+  return h + "</table>";
+}
+
+}  // namespace
+
 std::string report_page(const ReportInput& in) {
   std::map<std::string, size_t> band_counts;
   std::map<std::string, std::vector<std::string>> errors;  // code -> paths
@@ -166,6 +213,7 @@ std::string report_page(const ReportInput& in) {
        "not a finding. Inconclusive is a normal outcome.</p>";
   h += "<h2>Score distribution</h2>" + histogram_svg(in.records);
 
+  h += why_inconclusive(in.records);
   h += "<h2>Highest scores</h2><table><tr><th>#</th><th>file</th><th>P(generated)</th><th>band</th>"
        "<th>declared</th><th>picture</th><th>residual spectrum (red marks: N/8 grid)</th></tr>";
   for (size_t i = 0; i < ranked.size() && static_cast<int>(i) < in.top; ++i) {
@@ -225,7 +273,8 @@ std::string report_page(const ReportInput& in) {
   if (in.model) {
     const auto& p = in.model->provenance;
     h += "<p>Model <code>" + html_escape(in.model->id) + "</code>, trained " + html_escape(in.model->created) +
-         ".</p><pre>" + html_escape(p.value("counts", nlohmann::ordered_json::object()).dump(2)) + "</pre>";
+         ". Likely-generated threshold " + fmt("%.3f", in.model->thresholds.likely_generated) + ": " +
+         html_escape(promise_text(in.model->thresholds)) + ".</p><pre>" + html_escape(p.value("counts", nlohmann::ordered_json::object()).dump(2)) + "</pre>";
     const auto warnings = p.value("audit_warnings", nlohmann::ordered_json::array());
     h += "<p>Training-data warnings: " + std::string(warnings.empty() ? "none." : "") + "</p><ul>";
     for (const auto& w : warnings) h += "<li>" + html_escape(w.get<std::string>()) + "</li>";

@@ -33,8 +33,12 @@ void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
   std::vector<std::uint64_t> seen((1U << 24) / 64, 0);
   std::array<std::array<std::uint64_t, 256>, 3> histogram{};
   std::uint64_t flat = 0, blocks = 0;
+  bool channels_equal = true;  // a grey picture stored as RGB
   for (const auto& t : tiles) {
     const size_t plane = static_cast<size_t>(t.size) * t.size;
+    for (size_t i = 0; i < plane && channels_equal && t.channels == 3; ++i) {
+      channels_equal = level(t.plane(0)[i]) == level(t.plane(1)[i]) && level(t.plane(1)[i]) == level(t.plane(2)[i]);
+    }
     for (size_t i = 0; i < plane; ++i) {
       std::uint32_t colour = 0;
       for (int c = 0; c < t.channels; ++c) {
@@ -64,6 +68,7 @@ void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
       }
     }
   }
+  e.grey_in_colour = channels_equal && !tiles.empty() && tiles.front().channels == 3;
   for (auto word : seen) e.distinct_colours += static_cast<std::uint32_t>(std::popcount(word));
   e.flat_share = blocks > 0 ? static_cast<double>(flat) / static_cast<double>(blocks) : 0.0;
   const int channels = tiles.empty() ? 0 : tiles.front().channels;
@@ -259,7 +264,7 @@ ProcessingEvidence assess_processing(const DecodedWindows& decoded,
   assess_colours(decoded.tiles, e);
   // A grey image has at most 256 levels anyway: there only a palette file or a combed histogram
   // tells quantisation.
-  const bool colour = !decoded.tiles.empty() && decoded.tiles.front().channels == 3;
+  const bool colour = !decoded.tiles.empty() && decoded.tiles.front().channels == 3 && !e.grey_in_colour;
   e.quantised = e.palette_file || (colour ? e.distinct_colours <= kPaletteColours && e.analysed_pixels >= 4096
                                           : e.histogram_gaps >= kCombedGaps);
   if (e.quantised) {

@@ -37,6 +37,7 @@ struct ProcessingEvidence {
   bool palette_file = false;           // the container stores colour indices (PNG type 3, BMP <= 8 bit)
   std::uint32_t distinct_colours = 0;  // in the analysed windows
   std::uint64_t analysed_pixels = 0;
+  bool grey_in_colour = false;  // three equal channels: judged as grey (at most 256 levels anyway)
   double histogram_gaps = 0.0;  // largest share, over channels, of empty levels inside the 1-99 % range
   bool quantised = false;       // palette file, <= 256 colours, or a combed histogram
   ResamplingTrace resampling;
