@@ -39,6 +39,8 @@ parser.add_argument("--dev", default="../shared/data/dev")
 parser.add_argument("--work", default="/tmp/residue-processing")
 parser.add_argument("--jobs", default="2")
 parser.add_argument("--folds", type=int, default=3)
+parser.add_argument("--fold", type=int, default=None,
+                    help="evaluate this fold only (a grouped held-back split of about 1/FOLDS)")
 args = parser.parse_args()
 dev = os.path.abspath(args.dev)
 work = os.path.abspath(args.work)
@@ -118,7 +120,7 @@ def auc(pos, neg):
 def evaluate(binary, tag):
     records = {name: [] for name in TRANSFORMS}
     promises = []
-    for f in range(args.folds):
+    for f in ([args.fold] if args.fold is not None else range(args.folds)):
         train = [it for it in items if fold_of(it[3]) != f]
         test = [it for it in items if fold_of(it[3]) == f]
         manifest = os.path.join(work, f"{tag}-train-{f}.csv")
@@ -128,22 +130,25 @@ def evaluate(binary, tag):
             for p, label, gen, group, _ in train:
                 w.writerow([p, label, gen, group])
         model = os.path.join(work, f"{tag}-model-{f}.json")
-        run([binary, "train", manifest, "-o", model, "--group-by", "manifest", "--jobs", args.jobs,
-             "--cache", os.path.join(work, f"{tag}-cache.sqlite")])
+        if not os.path.exists(model):  # a finished fold is reused when the script runs again
+            run([binary, "train", manifest, "-o", model, "--group-by", "manifest", "--jobs", args.jobs,
+                 "--cache", os.path.join(work, f"{tag}-cache.sqlite")])
         with open(model) as fh:
             promises.append(json.load(fh)["thresholds"])
         for name in TRANSFORMS:
             paths = [processed(p, name) for p, *_ in test]
             truth = {pp: it for pp, it in zip(paths, test)}
             out = os.path.join(work, f"{tag}-scan-{f}-{name}.jsonl")
-            listing = os.path.join(work, "paths.txt")
-            with open(listing, "w") as fh:
-                fh.write("\n".join(paths) + "\n")
-            with open(listing) as stdin:
-                r = subprocess.run([binary, "scan", model, "-", "-o", out, "--jobs", args.jobs], stdin=stdin,
-                                   capture_output=True, text=True)
-            if r.returncode not in (0, 3):
-                sys.exit(f"scan failed: {r.stderr[-2000:]}")
+            if not os.path.exists(out):
+                listing = os.path.join(work, "paths.txt")
+                with open(listing, "w") as fh:
+                    fh.write("\n".join(paths) + "\n")
+                with open(listing) as stdin:
+                    r = subprocess.run([binary, "scan", model, "-", "-o", out + ".part", "--jobs", args.jobs],
+                                       stdin=stdin, capture_output=True, text=True)
+                if r.returncode not in (0, 3):
+                    sys.exit(f"scan failed: {r.stderr[-2000:]}")
+                os.replace(out + ".part", out)
             with open(out) as fh:
                 for line in fh:
                     rec = json.loads(line)
@@ -190,7 +195,8 @@ def print_table(title, rows):
     print()
 
 
-print(f"{len(items)} images ({sum(1 for i in items if i[1] == 'camera')} camera), {args.folds} grouped folds\n")
+print(f"{len(items)} images ({sum(1 for i in items if i[1] == 'camera')} camera), {args.folds} grouped folds"
+      + (f", fold {args.fold} held back" if args.fold is not None else "") + "\n")
 builds = [("new", args.residue)] + ([("old", args.old)] if args.old else [])
 for tag, binary in builds:
     records, promises = evaluate(binary, tag)
