@@ -86,7 +86,8 @@ Result<Explanation> explain_image(const std::string& image, const Model& model, 
   if (record.contains("in_domain")) {
     text += record["in_domain"].is_null()
                 ? "Inside the training domain: unknown (the model has no applicability reference)\n"
-                : std::string("Inside the training domain: ") + (record["in_domain"].get<bool>() ? "yes" : "no") + "\n";
+                : std::string("Inside the training domain: ") +
+                      (record["in_domain"].get<bool>() ? "yes" : "no") + "\n";
   }
   text += "Strongest evidence (weight x standardised value):\n";
   for (size_t i = 0; i < std::min<size_t>(8, evidence.size()); ++i) {

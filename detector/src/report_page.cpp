@@ -37,8 +37,9 @@ std::string histogram_svg(const std::vector<nlohmann::json>& records) {
     ++band_of_bin[b][r["band"].get<std::string>()];
   }
   const int peak = std::max(1, *std::max_element(counts, counts + 20));
-  std::string s = "<svg xmlns='http://www.w3.org/2000/svg' width='640' height='240' font-family='sans-serif' "
-                  "font-size='11' role='img' aria-label='Score histogram'>";
+  std::string s =
+      "<svg xmlns='http://www.w3.org/2000/svg' width='640' height='240' font-family='sans-serif' "
+      "font-size='11' role='img' aria-label='Score histogram'>";
   for (int b = 0; b < 20; ++b) {
     const double h = 180.0 * counts[b] / peak;
     std::string colour = "#999";
@@ -50,18 +51,19 @@ std::string histogram_svg(const std::vector<nlohmann::json>& records) {
         colour = kBandColour[k];
       }
     }
-    s += "<rect x='" + std::to_string(40 + b * 29) + "' y='" + fmt("%.1f", 200 - h) + "' width='27' height='" +
-         fmt("%.1f", h) + "' fill='" + colour + "'><title>" + std::to_string(counts[b]) + " files with P in [" +
-         fmt("%.2f", b / 20.0) + ", " + fmt("%.2f", (b + 1) / 20.0) + ")</title></rect>";
+    s += "<rect x='" + std::to_string(40 + b * 29) + "' y='" + fmt("%.1f", 200 - h) +
+         "' width='27' height='" + fmt("%.1f", h) + "' fill='" + colour + "'><title>" +
+         std::to_string(counts[b]) + " files with P in [" + fmt("%.2f", b / 20.0) + ", " +
+         fmt("%.2f", (b + 1) / 20.0) + ")</title></rect>";
     if (counts[b] > 0) {
-      s += "<text x='" + std::to_string(53 + b * 29) + "' y='" + fmt("%.1f", 196 - h) + "' text-anchor='middle'>" +
-           std::to_string(counts[b]) + "</text>";
+      s += "<text x='" + std::to_string(53 + b * 29) + "' y='" + fmt("%.1f", 196 - h) +
+           "' text-anchor='middle'>" + std::to_string(counts[b]) + "</text>";
     }
   }
   s += "<line x1='38' y1='200' x2='622' y2='200' stroke='#444'/>";
   for (int k = 0; k <= 4; ++k) {
-    s += "<text x='" + std::to_string(40 + k * 145) + "' y='215' text-anchor='middle'>" + fmt("%.2f", k / 4.0) +
-         "</text>";
+    s += "<text x='" + std::to_string(40 + k * 145) + "' y='215' text-anchor='middle'>" +
+         fmt("%.2f", k / 4.0) + "</text>";
   }
   return s + "<text x='330' y='234' text-anchor='middle'>P(generated)</text></svg>";
 }
@@ -119,25 +121,27 @@ std::string why_inconclusive(const std::vector<nlohmann::json>& records) {
   }
   std::string h = "<h2>Why inconclusive</h2>";
   if (shown.empty()) return h + "<p>No record is inconclusive.</p>";
-  h += "<p>The tool abstains rather than guess when an image lies outside what its training data showed, when "
-       "it carries processing the training photos never showed, or when its score falls between the two "
-       "thresholds. The probability is still given, but it is not a judgement.</p><table><tr><th>reason</th>"
-       "<th>records</th></tr>";
+  h +=
+      "<p>The tool abstains rather than guess when an image lies outside what its training data showed, when "
+      "it carries processing the training photos never showed, or when its score falls between the two "
+      "thresholds. The probability is still given, but it is not a judgement.</p><table><tr><th>reason</th>"
+      "<th>records</th></tr>";
   for (const auto& [kind, n] : kinds) {
     h += "<tr><td>" + html_escape(kind) + "</td><td class='n'>" + std::to_string(n) + "</td></tr>";
   }
   h += "</table><table><tr><th>file</th><th>P(generated)</th><th>reasons</th><th>processing found</th></tr>";
   for (const auto* r : shown) {
     std::string reasons, notes;
-    for (const auto& x : r->value("reasons", nlohmann::json::array())) reasons += html_escape(x.get<std::string>()) + "<br>";
+    for (const auto& x : r->value("reasons", nlohmann::json::array()))
+      reasons += html_escape(x.get<std::string>()) + "<br>";
     if (r->contains("processing") && (*r)["processing"].is_object()) {
       for (const auto& x : (*r)["processing"].value("notes", nlohmann::json::array())) {
         notes += html_escape(x.get<std::string>()) + "<br>";
       }
     }
     h += "<tr><td><code>" + html_escape((*r)["path"].get<std::string>()) + "</code></td><td class='n'>" +
-         fmt("%.3f", r->value("p_generated", 0.0)) + "</td><td>" + (reasons.empty() ? "–" : reasons) + "</td><td>" +
-         (notes.empty() ? "–" : notes) + "</td></tr>";
+         fmt("%.3f", r->value("p_generated", 0.0)) + "</td><td>" + (reasons.empty() ? "–" : reasons) +
+         "</td><td>" + (notes.empty() ? "–" : notes) + "</td></tr>";
   }
   return h + "</table>";
 }
@@ -162,7 +166,8 @@ std::string report_page(const ReportInput& in) {
     if (r.contains("model") && r["model"].is_string()) ++models[r["model"].get<std::string>()];
     if (!scored(r)) {
       ++f.errors;
-      const std::string code = r.contains("error") ? r["error"].value("code", std::string("unknown")) : "unknown";
+      const std::string code =
+          r.contains("error") ? r["error"].value("code", std::string("unknown")) : "unknown";
       errors[code].push_back(r.value("path", std::string("?")));
       continue;
     }
@@ -177,7 +182,8 @@ std::string report_page(const ReportInput& in) {
       const bool says_camera = d.value("digital_source_type", nlohmann::json()).is_string()
                                    ? d["digital_source_type"] == "digitalCapture"
                                    : d["camera_make"].is_string();
-      if ((says_generated && band == "likely-camera") || (says_camera && !says_generated && band == "likely-generated")) {
+      if ((says_generated && band == "likely-camera") ||
+          (says_camera && !says_generated && band == "likely-generated")) {
         disagreements.push_back(&r);
       }
     }
@@ -186,21 +192,24 @@ std::string report_page(const ReportInput& in) {
     return (*a)["p_generated"].get<double>() > (*b)["p_generated"].get<double>();
   });
 
-  std::string h = "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>residue report</title><style>"
-                  "body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222;padding:0 1em}"
-                  ".advisory{border-left:5px solid #c0392b;background:#fbeeee;padding:.6em 1em}"
-                  "table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:.3em .6em;"
-                  "vertical-align:middle}th{background:#f4f4f4;text-align:left}td.n{text-align:right}"
-                  ".cards{display:flex;gap:1em;flex-wrap:wrap}.card{border-radius:6px;padding:.8em 1.2em;color:#fff;"
-                  "min-width:11em}.card b{font-size:2em;display:block}code{font-size:.9em;word-break:break-all}"
-                  "@media print{img{max-width:120px}}</style></head><body><h1>residue report</h1>";
+  std::string h =
+      "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>residue report</title><style>"
+      "body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222;padding:0 1em}"
+      ".advisory{border-left:5px solid #c0392b;background:#fbeeee;padding:.6em 1em}"
+      "table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:.3em .6em;"
+      "vertical-align:middle}th{background:#f4f4f4;text-align:left}td.n{text-align:right}"
+      ".cards{display:flex;gap:1em;flex-wrap:wrap}.card{border-radius:6px;padding:.8em 1.2em;color:#fff;"
+      "min-width:11em}.card b{font-size:2em;display:block}code{font-size:.9em;word-break:break-all}"
+      "@media print{img{max-width:120px}}</style></head><body><h1>residue report</h1>";
   h += "<p class='advisory'>" + html_escape(kAdvisoryNotice) + "</p>";
   h += "<p>" + std::to_string(in.records.size()) + " records from ";
-  for (size_t i = 0; i < in.sources.size(); ++i) h += (i ? ", " : "") + std::string("<code>") + html_escape(in.sources[i]) + "</code>";
+  for (size_t i = 0; i < in.sources.size(); ++i)
+    h += (i ? ", " : "") + std::string("<code>") + html_escape(in.sources[i]) + "</code>";
   h += "; model";
   h += models.size() == 1 ? " " : "s ";
   for (const auto& [id, n] : models) h += "<code>" + html_escape(id) + "</code> ";
-  if (in.unreadable_lines > 0) h += "; " + std::to_string(in.unreadable_lines) + " lines were not records and were left out";
+  if (in.unreadable_lines > 0)
+    h += "; " + std::to_string(in.unreadable_lines) + " lines were not records and were left out";
   h += ".</p><h2>Bands</h2><div class='cards'>";
   for (int k = 0; k < 3; ++k) {
     h += "<div class='card' style='background:" + std::string(kBandColour[k]) + "'><b>" +
@@ -208,8 +217,10 @@ std::string report_page(const ReportInput& in) {
   }
   size_t n_errors = 0;
   for (const auto& [code, paths] : errors) n_errors += paths.size();
-  h += "<div class='card' style='background:#555'><b>" + std::to_string(n_errors) + "</b>not scored (errors)</div></div>";
-  h += "<p>Likely-generated means the score reached the model's threshold; it is a reason for a person to look, "
+  h += "<div class='card' style='background:#555'><b>" + std::to_string(n_errors) +
+       "</b>not scored (errors)</div></div>";
+  h += "<p>Likely-generated means the score reached the model's threshold; it is a reason for a person to "
+       "look, "
        "not a finding. Inconclusive is a normal outcome.</p>";
   h += "<h2>Score distribution</h2>" + histogram_svg(in.records);
 
@@ -223,9 +234,10 @@ std::string report_page(const ReportInput& in) {
       declared = r["declared"].value("declares_generated", false) ? "declares generated" : "camera / other";
       if (r["declared"].value("c2pa_manifest", false)) declared += "; C2PA manifest";
     }
-    h += "<tr><td class='n'>" + std::to_string(i + 1) + "</td><td><code>" + html_escape(r["path"]) + "</code></td>" +
-         "<td class='n'>" + fmt("%.3f", r["p_generated"].get<double>()) + "</td><td>" + html_escape(r["band"]) +
-         "</td><td>" + html_escape(declared) + "</td>" + pictures_of(r["path"]) + "</tr>";
+    h += "<tr><td class='n'>" + std::to_string(i + 1) + "</td><td><code>" + html_escape(r["path"]) +
+         "</code></td>" + "<td class='n'>" + fmt("%.3f", r["p_generated"].get<double>()) + "</td><td>" +
+         html_escape(r["band"]) + "</td><td>" + html_escape(declared) + "</td>" + pictures_of(r["path"]) +
+         "</tr>";
   }
   h += "</table>";
 
@@ -233,22 +245,26 @@ std::string report_page(const ReportInput& in) {
   if (disagreements.empty()) {
     h += "<p>None: no file's metadata contradicts its band.</p>";
   } else {
-    h += "<p>Metadata can be stripped or forged, and the score can be wrong: these files deserve a look because the "
+    h += "<p>Metadata can be stripped or forged, and the score can be wrong: these files deserve a look "
+         "because the "
          "two kinds of evidence disagree.</p><table><tr><th>file</th><th>declared</th><th>P(generated)</th>"
          "<th>band</th></tr>";
     for (const auto* r : disagreements) {
-      h += "<tr><td><code>" + html_escape((*r)["path"]) + "</code></td><td>" + html_escape((*r)["declared"].dump()) +
-           "</td><td class='n'>" + fmt("%.3f", (*r)["p_generated"].get<double>()) + "</td><td>" +
-           html_escape((*r)["band"]) + "</td></tr>";
+      h += "<tr><td><code>" + html_escape((*r)["path"]) + "</code></td><td>" +
+           html_escape((*r)["declared"].dump()) + "</td><td class='n'>" +
+           fmt("%.3f", (*r)["p_generated"].get<double>()) + "</td><td>" + html_escape((*r)["band"]) +
+           "</td></tr>";
     }
     h += "</table>";
   }
 
-  h += "<h2>By folder</h2><table><tr><th>folder</th><th>files</th><th>likely-generated</th><th>inconclusive</th>"
+  h += "<h2>By "
+       "folder</h2><table><tr><th>folder</th><th>files</th><th>likely-generated</th><th>inconclusive</th>"
        "<th>likely-camera</th><th>errors</th><th>mean P</th></tr>";
   for (const auto& [folder, f] : folders) {
     const size_t n = f.files - f.errors;
-    h += "<tr><td><code>" + html_escape(folder) + "</code></td><td class='n'>" + std::to_string(f.files) + "</td>";
+    h += "<tr><td><code>" + html_escape(folder) + "</code></td><td class='n'>" + std::to_string(f.files) +
+         "</td>";
     for (const char* b : kBands) {
       const auto it = f.bands.find(b);
       h += "<td class='n'>" + std::to_string(it == f.bands.end() ? 0 : it->second) + "</td>";
@@ -263,30 +279,35 @@ std::string report_page(const ReportInput& in) {
     h += "<table><tr><th>kind</th><th>files</th><th>examples</th></tr>";
     for (const auto& [code, paths] : errors) {
       std::string examples;
-      for (size_t i = 0; i < paths.size() && i < 5; ++i) examples += "<code>" + html_escape(paths[i]) + "</code><br>";
-      h += "<tr><td>" + html_escape(code) + "</td><td class='n'>" + std::to_string(paths.size()) + "</td><td>" +
-           examples + "</td></tr>";
+      for (size_t i = 0; i < paths.size() && i < 5; ++i)
+        examples += "<code>" + html_escape(paths[i]) + "</code><br>";
+      h += "<tr><td>" + html_escape(code) + "</td><td class='n'>" + std::to_string(paths.size()) +
+           "</td><td>" + examples + "</td></tr>";
     }
     h += "</table>";
   }
   h += "<h2>Model provenance</h2>";
   if (in.model) {
     const auto& p = in.model->provenance;
-    h += "<p>Model <code>" + html_escape(in.model->id) + "</code>, trained " + html_escape(in.model->created) +
-         ". Likely-generated threshold " + fmt("%.3f", in.model->thresholds.likely_generated) + ": " +
-         html_escape(promise_text(in.model->thresholds)) + ".</p><pre>" + html_escape(p.value("counts", nlohmann::ordered_json::object()).dump(2)) + "</pre>";
+    h += "<p>Model <code>" + html_escape(in.model->id) + "</code>, trained " +
+         html_escape(in.model->created) + ". Likely-generated threshold " +
+         fmt("%.3f", in.model->thresholds.likely_generated) + ": " +
+         html_escape(promise_text(in.model->thresholds)) + ".</p><pre>" +
+         html_escape(p.value("counts", nlohmann::ordered_json::object()).dump(2)) + "</pre>";
     const auto warnings = p.value("audit_warnings", nlohmann::ordered_json::array());
     h += "<p>Training-data warnings: " + std::string(warnings.empty() ? "none." : "") + "</p><ul>";
     for (const auto& w : warnings) h += "<li>" + html_escape(w.get<std::string>()) + "</li>";
     h += "</ul>";
     if (p.contains("cross_validation")) {
       const auto& o = p["cross_validation"]["metrics"]["overall"];
-      h += "<p>Cross-validated on its training data: ROC AUC " + fmt("%.3f", o.value("roc_auc", 0.0)) + ", ECE " +
-           fmt("%.3f", o.value("ece", 0.0)) + ", TPR at 1 % FPR " + fmt("%.3f", o.value("tpr_at_fpr_1pct", 0.0)) +
+      h += "<p>Cross-validated on its training data: ROC AUC " + fmt("%.3f", o.value("roc_auc", 0.0)) +
+           ", ECE " + fmt("%.3f", o.value("ece", 0.0)) + ", TPR at 1 % FPR " +
+           fmt("%.3f", o.value("tpr_at_fpr_1pct", 0.0)) +
            ". Images unlike that data (new generators, other compression) are scored less reliably.</p>";
     }
   } else {
-    h += "<p>Run <code>residue report --model MODEL</code> to include the model's training counts, warnings and "
+    h += "<p>Run <code>residue report --model MODEL</code> to include the model's training counts, warnings "
+         "and "
          "cross-validated metrics.</p>";
   }
   return h + "</body></html>\n";

@@ -37,7 +37,8 @@ void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
   for (const auto& t : tiles) {
     const size_t plane = static_cast<size_t>(t.size) * t.size;
     for (size_t i = 0; i < plane && channels_equal && t.channels == 3; ++i) {
-      channels_equal = level(t.plane(0)[i]) == level(t.plane(1)[i]) && level(t.plane(1)[i]) == level(t.plane(2)[i]);
+      channels_equal =
+          level(t.plane(0)[i]) == level(t.plane(1)[i]) && level(t.plane(1)[i]) == level(t.plane(2)[i]);
     }
     for (size_t i = 0; i < plane; ++i) {
       std::uint32_t colour = 0;
