@@ -74,19 +74,6 @@ Image load(const std::filesystem::path& path) {
   return std::move(image).value();
 }
 
-Image crop(const Image& image, int x, int y, int w, int h) {
-  Image out = Image::zeros(w, h, image.channels);
-  for (int c = 0; c < image.channels; ++c) {
-    for (int r = 0; r < h; ++r) {
-      for (int i = 0; i < w; ++i) {
-        out.plane(c)[static_cast<size_t>(r) * w + i] =
-            image.plane(c)[static_cast<size_t>(y + r) * image.width + x + i];
-      }
-    }
-  }
-  return out;
-}
-
 Image grey_of(const Image& image) { return Image{image.width, image.height, 1, luma(image)}; }
 
 void write_floats(const std::filesystem::path& path, const std::vector<float>& values) {

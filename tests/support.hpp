@@ -22,9 +22,6 @@ std::string python(const std::string& script, const std::vector<std::string>& ar
 // Decodes a file completely (fails the test on error).
 Image load(const std::filesystem::path& path);
 
-// A w x h crop of `image` at (x, y).
-Image crop(const Image& image, int x, int y, int w, int h);
-
 // A grey image from its luma.
 Image grey_of(const Image& image);
 

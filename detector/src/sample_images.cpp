@@ -37,17 +37,6 @@ std::vector<std::filesystem::path> sample_photos(const std::filesystem::path& di
   return found;
 }
 
-Image crop(const Image& image, int x, int y, int w, int h) {
-  Image out = Image::zeros(w, h, image.channels);
-  for (int c = 0; c < image.channels; ++c) {
-    for (int r = 0; r < h; ++r) {
-      std::copy_n(image.plane(c) + static_cast<size_t>(y + r) * image.width + x, w,
-                  out.plane(c) + static_cast<size_t>(r) * w);
-    }
-  }
-  return out;
-}
-
 Image simulate_decoder_output(const Image& picture, SimulatedDecoder decoder) {
   const int w = picture.width / 2;
   const int h = picture.height / 2;

@@ -1,5 +1,6 @@
 #include "residue/features/decode.hpp"
 
+#include <algorithm>
 #include <cerrno>
 #include <cstring>
 #include <fstream>
@@ -49,6 +50,17 @@ std::vector<float> luma(const Image& image) {
   if (image.channels == 1)
     return {image.samples.begin(), image.samples.begin() + static_cast<std::ptrdiff_t>(n)};
   return luma_of(image.plane(0), image.plane(1), image.plane(2), n);
+}
+
+Image crop(const Image& image, int x, int y, int w, int h) {
+  Image out = Image::zeros(w, h, image.channels);
+  for (int c = 0; c < image.channels; ++c) {
+    for (int r = 0; r < h; ++r) {
+      std::copy_n(image.plane(c) + static_cast<size_t>(y + r) * image.width + x, w,
+                  out.plane(c) + static_cast<size_t>(r) * w);
+    }
+  }
+  return out;
 }
 
 Result<std::vector<std::uint8_t>> read_file(const std::filesystem::path& path, const DecodeLimits& limits) {

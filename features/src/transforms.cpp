@@ -10,17 +10,6 @@ namespace residue {
 
 namespace {
 
-Image crop(const Image& image, int x0, int y0, int width, int height) {
-  Image out = Image::zeros(width, height, image.channels);
-  for (int c = 0; c < image.channels; ++c) {
-    for (int y = 0; y < height; ++y) {
-      std::copy_n(image.plane(c) + static_cast<size_t>(y0 + y) * image.width + x0, width,
-                  out.plane(c) + static_cast<size_t>(y) * width);
-    }
-  }
-  return out;
-}
-
 Image scaled(const Image& image, double factor, detail::ResizeFilter filter) {
   const int w = std::max(1, static_cast<int>(std::lround(image.width * factor)));
   const int h = std::max(1, static_cast<int>(std::lround(image.height * factor)));

@@ -17,7 +17,7 @@ namespace {
 
 // Grey 256 x 256 crop of scikit-image's coffee photograph (no resampling traces of its own).
 Image coffee_crop(int size) {
-  return test::grey_of(test::crop(test::load(test::sample("coffee.png")), 100, 60, size, size));
+  return test::grey_of(crop(test::load(test::sample("coffee.png")), 100, 60, size, size));
 }
 
 Image upsample_nearest(const Image& in, int f) {
@@ -166,7 +166,7 @@ TEST_CASE("Bayer mosaic + bilinear demosaicing raises the green lattice contrast
   // combinations of their neighbours. With bilinear demosaicing of an RGGB mosaic, green at red
   // and blue sites is the mean of its four neighbours, so the 4-neighbour residual vanishes on
   // half of the 2 x 2 lattice.
-  const Image photo = test::crop(test::load(test::sample("astronaut.png")), 128, 128, 256, 256);
+  const Image photo = crop(test::load(test::sample("astronaut.png")), 128, 128, 256, 256);
   Image demosaiced = photo;
   const int n = 256;
   auto at = [&](int c, int y, int x) {

@@ -14,7 +14,7 @@ TEST_CASE("hann_power_spectrum and azimuthal_average equal numpy.fft within 1e-9
   constexpr int n = 64;
   constexpr int bins = 16;
   const Image camera = test::load(test::sample("camera.png"));
-  const Image window = test::crop(camera, 200, 180, n, n);
+  const Image window = crop(camera, 200, 180, n, n);
   const auto path = test::scratch() / "camera64.f32";
   test::write_floats(path, window.samples);
 

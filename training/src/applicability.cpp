@@ -37,18 +37,27 @@ size_t support_near(const std::map<int, size_t>& histogram, int bin, int radius)
   return n;
 }
 
+// A histogram keyed by integers, as a JSON object keyed by their decimal text.
+nlohmann::ordered_json histogram_to_json(const std::map<int, size_t>& histogram) {
+  nlohmann::ordered_json j = nlohmann::ordered_json::object();
+  for (const auto& [key, n] : histogram) j[std::to_string(key)] = n;
+  return j;
+}
+
+std::map<int, size_t> histogram_from_json(const nlohmann::json& j) {
+  std::map<int, size_t> histogram;
+  for (const auto& [key, n] : j.items()) histogram[std::stoi(key)] = n.get<size_t>();
+  return histogram;
+}
+
 nlohmann::ordered_json counts_to_json(const ProcessingCounts& c) {
-  nlohmann::ordered_json quality = nlohmann::ordered_json::object();
-  for (const auto& [q, n] : c.jpeg_quality) quality[std::to_string(q)] = n;
-  nlohmann::ordered_json resampling = nlohmann::ordered_json::object();
-  for (const auto& [b, n] : c.resampling_bin) resampling[std::to_string(b)] = n;
   return {{"images", c.images},
           {"quantised", c.quantised},
           {"lossy_webp", c.lossy_webp},
           {"screenshot_like", c.screenshot_like},
           {"double_jpeg", c.double_jpeg},
-          {"jpeg_quality", quality},
-          {"resampling_bin_256", resampling}};
+          {"jpeg_quality", histogram_to_json(c.jpeg_quality)},
+          {"resampling_bin_256", histogram_to_json(c.resampling_bin)}};
 }
 
 ProcessingCounts counts_from_json(const nlohmann::json& j) {
@@ -58,9 +67,8 @@ ProcessingCounts counts_from_json(const nlohmann::json& j) {
   c.lossy_webp = j.at("lossy_webp");
   c.screenshot_like = j.at("screenshot_like");
   c.double_jpeg = j.at("double_jpeg");
-  for (const auto& [q, n] : j.at("jpeg_quality").items()) c.jpeg_quality[std::stoi(q)] = n.get<size_t>();
-  for (const auto& [b, n] : j.at("resampling_bin_256").items())
-    c.resampling_bin[std::stoi(b)] = n.get<size_t>();
+  c.jpeg_quality = histogram_from_json(j.at("jpeg_quality"));
+  c.resampling_bin = histogram_from_json(j.at("resampling_bin_256"));
   return c;
 }
 
@@ -68,6 +76,7 @@ ProcessingCounts counts_from_json(const nlohmann::json& j) {
 
 nlohmann::ordered_json processing_to_json(const ProcessingEvidence& e) {
   return {
+      {"version", kProcessingVersion},
       {"quantised", e.quantised},
       {"palette_file", e.palette_file},
       {"distinct_colours", e.distinct_colours},
@@ -90,6 +99,9 @@ nlohmann::ordered_json processing_to_json(const ProcessingEvidence& e) {
 }
 
 ProcessingEvidence processing_from_json(const nlohmann::json& j) {
+  if (j.at("version") != kProcessingVersion) {
+    throw nlohmann::json::other_error::create(502, "processing evidence of another version", nullptr);
+  }
   ProcessingEvidence e;
   e.quantised = j.at("quantised");
   e.palette_file = j.at("palette_file");
@@ -286,6 +298,7 @@ nlohmann::ordered_json applicability_to_json(const Applicability& a) {
           {"coverage", a.coverage},
           {"families", families},
           {"min_support", a.min_support},
+          {"processing_version", kProcessingVersion},
           {"processing", {{"camera", counts_to_json(a.camera)}, {"generated", counts_to_json(a.generated)}}}};
 }
 

@@ -49,8 +49,8 @@ FileFacts facts_from_json(const nlohmann::json& j) {
   f.metadata.has_xmp = j.at("has_xmp");
   f.metadata.digital_source_type = j.at("digital_source_type");
   f.metadata.generation_text = j.at("generation_text");
-  // Rows stored before processing evidence existed lack it: throwing here makes them a miss,
-  // so the file is extracted again (the vector itself would be unchanged).
+  // Rows stored before processing evidence existed, or by another kProcessingVersion, throw here
+  // and so are a miss: the file is extracted again (the vector itself would be unchanged).
   f.processing = processing_from_json(j.at("processing"));
   f.extract_ms = j.value("extract_ms", 0.0);  // absent in rows stored before it was recorded
   return f;

@@ -22,8 +22,6 @@ std::vector<std::filesystem::path> sample_photos(const std::filesystem::path& di
 // Stands in for photographs where only speed matters (the benchmark).
 Image simulated_scene(int width, int height, unsigned seed, double noise_sigma = 2.0);
 
-// A w x h crop of `image` at (x, y).
-Image crop(const Image& image, int x, int y, int w, int h);
 
 // SIMULATED generator output for the demo (labelled as such wherever it is used): the picture is
 // reduced 2x by box averaging (erasing the camera's own traces), then enlarged 2x the way image

@@ -21,8 +21,8 @@ struct ImageHeader {
   ImageFormat format = ImageFormat::kUnknown;
   int width = 0;
   int height = 0;
-  int channels = 0;   // as stored, alpha included; 0 where the header does not say
-  int bit_depth = 0;  // bits per sample; 0 where the header does not say
+  int channels = 0;      // as stored, alpha included; 0 where the header does not say
+  int bit_depth = 0;     // bits per sample; 0 where the header does not say
   bool palette = false;  // samples are indices into a colour table (PNG colour type 3, BMP <= 8 bit)
   bool lossy = false;    // lossy coding (JPEG, WebP "VP8 ", TIFF with JPEG compression)
 };
@@ -59,5 +59,8 @@ struct Tile {
 
 // BT.601 luma of a whole image.
 std::vector<float> luma(const Image& image);
+
+// The w x h part of `image` whose top-left corner is (x, y); the rectangle must lie inside.
+Image crop(const Image& image, int x, int y, int w, int h);
 
 }  // namespace residue

@@ -19,6 +19,10 @@
 
 namespace residue {
 
+// Bump when any decision below changes: evidence stored by another version (the feature cache,
+// a model's processing profile) is then recomputed rather than trusted.
+inline constexpr int kProcessingVersion = 2;
+
 struct ResamplingTrace {
   bool detected = false;
   double frequency = 0.0;  // cycles/pixel of the p-map peak the windows agree on, folded to [0, 0.5]

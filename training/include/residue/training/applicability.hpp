@@ -31,7 +31,7 @@ namespace residue {
 
 // --- processing evidence in JSON (scan records, the feature cache) ---
 nlohmann::ordered_json processing_to_json(const ProcessingEvidence& evidence);
-// Throws nlohmann::json::exception on a damaged document.
+// Throws nlohmann::json::exception on a damaged document or one of another kProcessingVersion.
 ProcessingEvidence processing_from_json(const nlohmann::json& json);
 
 // --- Clopper-Pearson ---
