@@ -145,3 +145,53 @@ TEST_CASE("a model abstains on processing its camera photos never showed, and sa
   CHECK(back.families.at(0).limit == 3.0);
   CHECK(check_domain(back, {0.5}, &palette).reasons.size() == 1);
 }
+
+TEST_CASE(
+    "the promised threshold flags the most camera images whose Clopper-Pearson bound stays under target") {
+  // 1000 camera images, each its own group, out-of-fold scores 0.000 .. 0.999, and 50 generated.
+  // scipy.stats.beta.ppf(0.95, k + 1, 1000 - k): k = 4 -> 0.00913 (<= 1 %), k = 5 -> 0.01048 (> 1 %),
+  // so four camera images may be flagged and the threshold is the 4th highest camera score, 0.996.
+  std::vector<double> p;
+  std::vector<int> labels, groups;
+  for (int i = 0; i < 1000; ++i) {
+    p.push_back(i / 1000.0);
+    labels.push_back(0);
+    groups.push_back(i);
+  }
+  for (int i = 0; i < 50; ++i) {
+    p.push_back(0.9995);
+    labels.push_back(1);
+    groups.push_back(1000 + i);
+  }
+  const auto ref4 = test::numbers(test::python("applicability_reference.py", {"cp", "4", "1000", "0.95"}));
+  const auto ref5 = test::numbers(test::python("applicability_reference.py", {"cp", "5", "1000", "0.95"}));
+  REQUIRE(ref4[0] <= 0.01);
+  REQUIRE(ref5[0] > 0.01);
+  auto [threshold, promise] = promised_threshold(p, labels, groups, 0.01, 0.95);
+  CHECK(threshold == doctest::Approx(0.996));
+  CHECK(promise.met);
+  CHECK(promise.false_positive_images == 4);
+  CHECK(promise.false_positive_groups == 4);
+  CHECK(promise.bound == doctest::Approx(ref4[0]).epsilon(1e-9));
+  CHECK(promise.groups_needed == 0);
+
+  // The same images in 100 groups of ten: the bound over groups, with none flagged, is
+  // 1 - 0.05^(1/100) = 2.95 % > 1 %: no promise, the threshold above every camera score, and
+  // 299 - 100 = 199 more groups needed.
+  for (int i = 0; i < 1000; ++i) groups[static_cast<size_t>(i)] = i / 10;
+  std::tie(threshold, promise) = promised_threshold(p, labels, groups, 0.01, 0.95);
+  CHECK_FALSE(promise.met);
+  CHECK(threshold > 0.999);
+  CHECK(threshold < 0.9991);
+  CHECK(promise.bound == doctest::Approx(1 - std::pow(0.05, 0.01)).epsilon(1e-9));
+  CHECK(promise.groups_needed == 199);
+  CHECK(promise.false_positive_images == 0);
+
+  // Ties are flagged together: ten camera images sharing the top score cannot be split.
+  for (int i = 990; i < 1000; ++i) p[static_cast<size_t>(i)] = 0.995;
+  for (int i = 0; i < 1000; ++i) groups[static_cast<size_t>(i)] = i;
+  std::tie(threshold, promise) = promised_threshold(p, labels, groups, 0.01, 0.95);
+  CHECK(promise.met);
+  CHECK(promise.false_positive_images == 0);
+  CHECK(threshold > 0.995);
+}

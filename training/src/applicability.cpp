@@ -5,6 +5,7 @@
 #include <boost/math/special_functions/beta.hpp>
 #include <cmath>
 #include <cstdio>
+#include <set>
 
 namespace residue {
 
@@ -130,6 +131,46 @@ double clopper_pearson_upper(size_t k, size_t n, double confidence) {
 
 size_t trials_needed(double target, double confidence) {
   return static_cast<size_t>(std::ceil(std::log(1.0 - confidence) / std::log(1.0 - target) - 1e-9));
+}
+
+std::pair<double, FprPromise> promised_threshold(const std::vector<double>& p, const std::vector<int>& labels,
+                                                 const std::vector<int>& groups, double target,
+                                                 double confidence) {
+  std::vector<size_t> camera;
+  std::set<int> camera_groups;
+  for (size_t i = 0; i < p.size(); ++i) {
+    if (labels[i] == 0) {
+      camera.push_back(i);
+      camera_groups.insert(groups[i]);
+    }
+  }
+  std::sort(camera.begin(), camera.end(), [&](size_t a, size_t b) { return p[a] > p[b]; });
+  FprPromise promise;
+  promise.confidence = confidence;
+  promise.camera_images = camera.size();
+  promise.camera_groups = camera_groups.size();
+  auto bound = [&](size_t k_images, size_t k_groups) {
+    return std::max(clopper_pearson_upper(k_images, promise.camera_images, confidence),
+                    clopper_pearson_upper(k_groups, promise.camera_groups, confidence));
+  };
+  double threshold = camera.empty() ? 0.5 : std::nextafter(p[camera.front()], 2.0);
+  promise.bound = bound(0, 0);
+  promise.met = promise.bound <= target;
+  std::set<int> flagged;
+  for (size_t j = 0; j < camera.size() && promise.met; ++j) {
+    flagged.insert(groups[camera[j]]);
+    // Ties: every camera image with the same score is flagged together.
+    if (j + 1 < camera.size() && p[camera[j + 1]] == p[camera[j]]) continue;
+    const double b = bound(j + 1, flagged.size());
+    if (b > target) break;
+    threshold = p[camera[j]];
+    promise.bound = b;
+    promise.false_positive_images = j + 1;
+    promise.false_positive_groups = flagged.size();
+  }
+  const size_t needed = trials_needed(target, confidence);
+  promise.groups_needed = promise.met || needed <= promise.camera_groups ? 0 : needed - promise.camera_groups;
+  return {threshold, promise};
 }
 
 double FamilyReference::distance(const double* z) const {

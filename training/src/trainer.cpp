@@ -52,50 +52,6 @@ Result<std::vector<double>> fit_and_score(const std::vector<PreparedItem>& items
 
 const char* const kGroupNames[] = {"duplicates", "folder", "manifest"};
 
-// The lowest likely-generated threshold whose promise holds: the upper Clopper-Pearson bound of
-// the camera FPR, over images and over groups, at most the target. Walks the camera scores from
-// the top, flagging one more image at a time. When no threshold keeps the promise, the one that
-// flags no camera image out of fold (just above the highest camera score), and says so.
-std::pair<double, FprPromise> promised_threshold(const std::vector<double>& p, const std::vector<int>& labels,
-                                                 const std::vector<int>& groups, double target,
-                                                 double confidence) {
-  std::vector<size_t> camera;
-  std::set<int> camera_groups;
-  for (size_t i = 0; i < p.size(); ++i) {
-    if (labels[i] == 0) {
-      camera.push_back(i);
-      camera_groups.insert(groups[i]);
-    }
-  }
-  std::sort(camera.begin(), camera.end(), [&](size_t a, size_t b) { return p[a] > p[b]; });
-  FprPromise promise;
-  promise.confidence = confidence;
-  promise.camera_images = camera.size();
-  promise.camera_groups = camera_groups.size();
-  auto bound = [&](size_t k_images, size_t k_groups) {
-    return std::max(clopper_pearson_upper(k_images, promise.camera_images, confidence),
-                    clopper_pearson_upper(k_groups, promise.camera_groups, confidence));
-  };
-  double threshold = camera.empty() ? 0.5 : std::nextafter(p[camera.front()], 2.0);
-  promise.bound = bound(0, 0);
-  promise.met = promise.bound <= target;
-  std::set<int> flagged;
-  for (size_t j = 0; j < camera.size() && promise.met; ++j) {
-    flagged.insert(groups[camera[j]]);
-    // Ties: every camera image with the same score is flagged together.
-    if (j + 1 < camera.size() && p[camera[j + 1]] == p[camera[j]]) continue;
-    const double b = bound(j + 1, flagged.size());
-    if (b > target) break;
-    threshold = p[camera[j]];
-    promise.bound = b;
-    promise.false_positive_images = j + 1;
-    promise.false_positive_groups = flagged.size();
-  }
-  const size_t needed = trials_needed(target, confidence);
-  promise.groups_needed = promise.met || needed <= promise.camera_groups ? 0 : needed - promise.camera_groups;
-  return {threshold, promise};
-}
-
 // The applicability reference (applicability.hpp): per family, PPCA on the standardised training
 // values; limits from out-of-fold distances (the reference refitted without each fold), so that
 // `coverage` of the training images pass every family; the processing profile per class.

@@ -41,6 +41,29 @@ double clopper_pearson_upper(size_t k, size_t n, double confidence);
 // The smallest n whose bound with k = 0 is at most `target`: ceil(ln(1 - confidence) / ln(1 - target)).
 size_t trials_needed(double target, double confidence);
 
+// What the likely-generated threshold promises about camera photos: the one-sided upper
+// Clopper-Pearson bound of the camera false-positive rate at `confidence`, out of fold, the larger
+// of the bound over images and the bound over groups (a group counts when any of its images is
+// at or above the threshold), so near-duplicates cannot inflate the evidence.
+struct FprPromise {
+  double confidence = 0.95;
+  size_t camera_images = 0;
+  size_t camera_groups = 0;
+  size_t false_positive_images = 0;  // out of fold, at the threshold
+  size_t false_positive_groups = 0;
+  double bound = 1.0;        // the promise: camera FPR at most this, with `confidence`
+  bool met = false;          // bound <= target_fpr
+  size_t groups_needed = 0;  // camera groups needed to promise target_fpr with none flagged
+};
+
+// The lowest likely-generated threshold whose promise holds (bound <= target), from out-of-fold
+// probabilities `p`, labels (0 camera, 1 generated) and groups: camera scores are flagged from the
+// top, one more at a time (ties together). When even none flagged cannot keep the promise, the
+// threshold lies just above the highest camera score and `met` is false.
+std::pair<double, FprPromise> promised_threshold(const std::vector<double>& p, const std::vector<int>& labels,
+                                                 const std::vector<int>& groups, double target,
+                                                 double confidence);
+
 // --- the PPCA reference of one family ---
 struct FamilyReference {
   std::string family;

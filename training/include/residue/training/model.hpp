@@ -27,21 +27,6 @@ namespace residue {
 inline constexpr const char* kModelFormat = "residue-model";
 inline constexpr int kModelFormatVersion = 1;
 
-// What the likely-generated threshold promises about camera photos: the one-sided upper
-// Clopper-Pearson bound of the camera false-positive rate at `confidence`, out of fold, the larger
-// of the bound over images and the bound over groups (a group counts when any of its images is
-// at or above the threshold), so near-duplicates cannot inflate the evidence.
-struct FprPromise {
-  double confidence = 0.95;
-  size_t camera_images = 0;
-  size_t camera_groups = 0;
-  size_t false_positive_images = 0;  // out of fold, at the threshold
-  size_t false_positive_groups = 0;
-  double bound = 1.0;        // the promise: camera FPR at most this, with `confidence`
-  bool met = false;          // bound <= target_fpr
-  size_t groups_needed = 0;  // camera groups needed to promise target_fpr with none flagged
-};
-
 struct Thresholds {
   double likely_generated = 0.5;      // P at or above: "likely-generated" (chosen for target_fpr)
   double likely_camera = 0.5;         // P below: "likely-camera"
