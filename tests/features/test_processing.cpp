@@ -172,3 +172,37 @@ TEST_CASE("apply_transform refuses an unknown name and keeps as-published byte f
   CHECK(header->width == 256);
   CHECK(header->height == 256);
 }
+
+TEST_CASE("combed histograms and exact flat colour areas (images made by the test)") {
+  // Levels doubled: 0, 2, 4, ... 254 -- every odd level empty, so within the 1-99 % range about
+  // half of the levels are empty (hand count: the range spans even and odd levels alike).
+  Image combed = Image::zeros(256, 256, 1);
+  for (int y = 0; y < 256; ++y) {
+    for (int x = 0; x < 256; ++x)
+      combed.plane(0)[static_cast<size_t>(y) * 256 + x] = static_cast<float>(2 * ((x + y) % 128));
+  }
+  auto e = extract_image(combed);
+  REQUIRE(e);
+  CHECK(e->processing.histogram_gaps == doctest::Approx(0.5).epsilon(0.02));
+  CHECK(e->processing.quantised);  // grey: judged by its histogram
+
+  // A user-interface-like picture: 32 px panels of 6 exact colours with a little text-like
+  // detail in one corner of each panel; lossless.
+  Image ui = Image::zeros(256, 256, 3);
+  const float panel[6][3] = {{240, 240, 240}, {30, 60, 120}, {200, 200, 210},
+                             {250, 250, 250}, {90, 90, 90},  {20, 140, 60}};
+  for (int y = 0; y < 256; ++y) {
+    for (int x = 0; x < 256; ++x) {
+      const int k = ((y / 32) * 8 + x / 32) % 6;
+      const bool detail = (x % 32) < 6 && (y % 32) < 4 && ((x + y) % 2 == 0);
+      for (int c = 0; c < 3; ++c)
+        ui.plane(c)[static_cast<size_t>(y) * 256 + x] = detail ? 128.0F : panel[k][c];
+    }
+  }
+  e = extract_image(ui);
+  REQUIRE(e);
+  CHECK(e->processing.flat_share > 0.9);
+  CHECK(e->processing.screenshot_like);
+  // A photograph has no such areas.
+  CHECK(evidence_of(file_bytes(test::sample("astronaut.png"))).flat_share < 0.05);
+}
