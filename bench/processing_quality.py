@@ -13,7 +13,8 @@ What it does:
   3. Per transform, over the three held-out folds: camera photos put in likely-generated, camera
      photos made inconclusive (and how many of them by the applicability check or processing the
      training never showed, "guarded"), generated images still caught, generated images made
-     inconclusive, ROC AUC of p_generated.
+     inconclusive, ROC AUC of p_generated, and the camera photos at or above the likely-generated
+     threshold if the guards were ignored (what the guards alone prevent).
 With --old OTHER_RESIDUE it repeats everything with another build (e.g. the previous release) for
 a before/after table; an older build has no guards, so its guarded share reads 0.
 
