@@ -157,14 +157,19 @@ int run_train(TrainArgs& args) {
   if (const auto& a = model.applicability) {
     size_t resampled = 0;
     for (const auto& [bin, count] : a->camera.resampling_bin) resampled += count;
+    size_t jpegs = 0;
+    for (const auto& [quality, count] : a->camera.jpeg_quality) jpegs += count;
+    const std::string qualities =
+        jpegs == 0 ? std::string()
+                   : " (quality " + std::to_string(a->camera.jpeg_quality.begin()->first) + "-" +
+                         std::to_string(a->camera.jpeg_quality.rbegin()->first) + ")";
     std::cout << "Applicability: images outside what " << static_cast<int>(100 * a->coverage)
               << " % of the training images showed (out of fold) are scored inconclusive; limits per family:";
     for (const auto& f : a->families) std::printf(" %s %.2f", f.family.c_str(), f.limit);
     std::cout << ".\n  Processing the training's camera photos showed (at least " << a->min_support
               << " needed to judge such an image): " << a->camera.quantised << " palette, "
-              << a->camera.lossy_webp << " lossy WebP, " << a->camera.jpeg_quality.size()
-              << " JPEG qualities, " << resampled << " resampled, " << a->camera.screenshot_like
-              << " screenshot-like.\n";
+              << a->camera.lossy_webp << " lossy WebP, " << jpegs << " JPEG" << qualities << ", " << resampled
+              << " resampled, " << a->camera.screenshot_like << " screenshot-like.\n";
   }
   if (auto saved = save_model(model, args.output); !saved) {
     std::cerr << "residue train: " << saved.error().message << "\n";
