@@ -6,7 +6,7 @@ cd "$(dirname "$0")/.."
 
 packages=(
   build-essential cmake pkg-config
-  libfftw3-dev libsvm-dev doctest-dev libcli11-dev nlohmann-json3-dev
+  libfftw3-dev libsvm-dev liblinear-dev doctest-dev libcli11-dev nlohmann-json3-dev
   libeigen3-dev libboost-dev libexiv2-dev libssl-dev libsqlite3-dev libcpp-httplib-dev libhiredis-dev
   libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev
   libjpeg62-turbo-dev libpng-dev libwebp-dev libtiff-dev

@@ -1,4 +1,5 @@
-// Linear scoring pieces: standardisation and a linear C-SVC trained with libsvm.
+// Linear scoring pieces: standardisation and a linear C-SVC trained with liblinear (Fan et al.
+// 2008; the dual coordinate descent of Hsieh et al. 2008), with libsvm kept as the reference.
 //
 // Conventions: samples are rows of a dense row-major matrix; labels are 0 (camera) and 1
 // (generated); the margin m(x) = w . z(x) + b with z the standardised vector is positive towards
@@ -36,14 +37,25 @@ struct LinearModel {
 
 struct SvmSettings {
   double c = 1.0;
-  double weight_generated = 1.0;  // class weights multiply C per class (libsvm -wi)
+  double weight_generated = 1.0;  // class weights multiply C per class (-wi in both libraries)
   double weight_camera = 1.0;
-  double tolerance = 1e-3;  // libsvm -e, as scikit-learn's SVC default tol
+  double tolerance = 1e-3;  // stopping tolerance (-e); liblinear's own default for this solver is 0.1
+  // liblinear learns the bias as the weight of a constant feature of this value, so the bias is
+  // regularised as (b / bias_scale)^2 (scikit-learn's LinearSVC intercept_scaling). libsvm does
+  // not regularise it; a larger scale comes closer to libsvm and converges more slowly.
+  double bias_scale = 1.0;
 };
 
-// Trains libsvm's C-SVC with a linear kernel on already standardised rows. Needs both classes.
+// Trains a linear SVM with hinge loss (liblinear's L2R_L1LOSS_SVC_DUAL: the primal of libsvm's
+// C-SVC with a linear kernel, solved by dual coordinate descent) on already standardised rows.
+// Needs both classes. Scales to 10^5 rows: the cost is linear in rows x values per pass.
 Result<LinearModel> train_linear_svm(const Matrix& x, const std::vector<int>& labels,
                                      const SvmSettings& settings);
+
+// The same problem solved by libsvm's C-SVC with a linear kernel (the reference the tests compare
+// against; quadratic in rows, so not for large sets).
+Result<LinearModel> train_linear_svm_libsvm(const Matrix& x, const std::vector<int>& labels,
+                                            const SvmSettings& settings);
 
 // Class weights inversely proportional to class frequency: n / (2 n_class), as scikit-learn's
 // class_weight="balanced".

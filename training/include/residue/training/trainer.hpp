@@ -16,8 +16,8 @@ namespace residue {
 struct TrainSettings {
   int folds = 5;
   std::vector<double> c_grid = {0.001, 0.01, 0.1, 1.0, 10.0};
-  // Above this many images, values of C over 1 are dropped from the grid: libsvm's time grows
-  // steeply with C and n (10k images: minutes at C <= 1, far longer at C = 10; see
+  // Above this many instances, values of C over 1 are dropped from the grid: the dual solver's
+  // time grows with C (coordinate descent needs more passes when few samples sit at the bound;
   // docs/performance.md). 0 keeps the grid as given (the CLI does so when --c-grid is set).
   size_t large_set = 3000;
   double target_fpr = 0.01;       // camera FPR the likely-generated threshold promises ...
