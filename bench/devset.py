@@ -3,6 +3,8 @@ into the project): camera photographs, generated singles, and the cells cut from
 whose layout the manifest gives (written losslessly as PNG under a scratch folder).
 
 items(dev, work) -> [(path, label, generator, group_in_distribution, group_unseen)]
+recompressed(path, work) -> the image as JPEG quality 85 (Pillow), cached under work/q85
+manifest(items, work, name, variant, grouping) -> CSV manifest for `residue train --group-by manifest`
   group_in_distribution: one source picture (a grid's cells together; camera sets that share
   scenes, LIVE1 + Kodak24 and Set5/Set14 + OpenCV's samples, one group each; DreamBooth objects one
   group per object); group_unseen: for generated images their generator family.
@@ -77,3 +79,23 @@ def items(dev, work):
         else:
             items.append((src, "generated", fam, "file:" + row["path"], "family:" + fam))
     return items
+
+
+def recompressed(path, work):
+    out = os.path.join(work, "q85", os.path.relpath(path, "/").rsplit(".", 1)[0] + ".jpg")
+    if not os.path.exists(out):
+        os.makedirs(os.path.dirname(out), exist_ok=True)
+        Image.open(path).convert("RGB").save(out, quality=85)
+    return out
+
+
+def manifest(all_items, work, name, variant, grouping):
+    """variant "as-is" or "q85"; grouping "in" (source picture) or "unseen" (generator family)."""
+    path = os.path.join(work, f"{name}.csv")
+    with open(path, "w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(["path", "label", "generator", "group"])
+        for p, label, gen, g_in, g_un in all_items:
+            w.writerow([recompressed(p, work) if variant == "q85" else p, label, gen,
+                        g_in if grouping == "in" else g_un])
+    return path

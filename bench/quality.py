@@ -21,15 +21,12 @@ What it does:
 Usage: bench/quality.py [--residue build/residue] [--dev ../shared/data/dev] [--work /tmp/residue-quality]
 """
 import argparse
-import csv
 import json
 import os
 import subprocess
 import sys
 
 import devset
-
-from PIL import Image
 
 parser = argparse.ArgumentParser()
 parser.add_argument("--residue", default="build/residue")
@@ -43,28 +40,10 @@ os.makedirs(work, exist_ok=True)
 items = devset.items(dev, work)
 
 
-def recompressed(path):
-    out = os.path.join(work, "q85", os.path.relpath(path, "/").rsplit(".", 1)[0] + ".jpg")
-    if not os.path.exists(out):
-        os.makedirs(os.path.dirname(out), exist_ok=True)
-        Image.open(path).convert("RGB").save(out, quality=85)
-    return out
-
-
-def manifest(name, variant, grouping):
-    path = os.path.join(work, f"{name}.csv")
-    with open(path, "w", newline="") as f:
-        w = csv.writer(f)
-        w.writerow(["path", "label", "generator", "group"])
-        for p, label, gen, g_in, g_un in items:
-            w.writerow([recompressed(p) if variant == "q85" else p, label, gen, g_in if grouping == "in" else g_un])
-    return path
-
-
 results = {}
 for variant in ("as-is", "q85"):
     for grouping in ("in", "unseen"):
-        m = manifest(f"{variant}-{grouping}", variant, grouping)
+        m = devset.manifest(items, work, f"{variant}-{grouping}", variant, grouping)
         for features in ("all", "baseline"):
             model = os.path.join(work, f"model-{variant}-{grouping}-{features}.json")
             cmd = [args.residue, "train", m, "-o", model, "--group-by", "manifest",

@@ -111,15 +111,20 @@ void bench_case(const Case& c, int repeats) {
   const double spectral = med(&FamilyTimings::spectral_ms);
   const double noise = med(&FamilyTimings::noise_ms);
   const double resampling = med(&FamilyTimings::resampling_ms);
+  const double sensor = med(&FamilyTimings::sensor_ms);
+  const double texture = med(&FamilyTimings::texture_ms);
+  const double coding = med(&FamilyTimings::coding_ms);
   const double processing = median_ms(repeats, [&] { (void)assess_processing(*decoded, std::nullopt); });
-  const double total = window_decode + spectral + noise + resampling + processing;
+  const double families = spectral + noise + resampling + sensor + texture + coding;
+  const double total = window_decode + families + processing;
+  const auto windows = static_cast<double>(std::max<size_t>(1, decoded->layout.origins.size()));
   std::printf(
-      "%-22s %7.1f %8.1f %9.1f %6.1f %8.1f %8.1f %7.1f %8.1f  %5.2f  %2zu x %d px, %llu of %d rows decoded\n",
-      c.label.c_str(), full_decode, window_decode, spectral, noise, resampling, processing, total,
-      total / full_decode,
-      spectral + noise + resampling > 0 ? (spectral + noise + resampling) / window_decode : 0.0,
-      decoded->layout.origins.size(), decoded->layout.size,
-      static_cast<unsigned long long>(decoded->decoded_rows), decoded->header.height);
+      "%-22s %7.1f %8.1f %9.1f %6.1f %8.1f %7.1f %8.1f %7.1f %8.1f %7.1f %8.1f %8.2f  %5.2f  %2zu x %d px, %llu of "
+      "%d rows decoded\n",
+      c.label.c_str(), full_decode, window_decode, spectral, noise, resampling, sensor, texture, coding, processing,
+      total, total / full_decode, families / windows, families > 0 ? families / window_decode : 0.0,
+      decoded->layout.origins.size(), decoded->layout.size, static_cast<unsigned long long>(decoded->decoded_rows),
+      decoded->header.height);
 }
 
 int run_bench(const BenchArgs& args) {
@@ -151,14 +156,15 @@ int run_bench(const BenchArgs& args) {
         .write(reinterpret_cast<const char*>(encoded->data()), static_cast<std::streamsize>(encoded->size()));
     cases.push_back({s.label, path});
   }
-  std::printf("%-22s %7s %8s %9s %6s %8s %8s %7s %8s  %5s\n", "image (ms)", "decode", "windows", "spectral",
-              "noise", "resampl", "process", "total", "tot/dec", "feat/win");
+  std::printf("%-22s %7s %8s %9s %6s %8s %7s %8s %7s %8s %7s %8s %8s  %5s\n", "image (ms)", "decode", "windows",
+              "spectral", "noise", "resampl", "sensor", "texture", "coding", "process", "total", "tot/dec",
+              "ms/win", "feat/dec");
   for (const auto& c : cases) bench_case(c, args.repeats);
   std::printf(
       "\ndecode = whole image decoded; windows = only the analysis windows' pixels decoded;\n"
       "process = processing evidence (reported, not learned: palette, resampling, JPEG history);\n"
-      "total = windows + the three families + processing; tot/dec = total / whole decode;\n"
-      "feat/win = feature time (families only) / window-decode time.\n\n");
+      "total = windows + the six families + processing; tot/dec = total / whole decode;\n"
+      "ms/win = the six families' time per analysis window; feat/dec = that time / window-decode time.\n\n");
 
   std::vector<std::string> batch;
   batch.reserve(static_cast<size_t>(args.batch));

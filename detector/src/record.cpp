@@ -40,6 +40,9 @@ nlohmann::ordered_json features_record(const std::string& path, const Extraction
         {"spectral", e.timings.spectral_ms},
         {"noise", e.timings.noise_ms},
         {"resampling", e.timings.resampling_ms},
+        {"sensor", e.timings.sensor_ms},
+        {"texture", e.timings.texture_ms},
+        {"coding", e.timings.coding_ms},
         {"processing", e.timings.processing_ms},
         {"total", e.timings.total_ms}}},
   };

@@ -29,6 +29,9 @@ const Family kFamilies[] = {
     {"spectral", spectral_names, spectral_window, &FamilyTimings::spectral_ms},
     {"noise", noise_names, noise_window, &FamilyTimings::noise_ms},
     {"resampling", resampling_names, resampling_window, &FamilyTimings::resampling_ms},
+    {"sensor", sensor_names, sensor_window, &FamilyTimings::sensor_ms},
+    {"texture", texture_names, texture_window, &FamilyTimings::texture_ms},
+    {"coding", coding_names, coding_window, &FamilyTimings::coding_ms},
 };
 
 struct Schema {
@@ -154,8 +157,9 @@ Result<Extraction> extract_image(const Image& image, const ExtractOptions& optio
   const auto processing_start = Clock::now();
   out.processing = assess_processing(decoded, std::nullopt);
   out.timings.processing_ms = ms_since(processing_start);
-  out.timings.total_ms =
-      out.timings.spectral_ms + out.timings.noise_ms + out.timings.resampling_ms + out.timings.processing_ms;
+  out.timings.total_ms = out.timings.spectral_ms + out.timings.noise_ms + out.timings.resampling_ms +
+                         out.timings.sensor_ms + out.timings.texture_ms + out.timings.coding_ms +
+                         out.timings.processing_ms;
   return out;
 }
 

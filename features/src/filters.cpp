@@ -2,7 +2,10 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdint>
 #include <map>
+#include <mutex>
+#include <tuple>
 #include <numbers>
 #include <utility>
 
@@ -58,23 +61,36 @@ Plane correlate_valid(const float* image, int width, int height, const Kernel& k
 
 namespace {
 
-// Class index of each (a, b) in [-T, T]^2 under the sign and order symmetries, classes numbered
-// in lexicographic order of their smallest member. Cheap: (2T+1)^2 entries.
-std::vector<int> folded_index(int t) {
+// Class index of each tuple in [-T, T]^order (row-major, first element slowest) under the sign
+// symmetry and, when `reverse`, the direction symmetry; classes numbered in lexicographic order of
+// their smallest member. Cheap: (2T+1)^order entries.
+std::vector<int> make_folded_index(int t, int order, bool reverse) {
   const int side = 2 * t + 1;
-  std::map<std::pair<int, int>, int> classes;
-  std::vector<std::pair<int, int>> canon(static_cast<size_t>(side) * side);
-  for (int a = -t; a <= t; ++a) {
-    for (int b = -t; b <= t; ++b) {
-      const auto key = std::min({std::pair{a, b}, std::pair{-a, -b}, std::pair{b, a}, std::pair{-b, -a}});
-      canon[(a + t) * side + (b + t)] = key;
-      classes.emplace(key, 0);
+  size_t cells = 1;
+  for (int k = 0; k < order; ++k) cells *= static_cast<size_t>(side);
+  std::map<std::vector<int>, int> classes;
+  std::vector<std::vector<int>> canon(cells);
+  std::vector<int> tuple(static_cast<size_t>(order));
+  for (size_t i = 0; i < cells; ++i) {
+    size_t rest = i;
+    for (int k = order - 1; k >= 0; --k) {
+      tuple[static_cast<size_t>(k)] = static_cast<int>(rest % static_cast<size_t>(side)) - t;
+      rest /= static_cast<size_t>(side);
     }
+    std::vector<int> negated(tuple);
+    for (int& v : negated) v = -v;
+    auto key = std::min(tuple, negated);
+    if (reverse) {
+      key = std::min({key, std::vector<int>(tuple.rbegin(), tuple.rend()),
+                      std::vector<int>(negated.rbegin(), negated.rend())});
+    }
+    canon[i] = key;
+    classes.emplace(key, 0);
   }
   int next = 0;
   for (auto& entry : classes) entry.second = next++;
-  std::vector<int> index(canon.size());
-  for (size_t i = 0; i < canon.size(); ++i) index[i] = classes[canon[i]];
+  std::vector<int> index(cells);
+  for (size_t i = 0; i < cells; ++i) index[i] = classes[canon[i]];
   return index;
 }
 
@@ -84,44 +100,81 @@ int round_clamped(float v, int t) {
   return std::clamp(static_cast<int>(c >= 0 ? c + 0.5F : c - 0.5F), -t, t);
 }
 
-const std::vector<int>& folded_index_cached(int t) {
-  static const std::vector<int> t2 = folded_index(2);
-  static thread_local std::vector<int> other;
-  if (t == 2) return t2;
-  other = folded_index(t);
-  return other;
+const std::vector<int>& folded_index(int t, int order, bool reverse) {
+  static std::mutex mutex;
+  static std::map<std::tuple<int, int, bool>, std::vector<int>> tables;
+  std::lock_guard lock(mutex);
+  auto [it, added] = tables.try_emplace({t, order, reverse});
+  if (added) it->second = make_folded_index(t, order, reverse);
+  return it->second;  // map nodes never move
 }
 
 }  // namespace
 
-int folded_pair_classes(int t) {
-  const auto index = folded_index(t);
+int folded_tuple_classes(int t, int order, bool reverse) {
+  const auto& index = folded_index(t, order, reverse);
   return *std::max_element(index.begin(), index.end()) + 1;
 }
 
-long add_folded_pairs(const Plane& residual, double step, int t, bool along_rows,
-                      std::vector<double>& histogram) {
-  const auto& index = folded_index_cached(t);
-  const int side = 2 * t + 1;
-  const int w = residual.width;
-  const int h = residual.height;
+int folded_pair_classes(int t) { return folded_tuple_classes(t, 2, true); }
+
+QuantisedPlane quantise(const Plane& residual, double step, int t) {
+  QuantisedPlane out{residual.width, residual.height, t, std::vector<std::uint8_t>(residual.values.size())};
   const auto inverse = static_cast<float>(1.0 / step);
-  std::vector<int> q(residual.values.size());
-  for (size_t i = 0; i < q.size(); ++i) q[i] = round_clamped(residual.values[i] * inverse, t);
-  // Count raw pairs first, fold once at the end.
-  std::vector<long> raw(static_cast<size_t>(side) * side, 0);
-  long pairs = 0;
+  // round_clamped(v, t) + t, written without branches so that the compiler vectorises it.
+  const float lo = -static_cast<float>(t) - 0.5F;
+  const float hi = static_cast<float>(t) + 0.5F;
+  const float* v = residual.values.data();
+  std::uint8_t* q = out.q.data();
+  for (size_t i = 0; i < out.q.size(); ++i) {
+    const float c = std::min(std::max(v[i] * inverse, lo), hi);
+    const float r = c + (c >= 0.0F ? 0.5F : -0.5F);
+    const int k = std::min(std::max(static_cast<int>(r), -t), t);
+    q[i] = static_cast<std::uint8_t>(k + t);
+  }
+  return out;
+}
+
+long add_folded_tuples(const QuantisedPlane& q, int order, bool along_rows, std::vector<double>& histogram) {
+  const int t = q.t;
+  const auto& index = folded_index(t, order, true);
+  const size_t side = 2 * static_cast<size_t>(t) + 1;
+  const int w = q.width;
+  const int h = q.height;
+  // Count raw tuples first, fold once at the end.
+  std::vector<std::uint32_t> raw(index.size(), 0);
+  long tuples = 0;
+  const int span = order - 1;
   const int dx = along_rows ? 1 : 0;
   const int dy = along_rows ? 0 : 1;
-  for (int y = 0; y + dy < h; ++y) {
-    const int* row = q.data() + static_cast<size_t>(y) * w;
-    const int* next = row + static_cast<size_t>(dy) * w + dx;
-    const int count = w - dx;
-    for (int x = 0; x < count; ++x) ++raw[(row[x] + t) * side + (next[x] + t)];
-    pairs += count;
+  const size_t stride = static_cast<size_t>(dy) * w + dx;
+  for (int y = 0; y + dy * span < h; ++y) {
+    const std::uint8_t* row = q.q.data() + static_cast<size_t>(y) * w;
+    const int count = w - dx * span;
+    for (int x = 0; x < count; ++x) {
+      const std::uint8_t* p = row + x;
+      size_t cell = p[0];
+      for (int k = 1; k < order; ++k) cell = cell * side + p[k * stride];
+      ++raw[cell];
+    }
+    if (count > 0) tuples += count;
   }
-  for (size_t i = 0; i < raw.size(); ++i) histogram[index[i]] += static_cast<double>(raw[i]);
-  return pairs;
+  for (size_t i = 0; i < raw.size(); ++i) histogram[static_cast<size_t>(index[i])] += static_cast<double>(raw[i]);
+  return tuples;
+}
+
+long add_folded_pairs(const Plane& residual, double step, int t, bool along_rows, std::vector<double>& histogram) {
+  return add_folded_tuples(quantise(residual, step, t), 2, along_rows, histogram);
+}
+
+long add_cross_channel_triples(const QuantisedPlane& r, const QuantisedPlane& g, const QuantisedPlane& b,
+                               std::vector<double>& histogram) {
+  const auto& index = folded_index(r.t, 3, false);
+  const size_t side = 2 * static_cast<size_t>(r.t) + 1;
+  std::vector<std::uint32_t> raw(index.size(), 0);
+  for (size_t i = 0; i < r.q.size(); ++i) ++raw[(r.q[i] * side + g.q[i]) * side + b.q[i]];
+  for (size_t i = 0; i < raw.size(); ++i) histogram[static_cast<size_t>(index[i])] += static_cast<double>(raw[i]);
+  return static_cast<long>(r.q.size());
 }
 
 std::vector<double> spam_first_order(const float* image, int width, int height, int t) {

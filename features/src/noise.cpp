@@ -13,6 +13,15 @@ namespace {
 
 constexpr int kCoocT = 2;  // truncation of the quantised residuals
 constexpr int kSpamT = 2;  // truncation of the SPAM differences (the paper uses 4; see docs)
+// Kernels whose residuals also give 4th-order and cross-colour co-occurrences (our choice: one
+// directional and one non-directional kernel keep the vector at a size the learner handles).
+bool rich_kernel(std::string_view name) { return name == "o2" || name == "kv3"; }
+
+std::string class_label(int c) {
+  char buf[16];
+  std::snprintf(buf, sizeof buf, "c%03d", c);
+  return buf;
+}
 
 // "m2" for -2, "p1" for +1: signs spelled out so names stay plain identifiers.
 std::string signed_label(int k) {
@@ -83,6 +92,18 @@ const std::vector<std::string>& noise_names() {
       }
     }
     for (const auto& k : rich_model_kernels()) {
+      for (int c = 0; c < folded_tuple_classes(kCoocT, 3, true); ++c)
+        v.push_back("noise.cooc3_" + std::string(k.name) + "." + class_label(c));
+      if (!rich_kernel(k.name)) continue;
+      for (int c = 0; c < folded_tuple_classes(kCoocT, 4, true); ++c)
+        v.push_back("noise.cooc4_" + std::string(k.name) + "." + class_label(c));
+    }
+    for (const auto& k : rich_model_kernels()) {
+      if (!rich_kernel(k.name)) continue;
+      for (int c = 0; c < folded_tuple_classes(kCoocT, 3, false); ++c)
+        v.push_back("noise.cross_" + std::string(k.name) + "." + class_label(c));
+    }
+    for (const auto& k : rich_model_kernels()) {
       v.push_back("noise.moments_" + std::string(k.name) + ".log_variance");
       v.push_back("noise.moments_" + std::string(k.name) + ".log_kurtosis");
     }
@@ -105,27 +126,53 @@ std::vector<double> noise_window(const WindowInput& window) {
   std::vector<Moments> kernel_moments;
 
   const int classes = folded_pair_classes(kCoocT);
+  std::vector<double> higher;  // 3rd- and 4th-order values, after SPAM in the vector
+  auto normalised = [](const std::vector<double>& histogram, long count, std::vector<double>& out) {
+    for (double c : histogram) out.push_back(count > 0 ? c / static_cast<double>(count) : 0.0);
+  };
   for (const auto& k : rich_model_kernels()) {
     std::vector<double> histogram(classes, 0.0);
     long pairs = 0;
     MomentSums sums;
     const Plane h = correlate_valid(y, n, n, k);
     sums.add(h.values);
-    if (k.directional) {
-      // Horizontal kernel with pairs along rows, vertical kernel with pairs along columns.
-      const Plane v = correlate_valid(y, n, n, k.transposed());
-      sums.add(v.values);
-      pairs += add_folded_pairs(h, k.step, kCoocT, true, histogram);
-      pairs += add_folded_pairs(v, k.step, kCoocT, false, histogram);
-    } else {
-      pairs += add_folded_pairs(h, k.step, kCoocT, true, histogram);
-      pairs += add_folded_pairs(h, k.step, kCoocT, false, histogram);
-    }
-    for (double c : histogram) values.push_back(pairs > 0 ? c / static_cast<double>(pairs) : 0.0);
+    // Directional kernels: horizontal kernel with tuples along rows, vertical kernel along
+    // columns; the others along rows and columns of the one plane.
+    const Plane v = k.directional ? correlate_valid(y, n, n, k.transposed()) : Plane{};
+    if (k.directional) sums.add(v.values);
+    const QuantisedPlane qh = quantise(h, k.step, kCoocT);
+    const QuantisedPlane qv = k.directional ? quantise(v, k.step, kCoocT) : QuantisedPlane{};
+    const QuantisedPlane& second = k.directional ? qv : qh;
+    pairs += add_folded_tuples(qh, 2, true, histogram);
+    pairs += add_folded_tuples(second, 2, false, histogram);
+    normalised(histogram, pairs, values);
     kernel_moments.push_back(sums.moments());
+    for (int order : {3, 4}) {
+      if (order == 4 && !rich_kernel(k.name)) continue;
+      std::vector<double> tuples(static_cast<size_t>(folded_tuple_classes(kCoocT, order, true)), 0.0);
+      long count = add_folded_tuples(qh, order, true, tuples);
+      count += add_folded_tuples(second, order, false, tuples);
+      normalised(tuples, count, higher);
+    }
   }
   const auto spam = spam_first_order(y, n, n, kSpamT);
   values.insert(values.end(), spam.begin(), spam.end());
+  values.insert(values.end(), higher.begin(), higher.end());
+  // Cross-colour triples of each channel's residual (grey: the one channel three times).
+  for (const auto& k : rich_model_kernels()) {
+    if (!rich_kernel(k.name)) continue;
+    std::vector<double> histogram(static_cast<size_t>(folded_tuple_classes(kCoocT, 3, false)), 0.0);
+    long count = 0;
+    for (const Kernel& kernel : k.directional ? std::vector<Kernel>{k, k.transposed()} : std::vector<Kernel>{k}) {
+      QuantisedPlane planes[3];
+      for (int c = 0; c < 3; ++c) {
+        const float* x = window.tile.plane(std::min(c, window.tile.channels - 1));
+        planes[c] = quantise(correlate_valid(x, n, n, kernel), k.step, kCoocT);
+      }
+      count += add_cross_channel_triples(planes[0], planes[1], planes[2], histogram);
+    }
+    normalised(histogram, count, values);
+  }
   for (const auto& m : kernel_moments) {
     values.push_back(std::log10(m.variance + 1e-6));
     values.push_back(std::log10(m.excess_kurtosis + 3.0));  // log of the (non-excess) kurtosis, >= 0

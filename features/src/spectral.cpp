@@ -1,5 +1,6 @@
 // Spectral-residual family (Durall et al. 2020; Dzanic et al. 2020; Corvi et al. 2023).
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <cstdio>
 
@@ -78,19 +79,29 @@ const std::vector<std::string>& spectral_names() {
       v.push_back("spectral.grid_n" + std::to_string(p) + ".axis.peak");
       v.push_back("spectral.grid_n" + std::to_string(p) + ".diagonal.peak");
     }
+    for (const char* chroma : {"cb", "cr"}) {
+      const std::string prefix = std::string("spectral.chroma_") + chroma;
+      v.push_back(prefix + ".decay.exponent");
+      v.push_back(prefix + ".decay.level_at_nyquist");
+      v.push_back(prefix + ".decay.fit_rmse");
+      for (int p : kPeriods) {
+        v.push_back(prefix + ".grid_n" + std::to_string(p) + ".axis.peak");
+        v.push_back(prefix + ".grid_n" + std::to_string(p) + ".diagonal.peak");
+      }
+    }
     return v;
   }();
   return names;
 }
 
-std::vector<double> spectral_window(const WindowInput& window) {
-  const int n = window.tile.size;
-  const auto residual = denoise_residual(window.luma.data(), n);
+namespace {
+
+// Decay fit and grid peaks of one plane's residual, appended to `values`, after the azimuthal rings
+// when `with_rings` (the luma plane).
+void spectral_plane(const float* plane, int n, std::vector<double>& values, bool with_rings) {
+  const auto residual = denoise_residual(plane, n);
   const auto power = hann_power_spectrum(residual.data(), n);
   const auto rings = azimuthal_average(power, n, kRings);
-
-  std::vector<double> values;
-  values.reserve(spectral_names().size());
   // Shape of the spectrum: each ring relative to the mean over all rings, log10.
   double mean = 0.0;
   for (double r : rings) mean += r;
@@ -98,7 +109,7 @@ std::vector<double> spectral_window(const WindowInput& window) {
   std::vector<double> log_rings(kRings);
   for (int b = 0; b < kRings; ++b) {
     log_rings[b] = std::log10((rings[b] + kTiny) / (mean + kTiny));
-    values.push_back(log_rings[b]);
+    if (with_rings) values.push_back(log_rings[b]);
   }
   // Least-squares line log10 P = a + s log10 f over the rings centred in [0.25, 0.5).
   double sx = 0, sy = 0, sxx = 0, sxy = 0;
@@ -138,6 +149,30 @@ std::vector<double> spectral_window(const WindowInput& window) {
     values.push_back(std::log10(g.axis));
     values.push_back(std::log10(g.diagonal));
   }
+}
+
+}  // namespace
+
+std::array<std::vector<float>, 2> chroma_planes(const Tile& tile) {
+  const size_t count = static_cast<size_t>(tile.size) * tile.size;
+  std::array<std::vector<float>, 2> out{std::vector<float>(count, 128.0F), std::vector<float>(count, 128.0F)};
+  if (tile.channels < 3) return out;  // grey: no chroma
+  const float* r = tile.plane(0);
+  const float* g = tile.plane(1);
+  const float* b = tile.plane(2);
+  for (size_t i = 0; i < count; ++i) {
+    out[0][i] = 128.0F - 0.168736F * r[i] - 0.331264F * g[i] + 0.5F * b[i];
+    out[1][i] = 128.0F + 0.5F * r[i] - 0.418688F * g[i] - 0.081312F * b[i];
+  }
+  return out;
+}
+
+std::vector<double> spectral_window(const WindowInput& window) {
+  const int n = window.tile.size;
+  std::vector<double> values;
+  values.reserve(spectral_names().size());
+  spectral_plane(window.luma.data(), n, values, true);
+  for (const auto& plane : chroma_planes(window.tile)) spectral_plane(plane.data(), n, values, false);
   return values;
 }
 

@@ -8,6 +8,10 @@ import sys
 _counts = {"passed": 0, "failed": 0}
 
 
+# The feature families of the vector (features/src/extract.cpp).
+FAMILIES = {"spectral", "noise", "resampling", "sensor", "texture", "coding"}
+
+
 def check(condition, what):
     _counts["passed" if condition else "failed"] += 1
     if not condition:

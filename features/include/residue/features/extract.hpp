@@ -1,4 +1,4 @@
-// The feature pipeline: file -> guarded decode -> windows -> three families -> named vector.
+// The feature pipeline: file -> guarded decode -> windows -> six families -> named vector.
 //
 // Basic use:
 //   residue::ExtractOptions options;                       // defaults shared by CLI and service
@@ -23,13 +23,13 @@
 namespace residue {
 
 // Bump when any value's definition changes; models record it and refuse a mismatch.
-inline constexpr std::string_view kExtractorVersion = "1.0.0";
+inline constexpr std::string_view kExtractorVersion = "2.0.0";
 
 // Names of the learned values, in vector order (`family.group.name[.mean|.max]`).
 const std::vector<std::string>& feature_names();
 // Short fingerprint of extractor version and names (FNV-1a, hex): equal schemas, equal ids.
 const std::string& feature_schema_id();
-// The family ("spectral", "noise", "resampling") of each value, in vector order.
+// The family ("spectral", "noise", "resampling", "sensor", "texture", "coding") of each value.
 const std::vector<std::string>& feature_families();
 
 struct FeatureVector {
@@ -47,6 +47,9 @@ struct FamilyTimings {
   double spectral_ms = 0;
   double noise_ms = 0;
   double resampling_ms = 0;
+  double sensor_ms = 0;
+  double texture_ms = 0;
+  double coding_ms = 0;
   double processing_ms = 0;  // processing evidence (not a family: reported, never learned)
   double total_ms = 0;
 };

@@ -1,4 +1,4 @@
-// The three trace families, computed per analysis window. Each family has a fixed list of value
+// The trace families, computed per analysis window. Each family has a fixed list of value
 // names (`family.group.name`) and a function that fills the values of one window in that order.
 //
 // Published methods (see docs/features.md for the full citations and our choices):
@@ -13,11 +13,23 @@
 //               2010); residual variance and kurtosis; Immerkaer (1996) noise level; 2 x 2
 //               lattice contrast and cross-channel correlation of a linear-interpolation residual
 //               that colour-filter-array demosaicing leaves (Popescu & Farid 2005).
+//               Decay and grid peaks also on the Cb and Cr planes (ITU-R BT.601 chroma).
+//               Higher-order co-occurrences (3rd order for every kernel, 4th for o2 and kv3) and
+//               cross-colour co-occurrences of the R, G, B residuals at one pixel (Goljan,
+//               Fridrich & Cogranne 2014), T = 2.
 //  resampling — Kirchner (2008) fixed linear predictor, p-map p = exp(-e^2) (lambda = 1,
 //               sigma = 1, tau = 2), and the peak strength of the p-map spectrum.
+//  sensor     — noise level function per channel (Foi et al. 2008; Liu et al. 2008): variance of
+//               the Immerkaer residual in 8 x 8 blocks, median per intensity bin, Theil-Sen line
+//               v = a mu + b, fit error, Kendall's tau, spread between channels.
+//  texture    — texture contrast (Zhong et al. 2023): 32 px patches ranked by texture diversity;
+//               second-order residual co-occurrences and moments of the poorest and richest third.
+//  coding     — JPEG-LS (LOCO-I) MED prediction with its 365 gradient contexts: conditional
+//               residual entropy in bits per pixel at full, 1/2 and 1/4 scale (2 x 2 means).
 // Values whose name ends in ".peak" are aggregated over windows by mean and max; others by mean.
 #pragma once
 
+#include <array>
 #include <string>
 #include <vector>
 
@@ -39,6 +51,15 @@ std::vector<double> noise_window(const WindowInput& window);
 
 const std::vector<std::string>& resampling_names();
 std::vector<double> resampling_window(const WindowInput& window);
+
+const std::vector<std::string>& sensor_names();
+std::vector<double> sensor_window(const WindowInput& window);
+
+const std::vector<std::string>& texture_names();
+std::vector<double> texture_window(const WindowInput& window);
+
+const std::vector<std::string>& coding_names();
+std::vector<double> coding_window(const WindowInput& window);
 
 // --- building blocks, public for tests and for the explain pictures ---
 
@@ -79,5 +100,44 @@ struct CfaTraces {
   double residual_corr_bg = 1.0;
 };
 CfaTraces cfa_traces(const Tile& tile);
+
+// BT.601 chroma of a tile, Cb and Cr with their 128 offset (constant 128 for grey tiles).
+std::array<std::vector<float>, 2> chroma_planes(const Tile& tile);
+
+// Noise level function of one N x N plane (0..255). The residual is Immerkaer's
+// N = [[1,-2,1],[-2,4,-2],[1,-2,1]] (blind to planes and ramps); each 8 x 8 block of it gives a
+// variance sigma^2 with sigma = sqrt(pi/2) mean|r| / 6 (Immerkaer 1996) at the block's mean
+// intensity mu. Blocks are binned by mu in 16 bins of 16 levels; the end bins (clipping) are
+// skipped and a bin needs 6 blocks. Each bin's median variance (texture only adds variance, so the
+// median keeps to the flat blocks while they are the majority) against its mean mu is fitted by a
+// Theil-Sen line v = slope mu + offset: for Poisson-Gaussian noise (Foi et al. 2008) slope = a and
+// offset = b.
+struct NoiseLevelCurve {
+  std::vector<double> intensity;  // per usable bin, increasing
+  std::vector<double> variance;
+  double slope = 0.0;
+  double offset = 0.0;
+  double relative_rmse = 0.0;  // RMS of the fit's residuals over the mean variance
+  double kendall_tau = 0.0;    // rank agreement of variance with intensity, -1..1
+};
+NoiseLevelCurve noise_level_function(const float* plane, int n);
+
+// Texture diversity of a size x size patch (Zhong et al. 2023): the sum of absolute differences
+// of neighbours along rows, columns, the diagonal and the anti-diagonal.
+double texture_diversity(const float* x, int stride, int size);
+// Indices of the (n / patch)^2 patches of an N x N plane (row-major), poorest texture first;
+// their diversities in `diversity` when given.
+std::vector<int> patches_by_texture(const float* luma, int n, int patch, std::vector<double>* diversity = nullptr);
+
+// JPEG-LS (ISO/IEC 14495-1, A.3-A.4) median edge detector: min(a, b) if c >= max(a, b),
+// max(a, b) if c <= min(a, b), else a + b - c (a west, b north, c north-west).
+int med_predict(int a, int b, int c);
+// Gradient quantisation of JPEG-LS (A.3.3) with the default thresholds for 8 bits (T1 = 3,
+// T2 = 7, T3 = 21, NEAR = 0): region -4..4.
+int jpegls_gradient_region(int d);
+// Conditional entropy of the MED residuals (reduced modulo 256) given the JPEG-LS context
+// (q1, q2, q3, sign-merged: 365 contexts), in bits per pixel, over pixels with all four causal
+// neighbours, with Miller's (1955) bias correction. Integer samples 0..255, n x n.
+double coding_cost_bits(const std::vector<int>& samples, int n);
 
 }  // namespace residue

@@ -5,6 +5,7 @@
 // (no padding): an image of w x h and a kernel of kw x kh give (w - kw + 1) x (h - kh + 1) values.
 #pragma once
 
+#include <cstdint>
 #include <span>
 #include <string_view>
 #include <vector>
@@ -43,6 +44,30 @@ int folded_pair_classes(int t);
 // along columns. Adds into `histogram` (size folded_pair_classes(t)) and returns the pair count.
 long add_folded_pairs(const Plane& residual, double step, int t, bool along_rows,
                       std::vector<double>& histogram);
+
+// A residual quantised as clamp(round(r / step), -T, T) + T (0..2T), for the co-occurrences below.
+struct QuantisedPlane {
+  int width = 0;
+  int height = 0;
+  int t = 2;
+  std::vector<std::uint8_t> q;
+};
+QuantisedPlane quantise(const Plane& residual, double step, int t);
+
+// Higher-order co-occurrences of the rich model (Fridrich & Kodovsky 2012): tuples of `order`
+// neighbouring quantised residuals along rows (or columns), folded by sign,
+// (a, b, c) ~ (-a, -b, -c), and by direction, (a, b, c) ~ (c, b, a), as the paper symmetrises
+// them. Classes for T = 2: 9 pairs, 39 triples, 169 quadruples. Adds the raw counts into
+// `histogram` (size folded_tuple_classes(t, order, true)) and returns the tuple count.
+// add_folded_pairs is order 2.
+int folded_tuple_classes(int t, int order, bool reverse);
+long add_folded_tuples(const QuantisedPlane& q, int order, bool along_rows, std::vector<double>& histogram);
+
+// Cross-colour co-occurrence (Goljan, Fridrich & Cogranne 2014, colour rich model): the triple of
+// quantised residuals (R, G, B) at one pixel, folded by sign only (the channels keep their order):
+// 63 classes for T = 2 (folded_tuple_classes(t, 3, false)). Planes of equal size; returns the count.
+long add_cross_channel_triples(const QuantisedPlane& r, const QuantisedPlane& g, const QuantisedPlane& b,
+                               std::vector<double>& histogram);
 
 // First-order SPAM features (Pevny, Bas & Fridrich 2010): transition probabilities
 // M(u, v) = Pr(D(i, j+1) = u | D(i, j) = v) of pixel differences D truncated to [-T, T], averaged

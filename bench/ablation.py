@@ -1,0 +1,80 @@
+#!/usr/bin/python3
+"""Ablation on the team's development set (reads ../shared/data/dev; copies nothing into the
+project): which feature families and which ways of learning earn their cost. Prints the table of
+docs/quality.md, "Ablation".
+
+Every configuration is trained four times with `residue train --group-by manifest` (grouped 5-fold
+cross-validation, numbers out of fold), as bench/quality.py does: as published and with every
+image recompressed to JPEG q85, each grouped by source picture (in-distribution) and with generated
+images grouped by generator family (unseen generator). It prints the pooled ROC AUC and the share
+of generated images caught at 1 % camera FPR, plus the unseen-generator AUC of stylegan2.
+
+Usage: bench/ablation.py [--residue build/residue] [--dev ../shared/data/dev]
+                         [--work /tmp/residue-quality] [NAME=ARGS ...]
+  NAME=ARGS  a configuration: its name and the extra `residue train` arguments, e.g.
+             "spectral-only=--only spectral." (default: the table of docs/quality.md)
+"""
+import argparse
+import json
+import os
+import shlex
+import subprocess
+import sys
+import time
+
+import devset
+
+OLD = "--only spectral. noise.cooc noise.spam noise.moments noise.level noise.cfa resampling."
+DEFAULT = [
+    ("154 values (before)", OLD + " --augment none --instances image"),
+    ("+ noise level function", OLD + " noise.nlf --augment none --instances image"),
+    ("+ texture contrast", OLD + " noise.texture --augment none --instances image"),
+    ("+ coding cost", OLD + " coding. --augment none --instances image"),
+    ("+ cross-colour co-occurrence", OLD + " noise.cross --augment none --instances image"),
+    ("+ chroma spectra", OLD + " spectral.chroma --augment none --instances image"),
+    ("all families", "--augment none --instances image"),
+    ("all + augmentation", "--augment full --instances image"),
+    ("all + augmentation + windows", "--augment full --instances windows"),
+]
+
+parser = argparse.ArgumentParser()
+parser.add_argument("--residue", default="build/residue")
+parser.add_argument("--dev", default="../shared/data/dev")
+parser.add_argument("--work", default="/tmp/residue-quality")
+parser.add_argument("configs", nargs="*")
+args = parser.parse_args()
+work = os.path.abspath(args.work)
+os.makedirs(work, exist_ok=True)
+configs = [tuple(c.split("=", 1)) for c in args.configs] or DEFAULT
+items = devset.items(os.path.abspath(args.dev), work)
+
+print(f"{len(items)} images; grouped 5-fold, out of fold; AUC / caught at 1 % camera FPR\n")
+print("| configuration | values | in-dist. | in-dist. q85 | unseen | unseen q85 | stylegan2 unseen AUC | train s |")
+print("|---|---:|---:|---:|---:|---:|---:|---:|")
+for name, extra in configs:
+    cells = {}
+    values = 0
+    seconds = 0.0
+    for variant in ("as-is", "q85"):
+        for grouping in ("in", "unseen"):
+            m = devset.manifest(items, work, f"{variant}-{grouping}", variant, grouping)
+            model = os.path.join(work, "ablation-model.json")
+            cmd = [args.residue, "train", m, "-o", model, "--group-by", "manifest",
+                   "--cache", os.path.join(work, "cache.sqlite")] + shlex.split(extra)
+            start = time.time()
+            run = subprocess.run(cmd, capture_output=True, text=True)
+            seconds += time.time() - start
+            if run.returncode != 0:
+                sys.exit(f"{' '.join(cmd)} failed:\n{run.stderr[-2000:]}")
+            with open(model) as f:
+                doc = json.load(f)
+            values = len(doc["schema"]["features"])
+            metrics = doc["provenance"]["cross_validation"]["metrics"]
+            cells[(variant, grouping)] = metrics["overall"]
+            if (variant, grouping) == ("as-is", "unseen"):
+                cells["stylegan2"] = metrics["per_generator"].get("stylegan2", {}).get("roc_auc")
+    row = [f"{cells[(v, g)]['roc_auc']:.3f} / {cells[(v, g)]['tpr_at_fpr_1pct']:.2f}"
+           for g in ("in", "unseen") for v in ("as-is", "q85")]
+    sg = cells["stylegan2"]
+    print(f"| {name} | {values} | " + " | ".join(row) + f" | {sg:.3f} | {seconds:.0f} |" if sg is not None
+          else f"| {name} | {values} | " + " | ".join(row) + f" | – | {seconds:.0f} |", flush=True)
