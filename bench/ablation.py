@@ -24,17 +24,20 @@ import time
 
 import devset
 
-OLD = "--only spectral. noise.cooc noise.spam noise.moments noise.level noise.cfa resampling."
+OLD = ("--only spectral.azimuthal spectral.decay spectral.grid noise.cooc_ noise.spam noise.moments noise.level "
+       "noise.cfa resampling.")
+PLAIN = " --augment none --instances image"
 DEFAULT = [
-    ("154 values (before)", OLD + " --augment none --instances image"),
-    ("+ noise level function", OLD + " noise.nlf --augment none --instances image"),
-    ("+ texture contrast", OLD + " noise.texture --augment none --instances image"),
-    ("+ coding cost", OLD + " coding. --augment none --instances image"),
-    ("+ cross-colour co-occurrence", OLD + " noise.cross --augment none --instances image"),
-    ("+ chroma spectra", OLD + " spectral.chroma --augment none --instances image"),
-    ("all families", "--augment none --instances image"),
-    ("all + augmentation", "--augment full --instances image"),
-    ("all + augmentation + windows", "--augment full --instances windows"),
+    ("154 values (before)", OLD + PLAIN),
+    ("+ sensor noise level function", OLD + " sensor." + PLAIN),
+    ("+ texture contrast", OLD + " texture." + PLAIN),
+    ("+ coding cost", OLD + " coding." + PLAIN),
+    ("+ 3rd/4th-order co-occurrences", OLD + " noise.cooc3 noise.cooc4" + PLAIN),
+    ("+ cross-colour co-occurrences", OLD + " noise.cross" + PLAIN),
+    ("+ chroma spectra", OLD + " spectral.chroma" + PLAIN),
+    ("all families", PLAIN),
+    ("all + augmentation", " --instances image"),
+    ("all + augmentation + windows", ""),
 ]
 
 parser = argparse.ArgumentParser()

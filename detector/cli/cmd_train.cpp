@@ -21,6 +21,7 @@ struct TrainArgs {
   TrainSettings settings;
   std::string group_by = "duplicates";
   std::vector<std::string> only;
+  std::string augment = "full";
   std::string from;  // parent model whose settings are reused
   bool keep_c = false;
   std::vector<std::string> given;  // options set on the command line (they win over --from)
@@ -53,6 +54,7 @@ std::optional<TrainSettings> resolve_settings(const TrainArgs& args, const std::
   TrainSettings s = args.settings;
   s.group_by = parse_group_by(args.group_by);
   s.feature_prefixes = args.only;
+  s.augment = *parse_augment(args.augment);  // CLI checks the choice
   if (given(args, "--c-grid")) s.large_set = 0;  // the user's grid is used as given
   if (!parent) return s;
   TrainSettings p = settings_from_model(*parent);
@@ -65,6 +67,7 @@ std::optional<TrainSettings> resolve_settings(const TrainArgs& args, const std::
   if (given(args, "--generated-miss")) p.generated_miss = s.generated_miss;
   if (given(args, "--group-by")) p.group_by = s.group_by;
   if (given(args, "--only")) p.feature_prefixes = s.feature_prefixes;
+  if (given(args, "--augment")) p.augment = s.augment;
   if (args.keep_c) {
     const auto cv = parent->provenance.value("cross_validation", nlohmann::json::object());
     if (!cv.contains("chosen_c")) {
@@ -111,6 +114,7 @@ int run_train(TrainArgs& args) {
   // Settings first: a parent that cannot give them is refused before any image is read.
   auto settings = resolve_settings(args, parent);
   if (!settings) return static_cast<int>(ExitCode::kFailure);
+  args.data.augment = settings->augment;
   auto prepared = prepare_from_args(args.data, "train");
   if (!prepared) return static_cast<int>(ExitCode::kFailure);
   const AuditReport audit = audit_dataset(prepared->report.items, prepared->report.failed.size());
@@ -119,7 +123,7 @@ int run_train(TrainArgs& args) {
     std::cerr << "residue train: refused because of the audit warnings above (--strict)\n";
     return static_cast<int>(ExitCode::kFailure);
   }
-  auto outcome = train_model(prepared->report.items, *settings, audit);
+  auto outcome = train_model(prepared->report.items, *settings, audit, prepared->report.copies);
   if (!outcome) {
     std::cerr << "residue train: " << outcome.error().message << "\n";
     return static_cast<int>(ExitCode::kFailure);
@@ -129,7 +133,10 @@ int run_train(TrainArgs& args) {
   model.provenance["preparation"] = {{"extracted", prepared->report.extracted},
                                      {"from_cache", prepared->report.cached},
                                      {"seconds", prepared->report.seconds},
-                                     {"seconds_saved_by_cache", prepared->seconds_saved()}};
+                                     {"seconds_saved_by_cache", prepared->seconds_saved()},
+                                     {"augmented_copies", prepared->report.copies.size()},
+                                     {"copies_extracted", prepared->report.copies_extracted},
+                                     {"copies_failed", prepared->report.copies_failed}};
   if (parent) {
     model.provenance["lineage"] = lineage_of(*parent, prepared->report.items);
     print_lineage(model.provenance["lineage"]);
@@ -209,6 +216,12 @@ void add_train_command(CLI::App& app, int& exit_code) {
   add_group_by_option(*cmd, args->group_by, "what must stay on one side of a split");
   cmd->add_option("--only", args->only,
                   "use only features whose names start with these prefixes (e.g. spectral.)");
+  cmd->add_option("--augment", args->augment,
+                  "also train on processed copies of every image, both classes alike (drawn from each file's "
+                  "hash, cached): none; light = a JPEG (quality 65-95) and a downscale (0.5-0.9); full = those "
+                  "plus a lossy WebP (65-95) and a centre crop (0.5-0.9)")
+      ->check(CLI::IsMember({"none", "light", "full"}))
+      ->capture_default_str();
   cmd->add_option("--from", args->from,
                   "retrain from this model: reuse its settings (options given here win) and record it as "
                   "the parent, with what was added");
@@ -217,7 +230,7 @@ void add_train_command(CLI::App& app, int& exit_code) {
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");
   cmd->callback([args, cmd, &exit_code] {
     for (const char* option :
-         {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by", "--only"}) {
+         {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by", "--only", "--augment"}) {
       if (cmd->count(option) > 0) args->given.emplace_back(option);
     }
     exit_code = run_train(*args);

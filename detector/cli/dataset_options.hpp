@@ -18,6 +18,7 @@ struct DatasetArgs {
   bool no_cache = false;
   int jobs = 0;  // 0: one per core
   ExtractOptions extract;
+  Augment augment = Augment::kNone;  // train sets it: processed copies of every file too
 };
 
 // Registers ROOT plus --cache, --no-cache, --jobs and the extraction limits.

@@ -116,14 +116,15 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
   auto dataset = scan_labelled_folders(out / "training");
   if (!dataset) return dataset.error();
   auto cache = FeatureCache::open(out / "feature-cache.sqlite");
-  auto prepared = prepare_dataset(*dataset, {}, cache ? cache->get() : nullptr, jobs);
+  const TrainSettings settings;  // defaults, augmentation included
+  auto prepared = prepare_dataset(*dataset, {}, cache ? cache->get() : nullptr, jobs, {}, settings.augment);
   const AuditReport audit = audit_dataset(prepared.items, prepared.failed.size());
   log << audit_to_text(audit);
   if (audit.duplicate_pairs_across_classes > 0) {
     log << "   (Expected here: the demo cuts camera and simulated pictures from the same few photographs, so\n"
            "    some crops overlap across the classes. In real data, check such pairs.)\n";
   }
-  auto trained = train_model(prepared.items, TrainSettings{}, audit);
+  auto trained = train_model(prepared.items, settings, audit, prepared.copies);
   if (!trained) return trained.error();
   DemoPaths paths{out / "model.json", out / "scan.jsonl", out / "report.html", out / "explain",
                   out / "entries-truth.csv"};

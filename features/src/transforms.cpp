@@ -3,6 +3,9 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdlib>
+#include <optional>
+#include <string_view>
 
 #include "adapters.hpp"
 
@@ -54,32 +57,49 @@ const std::vector<TransformInfo>& everyday_transforms() {
   return t;
 }
 
+namespace {
+
+// A parametrised name "PREFIX<number>" (e.g. "jpeg-q83", "downscale-0.72"): the number, if the
+// name has the prefix and the rest is a number in [lo, hi].
+std::optional<double> parameter(const std::string& name, std::string_view prefix, double lo, double hi) {
+  if (!name.starts_with(prefix) || name.size() == prefix.size()) return std::nullopt;
+  const std::string rest = name.substr(prefix.size());
+  char* end = nullptr;
+  const double v = std::strtod(rest.c_str(), &end);
+  if (end != rest.c_str() + rest.size() || !(v >= lo && v <= hi)) return std::nullopt;
+  return v;
+}
+
+}  // namespace
+
 Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> bytes,
                                                   const std::string& name, const DecodeLimits& limits) {
   if (name == "as-published") return std::vector<std::uint8_t>(bytes.begin(), bytes.end());
+  const auto jpeg = parameter(name, "jpeg-q", 1, 100);
+  const auto webp = parameter(name, "webp-q", 1, 100);
+  const auto down = parameter(name, "downscale-", 0.05, 0.999);
+  const auto cropped = parameter(name, "crop-centre-", 0.05, 0.999);
   const auto known = std::any_of(everyday_transforms().begin(), everyday_transforms().end(),
                                  [&](const TransformInfo& t) { return t.name == name; });
-  if (!known) return make_error(ErrorCode::kUnsupported, "unknown transform '" + name + "'");
+  if (!known && !jpeg && !webp && !down && !cropped)
+    return make_error(ErrorCode::kUnsupported, "unknown transform '" + name + "'");
   auto decoded = decode_image(bytes, limits);
   if (!decoded) return decoded.error();
   const Image& image = *decoded;
   using detail::ResizeFilter;
-  if (name == "jpeg-q95") return encode_image(image, ImageFormat::kJpeg, 95);
-  if (name == "jpeg-q75") return encode_image(image, ImageFormat::kJpeg, 75);
-  if (name == "jpeg-q50") return encode_image(image, ImageFormat::kJpeg, 50);
-  if (name == "webp-q80") return encode_image(image, ImageFormat::kWebp, 80);
-  if (name == "downscale-0.5")
-    return encode_image(scaled(image, 0.5, ResizeFilter::kArea), ImageFormat::kPng);
+  if (jpeg) return encode_image(image, ImageFormat::kJpeg, static_cast<int>(*jpeg));
+  if (webp) return encode_image(image, ImageFormat::kWebp, static_cast<int>(*webp));
+  if (down) return encode_image(scaled(image, *down, ResizeFilter::kArea), ImageFormat::kPng);
+  if (cropped) {
+    const int w = std::max(1, static_cast<int>(image.width * *cropped));
+    const int h = std::max(1, static_cast<int>(image.height * *cropped));
+    return encode_image(crop(image, (image.width - w) / 2, (image.height - h) / 2, w, h), ImageFormat::kPng);
+  }
   if (name == "upscale-1.5")
     return encode_image(scaled(image, 1.5, ResizeFilter::kBicubic), ImageFormat::kPng);
   if (name == "sharpen") return encode_image(sharpened(image, 1.0, 0.8), ImageFormat::kPng);
   if (name == "screenshot-0.8")
     return encode_image(scaled(image, 0.8, ResizeFilter::kBilinear), ImageFormat::kPng);
-  if (name == "crop-centre-0.6") {
-    const int w = std::max(1, static_cast<int>(image.width * 0.6));
-    const int h = std::max(1, static_cast<int>(image.height * 0.6));
-    return encode_image(crop(image, (image.width - w) / 2, (image.height - h) / 2, w, h), ImageFormat::kPng);
-  }
   // palette-256
   const Image rgb = as_rgb(image);
   const Quantised q = median_cut(rgb, 256);

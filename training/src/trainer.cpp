@@ -13,25 +13,27 @@ namespace residue {
 
 namespace {
 
-Matrix design_matrix(const std::vector<PreparedItem>& items, const std::vector<size_t>& columns,
-                     const std::vector<size_t>& rows) {
+// The training instances: the images, then their augmented copies.
+using Instances = std::vector<const PreparedItem*>;
+
+Matrix design_matrix(const Instances& items, const std::vector<size_t>& columns, const std::vector<size_t>& rows) {
   Matrix x{rows.size(), columns.size(), std::vector<double>(rows.size() * columns.size())};
   for (size_t r = 0; r < rows.size(); ++r) {
-    const auto& v = items[rows[r]].features.values;
+    const auto& v = items[rows[r]]->features.values;
     for (size_t c = 0; c < columns.size(); ++c) x.row(r)[c] = v[columns[c]];
   }
   return x;
 }
 
-std::vector<int> labels_of(const std::vector<PreparedItem>& items, const std::vector<size_t>& rows) {
+std::vector<int> labels_of(const Instances& items, const std::vector<size_t>& rows) {
   std::vector<int> y;
   y.reserve(rows.size());
-  for (size_t r : rows) y.push_back(items[r].file.label == Label::kGenerated ? 1 : 0);
+  for (size_t r : rows) y.push_back(items[r]->file.label == Label::kGenerated ? 1 : 0);
   return y;
 }
 
 // Scaler + SVM on the given rows; margins for `test` rows.
-Result<std::vector<double>> fit_and_score(const std::vector<PreparedItem>& items,
+Result<std::vector<double>> fit_and_score(const Instances& items,
                                           const std::vector<size_t>& columns,
                                           const std::vector<size_t>& train, const std::vector<size_t>& test,
                                           double c) {
@@ -55,14 +57,14 @@ const char* const kGroupNames[] = {"duplicates", "folder", "manifest"};
 // The applicability reference (applicability.hpp): per family, PPCA on the standardised training
 // values; limits from out-of-fold distances (the reference refitted without each fold), so that
 // `coverage` of the training images pass every family; the processing profile per class.
-Applicability fit_applicability(const std::vector<PreparedItem>& items, const std::vector<int>& labels,
+Applicability fit_applicability(const Instances& items, const std::vector<int>& labels,
                                 const std::vector<int>& fold, int folds, const Model& model,
                                 double coverage) {
   Matrix z{items.size(), model.feature_index.size(),
            std::vector<double>(items.size() * model.feature_index.size())};
   std::vector<double> raw(model.feature_index.size());
   for (size_t i = 0; i < items.size(); ++i) {
-    for (size_t c = 0; c < raw.size(); ++c) raw[c] = items[i].features.values[model.feature_index[c]];
+    for (size_t c = 0; c < raw.size(); ++c) raw[c] = items[i]->features.values[model.feature_index[c]];
     model.scaler.apply_row(raw.data(), z.row(i));
   }
   std::map<std::string, std::vector<size_t>> columns;
@@ -94,7 +96,7 @@ Applicability fit_applicability(const std::vector<PreparedItem>& items, const st
     a.families.back().limit = limits[k++];
   }
   for (size_t i = 0; i < items.size(); ++i)
-    (labels[i] == 1 ? a.generated : a.camera) += items[i].facts.processing;
+    (labels[i] == 1 ? a.generated : a.camera) += items[i]->facts.processing;
   return a;
 }
 
@@ -150,6 +152,7 @@ nlohmann::ordered_json settings_to_json(const TrainSettings& s) {
           {"fpr_confidence", s.fpr_confidence},
           {"domain_coverage", s.domain_coverage},
           {"group_by", kGroupNames[static_cast<int>(s.group_by)]},
+          {"augment", augment_name(s.augment)},
           {"only", s.feature_prefixes}};
 }
 
@@ -173,6 +176,8 @@ TrainSettings settings_from_model(const Model& model) {
     s.domain_coverage = j.value("domain_coverage", s.domain_coverage);
     group_by = j.value("group_by", group_by);
     s.feature_prefixes = j.value("only", s.feature_prefixes);
+    // Models from before augmentation existed were trained without it.
+    s.augment = parse_augment(j.value("augment", std::string("none"))).value_or(Augment::kNone);
   }
   for (int g = 0; g < 3; ++g) {
     if (group_by == kGroupNames[g]) s.group_by = static_cast<GroupBy>(g);
@@ -222,12 +227,19 @@ nlohmann::ordered_json lineage_of(const Model& parent, const std::vector<Prepare
 }
 
 Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const TrainSettings& settings,
-                                 const AuditReport& audit) {
+                                 const AuditReport& audit, const std::vector<PreparedItem>& copies) {
   auto columns = select_features(settings.feature_prefixes);
   if (!columns) return columns.error();
-  std::vector<size_t> all(items.size());
-  for (size_t i = 0; i < items.size(); ++i) all[i] = i;
-  const auto labels = labels_of(items, all);
+  // Instances: the n images, then their copies; a copy shares its image's group and fold.
+  Instances instances;
+  instances.reserve(items.size() + copies.size());
+  for (const auto& it : items) instances.push_back(&it);
+  for (const auto& c : copies) instances.push_back(&c);
+  const size_t n = items.size();
+  std::vector<size_t> all(instances.size());
+  for (size_t i = 0; i < all.size(); ++i) all[i] = i;
+  const auto labels_all = labels_of(instances, all);
+  const std::vector<int> labels(labels_all.begin(), labels_all.begin() + static_cast<std::ptrdiff_t>(n));
   const size_t positives = static_cast<size_t>(std::count(labels.begin(), labels.end(), 1));
   if (positives < 2 || items.size() - positives < 2) {
     return make_error(ErrorCode::kTooSmall, "training needs at least two camera and two generated images");
@@ -241,20 +253,26 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   if (cv.groups < 2)
     return make_error(ErrorCode::kTooSmall, "all images fall into one group: cannot cross-validate");
   cv.fold = grouped_folds(groups, labels, k);
-
+  std::vector<int> fold_all = cv.fold;
+  std::vector<int> groups_all = groups;
+  for (const auto& c : copies) {
+    fold_all.push_back(cv.fold[c.source]);
+    groups_all.push_back(groups[c.source]);
+  }
   std::vector<double> c_grid = settings.c_grid;
-  if (settings.large_set > 0 && items.size() > settings.large_set) {
+  if (settings.large_set > 0 && instances.size() > settings.large_set) {
     std::erase_if(c_grid, [](double c) { return c > 1.0; });
     if (c_grid.empty()) c_grid = {1.0};
   }
   double best_auc = -1.0;
+  std::vector<double> margins_all;  // out of fold, every instance, at the chosen C
   for (double c : c_grid) {
-    std::vector<double> margins(items.size(), 0.0);
+    std::vector<double> margins(instances.size(), 0.0);
     for (int f = 0; f < k; ++f) {
       std::vector<size_t> train, test;
-      for (size_t i = 0; i < items.size(); ++i) (cv.fold[i] == f ? test : train).push_back(i);
+      for (size_t i = 0; i < instances.size(); ++i) (fold_all[i] == f ? test : train).push_back(i);
       if (test.empty()) continue;
-      auto m = fit_and_score(items, *columns, train, test, c);
+      auto m = fit_and_score(instances, *columns, train, test, c);
       if (!m) {
         return make_error(m.error().code, "fold " + std::to_string(f + 1) + " of " + std::to_string(k) +
                                               ": " + m.error().message +
@@ -262,28 +280,36 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
       }
       for (size_t r = 0; r < test.size(); ++r) margins[test[r]] = (*m)[r];
     }
-    const double auc = roc_auc(margins, labels);
+    // C is chosen on the images as they are; the copies only add training instances.
+    const std::vector<double> image_margins(margins.begin(), margins.begin() + static_cast<std::ptrdiff_t>(n));
+    const double auc = roc_auc(image_margins, labels);
     cv.auc_by_c.emplace_back(c, auc);
     if (auc > best_auc + 1e-9) {  // ties keep the smaller C (stronger regularisation)
       best_auc = auc;
       cv.chosen_c = c;
-      cv.margins = margins;
+      cv.margins = image_margins;
+      margins_all = std::move(margins);
     }
   }
 
+  // Calibration and thresholds see the copies too: the promise then covers camera photos after the
+  // processing the copies simulate (the group bound keeps copies of one image from counting as
+  // independent evidence).
   Model& model = out.model;
-  model.calibration = fit_platt(cv.margins, labels);
-  for (double m : cv.margins) cv.probabilities.push_back(model.calibration.probability(m));
+  model.calibration = fit_platt(margins_all, labels_all);
+  std::vector<double> probabilities_all;
+  for (double m : margins_all) probabilities_all.push_back(model.calibration.probability(m));
+  cv.probabilities.assign(probabilities_all.begin(), probabilities_all.begin() + static_cast<std::ptrdiff_t>(n));
   model.training_prior = static_cast<double>(positives) / static_cast<double>(items.size());
 
   std::vector<double> generated_p;
-  for (size_t i = 0; i < items.size(); ++i) {
-    if (labels[i] == 1) generated_p.push_back(cv.probabilities[i]);
+  for (size_t i = 0; i < instances.size(); ++i) {
+    if (labels_all[i] == 1) generated_p.push_back(probabilities_all[i]);
   }
   model.thresholds.target_fpr = settings.target_fpr;
   model.thresholds.generated_miss = settings.generated_miss;
-  const auto [threshold, promise] =
-      promised_threshold(cv.probabilities, labels, groups, settings.target_fpr, settings.fpr_confidence);
+  const auto [threshold, promise] = promised_threshold(probabilities_all, labels_all, groups_all, settings.target_fpr,
+                                                       settings.fpr_confidence);
   model.thresholds.likely_generated = threshold;
   model.thresholds.promise = promise;
   std::sort(generated_p.begin(), generated_p.end());
@@ -298,9 +324,9 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   cv.report = evaluate_scores(cv.probabilities, labels, generators, model.thresholds.likely_generated);
 
   // Final model on everything.
-  const Matrix x = design_matrix(items, *columns, all);
+  const Matrix x = design_matrix(instances, *columns, all);
   model.scaler = Scaler::fit(x);
-  auto linear = train_linear_svm(model.scaler.apply(x), labels, balanced_settings(labels, cv.chosen_c));
+  auto linear = train_linear_svm(model.scaler.apply(x), labels_all, balanced_settings(labels_all, cv.chosen_c));
   if (!linear) return linear.error();
   model.linear = std::move(*linear);
 
@@ -317,6 +343,7 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   nlohmann::ordered_json per_generator = nlohmann::ordered_json::object();
   for (const auto& g : audit.generators) per_generator[g.name] = g.count;
   counts["per_generator"] = per_generator;
+  counts["augmented_copies"] = copies.size();
   nlohmann::ordered_json grid = nlohmann::ordered_json::array();
   for (const auto& [c, auc] : cv.auc_by_c) grid.push_back({{"c", c}, {"oof_roc_auc", auc}});
   std::vector<std::string> files;
@@ -335,7 +362,8 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
                         {"metrics", report_to_json(cv.report)}}},
                       {"training_files", files}};
   model.reference = training_reference(model, items, labels, cv);
-  model.applicability = fit_applicability(items, labels, cv.fold, k, model, settings.domain_coverage);
+  model.applicability =
+      fit_applicability(instances, labels_all, fold_all, k, model, settings.domain_coverage);
   stamp_model_id(model);
   return out;
 }

@@ -25,7 +25,9 @@ struct TransformInfo {
 // The everyday transforms, "as-published" (the file unchanged) first.
 const std::vector<TransformInfo>& everyday_transforms();
 
-// Applies a named transform to a file's bytes; kUnsupported for an unknown name.
+// Applies a named transform to a file's bytes; kUnsupported for an unknown name. Besides the
+// everyday names, parametrised ones: "jpeg-qN" and "webp-qN" (quality 1..100), "downscale-F"
+// (area filter, saved as PNG) and "crop-centre-F" (each side times F, saved as PNG), 0 < F < 1.
 Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> bytes,
                                                   const std::string& name, const DecodeLimits& limits = {});
 

@@ -10,6 +10,7 @@
 
 #include "residue/features/extract.hpp"
 #include "residue/features/metadata.hpp"
+#include "residue/training/augment.hpp"
 #include "residue/training/dataset.hpp"
 
 namespace residue {
@@ -36,10 +37,17 @@ struct PreparedItem {
   FileFacts facts;
   FeatureVector features;
   bool from_cache = false;
+  // Augmented copies (augment.hpp): the transform applied, and the index of the original in
+  // PrepareReport::items. Empty and 0 for the files themselves.
+  std::string augmentation;
+  size_t source = 0;
 };
 
 struct PrepareReport {
   std::vector<PreparedItem> items;                     // in dataset order, failures left out
+  std::vector<PreparedItem> copies;                    // augmented copies of the items, if asked
+  size_t copies_extracted = 0;                         // copies not found in the cache
+  size_t copies_failed = 0;                            // copies that could not be made or extracted
   std::vector<std::pair<LabelledFile, Error>> failed;  // unreadable or undecodable files
   size_t extracted = 0;
   size_t cached = 0;
@@ -56,7 +64,9 @@ using ProgressFn = std::function<void(size_t done, size_t total)>;
 
 // Extracts with `jobs` threads. With a cache, files whose content hash and extractor version are
 // already stored are not decoded again, and new extractions are stored.
+// With `augment`, each file's copies (augment.hpp) are made and extracted too, cached under
+// (file hash, transform).
 PrepareReport prepare_dataset(const Dataset& dataset, const ExtractOptions& options, FeatureCache* cache,
-                              int jobs, const ProgressFn& progress = {});
+                              int jobs, const ProgressFn& progress = {}, Augment augment = Augment::kNone);
 
 }  // namespace residue

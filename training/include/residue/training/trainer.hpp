@@ -7,6 +7,7 @@
 #include <vector>
 
 #include "residue/training/audit.hpp"
+#include "residue/training/augment.hpp"
 #include "residue/training/evaluation.hpp"
 #include "residue/training/groups.hpp"
 #include "residue/training/model.hpp"
@@ -26,6 +27,7 @@ struct TrainSettings {
   double generated_miss = 0.05;  // on generated images, for the likely-camera threshold
   GroupBy group_by = GroupBy::kDuplicates;
   std::vector<std::string> feature_prefixes;  // empty: every feature
+  Augment augment = Augment::kFull;            // what prepare_dataset was asked for (recorded)
 };
 
 struct CrossValidation {
@@ -56,7 +58,10 @@ std::string training_file_key(const std::string& sha256);
 // class and generator, and generators new to the model. Needs the parent's "training_files".
 nlohmann::ordered_json lineage_of(const Model& parent, const std::vector<PreparedItem>& items);
 
+// `copies`: augmented copies of `items` (PrepareReport::copies); they are training instances in
+// their image's fold, and calibration and thresholds see them, but C is chosen and the reported
+// out-of-fold metrics are computed on the images themselves.
 Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const TrainSettings& settings,
-                                 const AuditReport& audit);
+                                 const AuditReport& audit, const std::vector<PreparedItem>& copies = {});
 
 }  // namespace residue
