@@ -22,6 +22,7 @@ struct TrainArgs {
   std::string group_by = "duplicates";
   std::vector<std::string> only;
   std::string augment = "full";
+  std::string instances = "windows";
   std::string from;  // parent model whose settings are reused
   bool keep_c = false;
   std::vector<std::string> given;  // options set on the command line (they win over --from)
@@ -55,6 +56,7 @@ std::optional<TrainSettings> resolve_settings(const TrainArgs& args, const std::
   s.group_by = parse_group_by(args.group_by);
   s.feature_prefixes = args.only;
   s.augment = *parse_augment(args.augment);  // CLI checks the choice
+  s.window_instances = args.instances == "windows";
   if (given(args, "--c-grid")) s.large_set = 0;  // the user's grid is used as given
   if (!parent) return s;
   TrainSettings p = settings_from_model(*parent);
@@ -68,6 +70,7 @@ std::optional<TrainSettings> resolve_settings(const TrainArgs& args, const std::
   if (given(args, "--group-by")) p.group_by = s.group_by;
   if (given(args, "--only")) p.feature_prefixes = s.feature_prefixes;
   if (given(args, "--augment")) p.augment = s.augment;
+  if (given(args, "--instances")) p.window_instances = s.window_instances;
   if (args.keep_c) {
     const auto cv = parent->provenance.value("cross_validation", nlohmann::json::object());
     if (!cv.contains("chosen_c")) {
@@ -148,6 +151,10 @@ int run_train(TrainArgs& args) {
   for (const auto& [c, auc] : cv.auc_by_c) {
     std::printf("  C = %-7g out-of-fold ROC AUC %.3f%s\n", c, auc, c == cv.chosen_c ? "   <- chosen" : "");
   }
+  if (model.instances == "windows") {
+    std::cout << "Learned from every analysis window; an image's margin is the " << model.pooling
+              << " of its windows' margins.\n";
+  }
   std::cout << "\nOut-of-fold metrics (images scored by models that never saw them or their group):\n"
             << report_to_text(cv.report);
   std::printf(
@@ -222,6 +229,11 @@ void add_train_command(CLI::App& app, int& exit_code) {
                   "plus a lossy WebP (65-95) and a centre crop (0.5-0.9)")
       ->check(CLI::IsMember({"none", "light", "full"}))
       ->capture_default_str();
+  cmd->add_option("--instances", args->instances,
+                  "what the SVM learns from: image (one pooled vector per image) or windows (every analysis "
+                  "window, margins pooled per image by the mean or the top third, chosen out of fold)")
+      ->check(CLI::IsMember({"image", "windows"}))
+      ->capture_default_str();
   cmd->add_option("--from", args->from,
                   "retrain from this model: reuse its settings (options given here win) and record it as "
                   "the parent, with what was added");
@@ -230,7 +242,7 @@ void add_train_command(CLI::App& app, int& exit_code) {
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");
   cmd->callback([args, cmd, &exit_code] {
     for (const char* option :
-         {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by", "--only", "--augment"}) {
+         {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by", "--only", "--augment", "--instances"}) {
       if (cmd->count(option) > 0) args->given.emplace_back(option);
     }
     exit_code = run_train(*args);

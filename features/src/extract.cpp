@@ -92,16 +92,20 @@ FeatureVector extract_tiles(const std::vector<Tile>& tiles, FamilyTimings* timin
 
   FeatureVector out;
   out.values.reserve(feature_names().size());
+  out.windows.assign(inputs.size(), {});
+  for (auto& w : out.windows) w.reserve(feature_names().size());
   for (const auto& family : kFamilies) {
     const auto start = Clock::now();
     const auto& names = family.names();
     std::vector<double> mean(names.size(), 0.0);
     std::vector<double> max(names.size(), -1e300);
-    for (const auto& input : inputs) {
-      const auto values = family.window(input);
+    for (size_t w = 0; w < inputs.size(); ++w) {
+      const auto values = family.window(inputs[w]);
       for (size_t i = 0; i < values.size(); ++i) {
         mean[i] += values[i] / static_cast<double>(inputs.size());
         max[i] = std::max(max[i], values[i]);
+        out.windows[w].push_back(values[i]);
+        if (is_peak(names[i])) out.windows[w].push_back(values[i]);  // a window's mean and max are its value
       }
     }
     for (size_t i = 0; i < names.size(); ++i) {

@@ -97,8 +97,11 @@ with tempfile.TemporaryDirectory() as tmp:
     rows = {row["row"]: row for row in c["rows"]}
     check(not c["new_no_worse"], "JSON: NEW is not 'no worse'")
     check(rows["sim-bilinear"]["verdict"] == "worse", "the sim-bilinear row is worse")
-    check(rows["sim-bilinear"]["metrics"]["tpr"]["new"] < rows["sim-bilinear"]["metrics"]["tpr"]["old"],
-          "NEW flags fewer sim-bilinear images")
+    # With the richer traces a model that never saw sim-bilinear may still catch all of it; what
+    # gets worse is then its calibration there. Some metric of the row must say worse.
+    bl = rows["sim-bilinear"]["metrics"]
+    worse = [name for name, m in bl.items() if m["verdict"] == "worse"]
+    check(worse and all(bl[n]["new"] != bl[n]["old"] for n in worse), f"a sim-bilinear metric is worse: {worse}")
     check(rows["sim-tconv"]["verdict"] != "worse", "the sim-tconv row is not worse")
     lo, hi = rows["all"]["metrics"]["roc_auc"]["interval"]
     check(lo <= rows["all"]["metrics"]["roc_auc"]["change"] <= hi, "the interval holds the change")

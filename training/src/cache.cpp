@@ -56,6 +56,9 @@ FileFacts facts_from_json(const nlohmann::json& j) {
   return f;
 }
 
+// The key's version part: extractor, schema and the blob layout ("w": with the window vectors).
+std::string cache_version() { return std::string(kExtractorVersion) + "/" + feature_schema_id() + "/w"; }
+
 struct Statement {
   sqlite3_stmt* stmt = nullptr;
   ~Statement() { sqlite3_finalize(stmt); }
@@ -97,7 +100,7 @@ std::optional<FeatureCache::Entry> FeatureCache::find(const std::string& sha256)
   Statement s;
   sqlite3_prepare_v2(db_, "SELECT facts, features FROM vectors WHERE sha256 = ?1 AND extractor = ?2", -1,
                      &s.stmt, nullptr);
-  const std::string version = std::string(kExtractorVersion) + "/" + feature_schema_id();
+  const std::string version = cache_version();
   sqlite3_bind_text(s.stmt, 1, sha256.c_str(), -1, SQLITE_TRANSIENT);
   sqlite3_bind_text(s.stmt, 2, version.c_str(), -1, SQLITE_TRANSIENT);
   if (sqlite3_step(s.stmt) != SQLITE_ROW) return std::nullopt;
@@ -108,10 +111,16 @@ std::optional<FeatureCache::Entry> FeatureCache::find(const std::string& sha256)
   } catch (const std::exception&) {
     return std::nullopt;  // a damaged row is re-extracted
   }
+  // The blob: the image's vector, then each window's vector (extract.hpp), doubles.
   const auto bytes = static_cast<size_t>(sqlite3_column_bytes(s.stmt, 1));
-  if (bytes != feature_names().size() * sizeof(double)) return std::nullopt;
+  const size_t row = feature_names().size() * sizeof(double);
+  if (bytes < row || bytes % row != 0) return std::nullopt;
+  const auto* blob = static_cast<const char*>(sqlite3_column_blob(s.stmt, 1));
   e.features.values.resize(feature_names().size());
-  std::memcpy(e.features.values.data(), sqlite3_column_blob(s.stmt, 1), bytes);
+  std::memcpy(e.features.values.data(), blob, row);
+  e.features.windows.assign(bytes / row - 1, std::vector<double>(feature_names().size()));
+  for (size_t w = 0; w < e.features.windows.size(); ++w)
+    std::memcpy(e.features.windows[w].data(), blob + (w + 1) * row, row);
   return e;
 }
 
@@ -121,13 +130,16 @@ Result<bool> FeatureCache::store(const std::string& sha256, const Entry& entry) 
   sqlite3_prepare_v2(
       db_, "INSERT OR REPLACE INTO vectors (sha256, extractor, facts, features) VALUES (?1, ?2, ?3, ?4)", -1,
       &s.stmt, nullptr);
-  const std::string version = std::string(kExtractorVersion) + "/" + feature_schema_id();
+  const std::string version = cache_version();
   const std::string facts = facts_to_json(entry.facts).dump();
   sqlite3_bind_text(s.stmt, 1, sha256.c_str(), -1, SQLITE_TRANSIENT);
   sqlite3_bind_text(s.stmt, 2, version.c_str(), -1, SQLITE_TRANSIENT);
   sqlite3_bind_text(s.stmt, 3, facts.c_str(), -1, SQLITE_TRANSIENT);
-  sqlite3_bind_blob(s.stmt, 4, entry.features.values.data(),
-                    static_cast<int>(entry.features.values.size() * sizeof(double)), SQLITE_TRANSIENT);
+  std::vector<double> blob = entry.features.values;
+  for (const auto& w : entry.features.windows) {
+    if (w.size() == entry.features.values.size()) blob.insert(blob.end(), w.begin(), w.end());
+  }
+  sqlite3_bind_blob(s.stmt, 4, blob.data(), static_cast<int>(blob.size() * sizeof(double)), SQLITE_TRANSIENT);
   if (sqlite3_step(s.stmt) != SQLITE_DONE) {
     return make_error(ErrorCode::kInternal,
                       std::string("feature cache write failed: ") + sqlite3_errmsg(db_));
@@ -139,7 +151,7 @@ size_t FeatureCache::size() {
   std::lock_guard lock(mutex_);
   Statement s;
   sqlite3_prepare_v2(db_, "SELECT COUNT(*) FROM vectors WHERE extractor = ?1", -1, &s.stmt, nullptr);
-  const std::string version = std::string(kExtractorVersion) + "/" + feature_schema_id();
+  const std::string version = cache_version();
   sqlite3_bind_text(s.stmt, 1, version.c_str(), -1, SQLITE_TRANSIENT);
   return sqlite3_step(s.stmt) == SQLITE_ROW ? static_cast<size_t>(sqlite3_column_int64(s.stmt, 0)) : 0;
 }

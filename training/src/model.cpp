@@ -43,16 +43,53 @@ std::string promise_text(const Thresholds& t) {
          " more independent camera groups (none scored as generated) are needed";
 }
 
+double pooled_margin(const std::vector<double>& window_margins, const std::string& pooling,
+                     std::vector<size_t>* chosen) {
+  std::vector<size_t> order(window_margins.size());
+  for (size_t i = 0; i < order.size(); ++i) order[i] = i;
+  size_t keep = order.size();
+  if (pooling == "top-third") {
+    keep = std::max<size_t>(1, (order.size() + 2) / 3);
+    std::stable_sort(order.begin(), order.end(),
+                     [&](size_t a, size_t b) { return window_margins[a] > window_margins[b]; });
+    order.resize(keep);
+  }
+  double sum = 0.0;
+  for (size_t i : order) sum += window_margins[i];
+  if (chosen != nullptr) *chosen = order;
+  return keep > 0 ? sum / static_cast<double>(keep) : 0.0;
+}
+
 Score score(const Model& model, const FeatureVector& features, std::optional<double> prior,
             const ProcessingEvidence* processing, const Thresholds* thresholds) {
   Score s;
   s.margin = model.linear.bias;
   std::map<std::string, int> members;
   std::vector<double> zs(model.feature_index.size());
+  // The vector the linear part sees: the image's, or the mean of the windows the pooling chose
+  // (the margin is linear, so the mean of their margins is the margin of their mean).
+  std::vector<double> pooled;
+  if (model.instances == "windows" && !features.windows.empty()) {
+    std::vector<double> margins;
+    for (const auto& w : features.windows) {
+      double m = model.linear.bias;
+      for (size_t k = 0; k < model.feature_index.size(); ++k)
+        m += model.linear.weights[k] * (w[model.feature_index[k]] - model.scaler.mean[k]) / model.scaler.scale[k];
+      margins.push_back(m);
+    }
+    std::vector<size_t> chosen;
+    (void)pooled_margin(margins, model.pooling, &chosen);
+    pooled.assign(model.feature_index.size(), 0.0);
+    for (size_t i : chosen) {
+      for (size_t k = 0; k < model.feature_index.size(); ++k)
+        pooled[k] += features.windows[i][model.feature_index[k]] / static_cast<double>(chosen.size());
+    }
+  }
   for (size_t k = 0; k < model.feature_index.size(); ++k) {
     const double z = (features.values[model.feature_index[k]] - model.scaler.mean[k]) / model.scaler.scale[k];
     zs[k] = z;
-    const double c = model.linear.weights[k] * z;
+    const double zl = pooled.empty() ? z : (pooled[k] - model.scaler.mean[k]) / model.scaler.scale[k];
+    const double c = model.linear.weights[k] * zl;
     s.margin += c;
     s.contributions[model.families[k]] += c;
     s.distances[model.families[k]] += z * z;
@@ -106,6 +143,7 @@ nlohmann::ordered_json model_to_json(const Model& m) {
       {"extractor_version", m.extractor_version}, {"schema_id", m.schema_id}, {"features", m.features}};
   j["scaler"] = {{"mean", m.scaler.mean}, {"scale", m.scaler.scale}};
   j["linear"] = {{"weights", m.linear.weights}, {"bias", m.linear.bias}};
+  j["learning"] = {{"instances", m.instances}, {"pooling", m.pooling}};
   j["calibration"] = {{"method", "platt-lin-lin-weng-2007"},
                       {"a", m.calibration.a},
                       {"b", m.calibration.b},
@@ -166,6 +204,12 @@ Result<Model> model_from_json(const nlohmann::json& j) {
     m.scaler.scale = j.at("scaler").at("scale").get<std::vector<double>>();
     m.linear.weights = j.at("linear").at("weights").get<std::vector<double>>();
     m.linear.bias = j.at("linear").at("bias");
+    if (j.contains("learning")) {  // absent in models from before window-level learning: image-level
+      m.instances = j["learning"].value("instances", std::string("image"));
+      m.pooling = j["learning"].value("pooling", std::string());
+      if (m.instances != "image" && m.instances != "windows")
+        return make_error(ErrorCode::kCorrupt, "model's learning.instances is neither image nor windows");
+    }
     m.calibration.a = j.at("calibration").at("a");
     m.calibration.b = j.at("calibration").at("b");
     m.training_prior = j.at("calibration").at("training_prior");

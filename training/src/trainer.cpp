@@ -16,15 +16,6 @@ namespace {
 // The training instances: the images, then their augmented copies.
 using Instances = std::vector<const PreparedItem*>;
 
-Matrix design_matrix(const Instances& items, const std::vector<size_t>& columns, const std::vector<size_t>& rows) {
-  Matrix x{rows.size(), columns.size(), std::vector<double>(rows.size() * columns.size())};
-  for (size_t r = 0; r < rows.size(); ++r) {
-    const auto& v = items[rows[r]]->features.values;
-    for (size_t c = 0; c < columns.size(); ++c) x.row(r)[c] = v[columns[c]];
-  }
-  return x;
-}
-
 std::vector<int> labels_of(const Instances& items, const std::vector<size_t>& rows) {
   std::vector<int> y;
   y.reserve(rows.size());
@@ -32,24 +23,64 @@ std::vector<int> labels_of(const Instances& items, const std::vector<size_t>& ro
   return y;
 }
 
-// Scaler + SVM on the given rows; margins for `test` rows.
-Result<std::vector<double>> fit_and_score(const Instances& items,
-                                          const std::vector<size_t>& columns,
-                                          const std::vector<size_t>& train, const std::vector<size_t>& test,
-                                          double c) {
-  const Matrix x = design_matrix(items, columns, train);
-  const auto y = labels_of(items, train);
-  const Scaler scaler = Scaler::fit(x);
-  auto model = train_linear_svm(scaler.apply(x), y, balanced_settings(y, c));
-  if (!model) return model.error();
-  std::vector<double> margins;
-  std::vector<double> z(columns.size());
-  const Matrix xt = design_matrix(items, columns, test);
-  for (size_t r = 0; r < test.size(); ++r) {
-    scaler.apply_row(xt.row(r), z.data());
-    margins.push_back(model->margin(z.data()));
+// The vectors an instance contributes to training: its own, or (window-level) up to `cap` of its
+// windows, evenly spaced (an instance without window vectors gives its own).
+std::vector<const std::vector<double>*> training_rows(const PreparedItem& item, bool windows, size_t cap) {
+  const auto& w = item.features.windows;
+  if (!windows || w.empty()) return {&item.features.values};
+  std::vector<const std::vector<double>*> rows;
+  const size_t keep = std::min(cap, w.size());
+  for (size_t i = 0; i < keep; ++i) rows.push_back(&w[i * w.size() / keep]);
+  return rows;
+}
+
+struct Fitted {
+  Scaler scaler;
+  LinearModel linear;
+};
+
+// Scaler + SVM on the instances `rows` (each giving its training rows).
+Result<Fitted> fit_rows(const Instances& items, const std::vector<size_t>& columns, const std::vector<size_t>& rows,
+                        double c, const TrainSettings& settings) {
+  std::vector<const std::vector<double>*> vectors;
+  std::vector<int> y;
+  for (size_t r : rows) {
+    for (const auto* v : training_rows(*items[r], settings.window_instances, settings.windows_per_image)) {
+      vectors.push_back(v);
+      y.push_back(items[r]->file.label == Label::kGenerated ? 1 : 0);
+    }
   }
-  return margins;
+  Matrix x{vectors.size(), columns.size(), std::vector<double>(vectors.size() * columns.size())};
+  for (size_t r = 0; r < vectors.size(); ++r) {
+    for (size_t k = 0; k < columns.size(); ++k) x.row(r)[k] = (*vectors[r])[columns[k]];
+  }
+  Fitted f;
+  f.scaler = Scaler::fit(x);
+  auto model = train_linear_svm(f.scaler.apply(x), y, balanced_settings(y, c));
+  if (!model) return model.error();
+  f.linear = std::move(*model);
+  return f;
+}
+
+// An instance's margin under each pooling of kPoolings (image-level: its vector's margin, twice).
+const char* const kPoolings[] = {"mean", "top-third"};
+
+std::array<double, 2> pooled_margins(const Fitted& f, const PreparedItem& item, const std::vector<size_t>& columns,
+                                     bool windows) {
+  std::vector<double> raw(columns.size());
+  std::vector<double> z(columns.size());
+  auto margin = [&](const std::vector<double>& v) {
+    for (size_t k = 0; k < columns.size(); ++k) raw[k] = v[columns[k]];
+    f.scaler.apply_row(raw.data(), z.data());
+    return f.linear.margin(z.data());
+  };
+  if (!windows || item.features.windows.empty()) {
+    const double m = margin(item.features.values);
+    return {m, m};
+  }
+  std::vector<double> margins;
+  for (const auto& w : item.features.windows) margins.push_back(margin(w));
+  return {pooled_margin(margins, kPoolings[0]), pooled_margin(margins, kPoolings[1])};
 }
 
 const char* const kGroupNames[] = {"duplicates", "folder", "manifest"};
@@ -95,8 +126,11 @@ Applicability fit_applicability(const Instances& items, const std::vector<int>& 
     a.families.push_back(fit_family_reference(family, cols, z));
     a.families.back().limit = limits[k++];
   }
-  for (size_t i = 0; i < items.size(); ++i)
-    (labels[i] == 1 ? a.generated : a.camera) += items[i]->facts.processing;
+  // The processing profile is the originals': processing that only augmented copies showed does
+  // not count as seen, so the guards of check_domain stay (false positives are the worse error).
+  for (size_t i = 0; i < items.size(); ++i) {
+    if (items[i]->augmentation.empty()) (labels[i] == 1 ? a.generated : a.camera) += items[i]->facts.processing;
+  }
   return a;
 }
 
@@ -153,6 +187,8 @@ nlohmann::ordered_json settings_to_json(const TrainSettings& s) {
           {"domain_coverage", s.domain_coverage},
           {"group_by", kGroupNames[static_cast<int>(s.group_by)]},
           {"augment", augment_name(s.augment)},
+          {"instances", s.window_instances ? "windows" : "image"},
+          {"windows_per_image", s.windows_per_image},
           {"only", s.feature_prefixes}};
 }
 
@@ -178,6 +214,8 @@ TrainSettings settings_from_model(const Model& model) {
     s.feature_prefixes = j.value("only", s.feature_prefixes);
     // Models from before augmentation existed were trained without it.
     s.augment = parse_augment(j.value("augment", std::string("none"))).value_or(Augment::kNone);
+    s.window_instances = j.value("instances", std::string("image")) == "windows";
+    s.windows_per_image = j.value("windows_per_image", s.windows_per_image);
   }
   for (int g = 0; g < 3; ++g) {
     if (group_by == kGroupNames[g]) s.group_by = static_cast<GroupBy>(g);
@@ -265,31 +303,42 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
     if (c_grid.empty()) c_grid = {1.0};
   }
   double best_auc = -1.0;
-  std::vector<double> margins_all;  // out of fold, every instance, at the chosen C
+  std::vector<double> margins_all;  // out of fold, every instance, at the chosen C and pooling
+  const bool windows = settings.window_instances;
   for (double c : c_grid) {
-    std::vector<double> margins(instances.size(), 0.0);
+    std::vector<std::vector<double>> margins(2, std::vector<double>(instances.size(), 0.0));
     for (int f = 0; f < k; ++f) {
       std::vector<size_t> train, test;
       for (size_t i = 0; i < instances.size(); ++i) (fold_all[i] == f ? test : train).push_back(i);
       if (test.empty()) continue;
-      auto m = fit_and_score(instances, *columns, train, test, c);
-      if (!m) {
-        return make_error(m.error().code, "fold " + std::to_string(f + 1) + " of " + std::to_string(k) +
-                                              ": " + m.error().message +
-                                              " (too few images of one class in the other folds)");
+      auto fitted = fit_rows(instances, *columns, train, c, settings);
+      if (!fitted) {
+        return make_error(fitted.error().code, "fold " + std::to_string(f + 1) + " of " + std::to_string(k) +
+                                                   ": " + fitted.error().message +
+                                                   " (too few images of one class in the other folds)");
       }
-      for (size_t r = 0; r < test.size(); ++r) margins[test[r]] = (*m)[r];
+      for (size_t i : test) {
+        const auto m = pooled_margins(*fitted, *instances[i], *columns, windows);
+        margins[0][i] = m[0];
+        margins[1][i] = m[1];
+      }
     }
-    // C is chosen on the images as they are; the copies only add training instances.
-    const std::vector<double> image_margins(margins.begin(), margins.begin() + static_cast<std::ptrdiff_t>(n));
-    const double auc = roc_auc(image_margins, labels);
-    cv.auc_by_c.emplace_back(c, auc);
-    if (auc > best_auc + 1e-9) {  // ties keep the smaller C (stronger regularisation)
-      best_auc = auc;
-      cv.chosen_c = c;
-      cv.margins = image_margins;
-      margins_all = std::move(margins);
+    // C and the pooling are chosen on the images as they are; the copies only add training
+    // instances. Image-level learning has one margin (both entries equal): "mean" is kept.
+    double auc_c = -1.0;
+    for (int p = 0; p < (windows ? 2 : 1); ++p) {
+      const std::vector<double> image_margins(margins[p].begin(), margins[p].begin() + static_cast<std::ptrdiff_t>(n));
+      const double auc = roc_auc(image_margins, labels);
+      auc_c = std::max(auc_c, auc);
+      if (auc > best_auc + 1e-9) {  // ties keep the smaller C (stronger regularisation) and the mean
+        best_auc = auc;
+        cv.chosen_c = c;
+        cv.margins = image_margins;
+        margins_all = margins[p];
+        out.model.pooling = windows ? kPoolings[p] : "";
+      }
     }
+    cv.auc_by_c.emplace_back(c, auc_c);
   }
 
   // Calibration and thresholds see the copies too: the promise then covers camera photos after the
@@ -324,11 +373,11 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   cv.report = evaluate_scores(cv.probabilities, labels, generators, model.thresholds.likely_generated);
 
   // Final model on everything.
-  const Matrix x = design_matrix(instances, *columns, all);
-  model.scaler = Scaler::fit(x);
-  auto linear = train_linear_svm(model.scaler.apply(x), labels_all, balanced_settings(labels_all, cv.chosen_c));
-  if (!linear) return linear.error();
-  model.linear = std::move(*linear);
+  auto fitted = fit_rows(instances, *columns, all, cv.chosen_c, settings);
+  if (!fitted) return fitted.error();
+  model.scaler = std::move(fitted->scaler);
+  model.linear = std::move(fitted->linear);
+  model.instances = windows ? "windows" : "image";
 
   model.extractor_version = std::string(kExtractorVersion);
   model.schema_id = feature_schema_id();
@@ -359,6 +408,8 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
                         {"group_by", kGroupNames[static_cast<int>(settings.group_by)]},
                         {"c_grid", grid},
                         {"chosen_c", cv.chosen_c},
+                        {"instances", model.instances},
+                        {"pooling", model.pooling},
                         {"metrics", report_to_json(cv.report)}}},
                       {"training_files", files}};
   model.reference = training_reference(model, items, labels, cv);

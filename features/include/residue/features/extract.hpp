@@ -33,7 +33,10 @@ const std::string& feature_schema_id();
 const std::vector<std::string>& feature_families();
 
 struct FeatureVector {
-  std::vector<double> values;  // aligned with feature_names()
+  std::vector<double> values;  // aligned with feature_names(): the image's windows pooled
+  // Each analysis window's own vector in the same layout (a ".peak" value fills both its mean and
+  // max slots), for window-level learning and scoring. May be empty (vectors made elsewhere).
+  std::vector<std::vector<double>> windows;
 };
 
 struct ExtractOptions {

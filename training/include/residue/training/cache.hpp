@@ -1,5 +1,6 @@
 // Feature cache: an SQLite file keyed by (content SHA-256, extractor version), so a retrain
-// re-extracts only new or changed files. Thread-safe (one serialised connection).
+// re-extracts only new or changed files. Augmented copies are keyed "SHA-256:transform". Each row
+// holds the image's vector and its windows' vectors. Thread-safe (one serialised connection).
 #pragma once
 
 #include <filesystem>

@@ -48,6 +48,10 @@ struct Model {
   std::vector<size_t> feature_index;  // position of each used feature in the full vector
   Scaler scaler;
   LinearModel linear;
+  // Window-level models learn from each analysis window and pool the windows' margins into the
+  // image's: "mean" or "top-third" (the mean of the highest third). Image-level: "image", "".
+  std::string instances = "image";  // "image" or "windows"
+  std::string pooling;
   PlattSigmoid calibration;
   double training_prior = 0.5;  // share of generated images in the calibration data
   Thresholds thresholds;
@@ -66,7 +70,15 @@ struct Score {
   std::vector<std::string> reasons;
 };
 
-// Scores a vector. With `processing` (the file's evidence), processing the training data never
+// The image's margin from its windows' margins under a pooling ("mean" or "top-third"), and the
+// windows it averaged (indices).
+double pooled_margin(const std::vector<double>& window_margins, const std::string& pooling,
+                     std::vector<size_t>* chosen = nullptr);
+
+// Scores a vector. A window-level model pools its windows' margins (`features.windows`; without
+// them it scores the pooled vector, which equals mean pooling for every non-peak value); the
+// contributions are then those of the averaged windows, exactly. The applicability check always
+// looks at the image's vector. With `processing` (the file's evidence), processing the training data never
 // showed also makes the band "inconclusive". `thresholds` overrides the model's.
 Score score(const Model& model, const FeatureVector& features, std::optional<double> prior = std::nullopt,
             const ProcessingEvidence* processing = nullptr, const Thresholds* thresholds = nullptr);

@@ -28,11 +28,17 @@ struct TrainSettings {
   GroupBy group_by = GroupBy::kDuplicates;
   std::vector<std::string> feature_prefixes;  // empty: every feature
   Augment augment = Augment::kFull;            // what prepare_dataset was asked for (recorded)
+  // Window-level learning: every analysis window is a training instance (labelled and grouped as
+  // its image); an image's margin pools its windows' margins, by the mean or the mean of the top
+  // third, whichever ranks the out-of-fold images better. At most `windows_per_image` windows of
+  // each instance train (evenly spaced; memory), all of them are scored.
+  bool window_instances = true;
+  size_t windows_per_image = 4;
 };
 
 struct CrossValidation {
   double chosen_c = 1.0;
-  std::vector<std::pair<double, double>> auc_by_c;  // (C, pooled out-of-fold ROC AUC)
+  std::vector<std::pair<double, double>> auc_by_c;  // (C, out-of-fold ROC AUC, the better pooling)
   std::vector<int> fold;                            // fold of each example
   size_t groups = 0;
   std::vector<double> margins;        // out-of-fold, at the chosen C
