@@ -121,12 +121,13 @@ void bench_case(const Case& c, int repeats) {
   const double total = window_decode + families + processing;
   const auto windows = static_cast<double>(std::max<size_t>(1, decoded->layout.origins.size()));
   std::printf(
-      "%-22s %7.1f %8.1f %9.1f %6.1f %8.1f %7.1f %8.1f %7.1f %8.1f %7.1f %8.1f %8.2f  %5.2f  %2zu x %d px, %llu of "
+      "%-22s %7.1f %8.1f %9.1f %6.1f %8.1f %7.1f %8.1f %7.1f %8.1f %7.1f %8.1f %8.2f  %5.2f  %2zu x %d px, "
+      "%llu of "
       "%d rows decoded\n",
-      c.label.c_str(), full_decode, window_decode, spectral, noise, resampling, sensor, texture, coding, processing,
-      total, total / full_decode, families / windows, families > 0 ? families / window_decode : 0.0,
-      decoded->layout.origins.size(), decoded->layout.size, static_cast<unsigned long long>(decoded->decoded_rows),
-      decoded->header.height);
+      c.label.c_str(), full_decode, window_decode, spectral, noise, resampling, sensor, texture, coding,
+      processing, total, total / full_decode, families / windows,
+      families > 0 ? families / window_decode : 0.0, decoded->layout.origins.size(), decoded->layout.size,
+      static_cast<unsigned long long>(decoded->decoded_rows), decoded->header.height);
 }
 
 int run_bench(const BenchArgs& args) {
@@ -158,9 +159,9 @@ int run_bench(const BenchArgs& args) {
         .write(reinterpret_cast<const char*>(encoded->data()), static_cast<std::streamsize>(encoded->size()));
     cases.push_back({s.label, path});
   }
-  std::printf("%-22s %7s %8s %9s %6s %8s %7s %8s %7s %8s %7s %8s %8s  %5s\n", "image (ms)", "decode", "windows",
-              "spectral", "noise", "resampl", "sensor", "texture", "coding", "process", "total", "tot/dec",
-              "ms/win", "feat/dec");
+  std::printf("%-22s %7s %8s %9s %6s %8s %7s %8s %7s %8s %7s %8s %8s  %5s\n", "image (ms)", "decode",
+              "windows", "spectral", "noise", "resampl", "sensor", "texture", "coding", "process", "total",
+              "tot/dec", "ms/win", "feat/dec");
   for (const auto& c : cases) bench_case(c, args.repeats);
   std::printf(
       "\ndecode = whole image decoded; windows = only the analysis windows' pixels decoded;\n"

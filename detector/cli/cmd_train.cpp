@@ -223,10 +223,11 @@ void add_train_command(CLI::App& app, int& exit_code) {
   add_group_by_option(*cmd, args->group_by, "what must stay on one side of a split");
   cmd->add_option("--only", args->only,
                   "use only features whose names start with these prefixes (e.g. spectral.)");
-  cmd->add_option("--augment", args->augment,
-                  "also train on processed copies of every image, both classes alike (drawn from each file's "
-                  "hash, cached): none; light = a JPEG (quality 65-95) and a downscale (0.5-0.9); full = those "
-                  "plus a lossy WebP (65-95) and a centre crop (0.5-0.9)")
+  cmd->add_option(
+         "--augment", args->augment,
+         "also train on processed copies of every image, both classes alike (drawn from each file's "
+         "hash, cached): none; light = a JPEG (quality 65-95) and a downscale (0.5-0.9); full = those "
+         "plus a lossy WebP (65-95) and a centre crop (0.5-0.9)")
       ->check(CLI::IsMember({"none", "light", "full"}))
       ->capture_default_str();
   cmd->add_option("--instances", args->instances,
@@ -241,8 +242,8 @@ void add_train_command(CLI::App& app, int& exit_code) {
                 "with --from: keep the parent's chosen C instead of searching the grid again (faster)");
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");
   cmd->callback([args, cmd, &exit_code] {
-    for (const char* option :
-         {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by", "--only", "--augment", "--instances"}) {
+    for (const char* option : {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by",
+                               "--only", "--augment", "--instances"}) {
       if (cmd->count(option) > 0) args->given.emplace_back(option);
     }
     exit_code = run_train(*args);

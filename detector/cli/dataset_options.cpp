@@ -61,13 +61,12 @@ std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const 
   std::cerr << "residue " << command << ": " << out.report.items.size() << " images ready ("
             << out.report.extracted << " extracted, " << out.report.cached << " from the feature cache";
   if (args.augment != Augment::kNone) {
-    std::cerr << "; " << out.report.copies.size() << " augmented copies (" << augment_name(args.augment) << ", "
-              << out.report.copies_extracted << " extracted";
+    std::cerr << "; " << out.report.copies.size() << " augmented copies (" << augment_name(args.augment)
+              << ", " << out.report.copies_extracted << " extracted";
     if (out.report.copies_failed > 0) std::cerr << ", " << out.report.copies_failed << " could not be made";
     std::cerr << ")";
   }
-  std::cerr << ") in "
-            << static_cast<int>(out.report.seconds * 10) / 10.0 << " s";
+  std::cerr << ") in " << static_cast<int>(out.report.seconds * 10) / 10.0 << " s";
   if (out.report.cached > 0 && out.report.cached_extract_seconds > 0) {
     std::cerr << "; the cache saved about " << static_cast<int>(out.seconds_saved() * 10) / 10.0 << " s";
   }

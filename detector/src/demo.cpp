@@ -121,7 +121,8 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
   const AuditReport audit = audit_dataset(prepared.items, prepared.failed.size());
   log << audit_to_text(audit);
   if (audit.duplicate_pairs_across_classes > 0) {
-    log << "   (Expected here: the demo cuts camera and simulated pictures from the same few photographs, so\n"
+    log << "   (Expected here: the demo cuts camera and simulated pictures from the same few photographs, "
+           "so\n"
            "    some crops overlap across the classes. In real data, check such pairs.)\n";
   }
   auto trained = train_model(prepared.items, settings, audit, prepared.copies);

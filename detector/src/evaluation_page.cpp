@@ -118,7 +118,8 @@ std::string html_escape(const std::string& text) {
 
 std::string measurement_page_start(const std::string& title, const std::string& extra_css) {
   return "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>" + html_escape(title) +
-         "</title><style>body{font-family:sans-serif;max-width:1000px;margin:2em auto;color:#222;padding:0 1em}"
+         "</title><style>body{font-family:sans-serif;max-width:1000px;margin:2em auto;color:#222;padding:0 "
+         "1em}"
          ".advisory{border-left:5px solid #c0392b;background:#fbeeee;padding:.6em 1em}"
          "table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:.3em .6em;"
          "text-align:right}th{text-align:left;background:#f4f4f4}.plots{display:flex;flex-wrap:wrap;gap:2em}"

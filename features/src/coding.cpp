@@ -102,8 +102,8 @@ double coding_cost_bits(const std::vector<int>& samples, int n) {
 
 const std::vector<std::string>& coding_names() {
   static const std::vector<std::string> names = {
-      "coding.jpegls.bits_full",         "coding.jpegls.bits_half",        "coding.jpegls.bits_quarter",
-      "coding.jpegls.ratio_half_full",   "coding.jpegls.ratio_quarter_half",
+      "coding.jpegls.bits_full",       "coding.jpegls.bits_half",          "coding.jpegls.bits_quarter",
+      "coding.jpegls.ratio_half_full", "coding.jpegls.ratio_quarter_half",
   };
   return names;
 }

@@ -5,8 +5,8 @@
 #include <cstdint>
 #include <map>
 #include <mutex>
-#include <tuple>
 #include <numbers>
+#include <tuple>
 #include <utility>
 
 namespace residue {
@@ -159,11 +159,13 @@ long add_folded_tuples(const QuantisedPlane& q, int order, bool along_rows, std:
     }
     if (count > 0) tuples += count;
   }
-  for (size_t i = 0; i < raw.size(); ++i) histogram[static_cast<size_t>(index[i])] += static_cast<double>(raw[i]);
+  for (size_t i = 0; i < raw.size(); ++i)
+    histogram[static_cast<size_t>(index[i])] += static_cast<double>(raw[i]);
   return tuples;
 }
 
-long add_folded_pairs(const Plane& residual, double step, int t, bool along_rows, std::vector<double>& histogram) {
+long add_folded_pairs(const Plane& residual, double step, int t, bool along_rows,
+                      std::vector<double>& histogram) {
   return add_folded_tuples(quantise(residual, step, t), 2, along_rows, histogram);
 }
 
@@ -173,7 +175,8 @@ long add_cross_channel_triples(const QuantisedPlane& r, const QuantisedPlane& g,
   const size_t side = 2 * static_cast<size_t>(r.t) + 1;
   std::vector<std::uint32_t> raw(index.size(), 0);
   for (size_t i = 0; i < r.q.size(); ++i) ++raw[(r.q[i] * side + g.q[i]) * side + b.q[i]];
-  for (size_t i = 0; i < raw.size(); ++i) histogram[static_cast<size_t>(index[i])] += static_cast<double>(raw[i]);
+  for (size_t i = 0; i < raw.size(); ++i)
+    histogram[static_cast<size_t>(index[i])] += static_cast<double>(raw[i]);
   return static_cast<long>(r.q.size());
 }
 

@@ -163,7 +163,8 @@ std::vector<double> noise_window(const WindowInput& window) {
     if (!rich_kernel(k.name)) continue;
     std::vector<double> histogram(static_cast<size_t>(folded_tuple_classes(kCoocT, 3, false)), 0.0);
     long count = 0;
-    for (const Kernel& kernel : k.directional ? std::vector<Kernel>{k, k.transposed()} : std::vector<Kernel>{k}) {
+    for (const Kernel& kernel :
+         k.directional ? std::vector<Kernel>{k, k.transposed()} : std::vector<Kernel>{k}) {
       QuantisedPlane planes[3];
       for (int c = 0; c < 3; ++c) {
         const float* x = window.tile.plane(std::min(c, window.tile.channels - 1));

@@ -11,8 +11,8 @@ namespace residue {
 
 namespace {
 
-constexpr int kBlock = 8;           // block side, in filtered samples
-constexpr int kBinWidth = 16;       // intensity levels per bin
+constexpr int kBlock = 8;      // block side, in filtered samples
+constexpr int kBinWidth = 16;  // intensity levels per bin
 constexpr int kBins = 256 / kBinWidth;
 constexpr int kMinBlocksPerBin = 6;  // fewer blocks give no reliable median (our choice)
 constexpr double kTinyVariance = 1e-3;
@@ -38,7 +38,8 @@ NoiseLevelCurve noise_level_function(const float* plane, int n) {
       double level = 0.0;
       for (int y = 0; y < kBlock; ++y) {
         const float* rr = r.values.data() + static_cast<size_t>(by + y) * r.width + bx;
-        const float* px = plane + static_cast<size_t>(by + y + 1) * n + bx + 1;  // filtered (y, x) is pixel (y+1, x+1)
+        const float* px =
+            plane + static_cast<size_t>(by + y + 1) * n + bx + 1;  // filtered (y, x) is pixel (y+1, x+1)
         for (int x = 0; x < kBlock; ++x) {
           abs_sum += std::fabs(rr[x]);
           level += px[x];
@@ -130,11 +131,13 @@ std::vector<double> sensor_window(const WindowInput& window) {
         return static_cast<int>(mu) / kBinWidth == static_cast<int>(curves[0].intensity[i]) / kBinWidth;
       });
       all = it != k.intensity.end();
-      if (all) logs[c] = std::log10(k.variance[static_cast<size_t>(it - k.intensity.begin())] + kTinyVariance);
+      if (all)
+        logs[c] = std::log10(k.variance[static_cast<size_t>(it - k.intensity.begin())] + kTinyVariance);
     }
     if (!all) continue;
     const double mean = (logs[0] + logs[1] + logs[2]) / 3.0;
-    spread += std::sqrt((std::pow(logs[0] - mean, 2) + std::pow(logs[1] - mean, 2) + std::pow(logs[2] - mean, 2)) / 3.0);
+    spread += std::sqrt(
+        (std::pow(logs[0] - mean, 2) + std::pow(logs[1] - mean, 2) + std::pow(logs[2] - mean, 2)) / 3.0);
     ++common;
   }
   values.push_back(common > 0 ? spread / common : 0.0);

@@ -38,7 +38,8 @@ GroupStatistics group_statistics(const float* luma, int n, const std::vector<int
     const int y0 = (p / per_row) * kPatch;
     const int x0 = (p % per_row) * kPatch;
     for (int y = 0; y < kPatch; ++y)
-      std::copy_n(luma + static_cast<size_t>(y0 + y) * n + x0, kPatch, patch.data() + static_cast<size_t>(y) * kPatch);
+      std::copy_n(luma + static_cast<size_t>(y0 + y) * n + x0, kPatch,
+                  patch.data() + static_cast<size_t>(y) * kPatch);
     const Plane h = correlate_valid(patch.data(), kPatch, kPatch, k);
     const Plane v = correlate_valid(patch.data(), kPatch, kPatch, kt);
     sums.add(h.values);
@@ -94,7 +95,8 @@ const std::vector<std::string>& texture_names() {
     std::vector<std::string> v;
     const int classes = folded_pair_classes(kCoocT);
     for (const char* group : {"poor", "rich"}) {
-      for (int c = 0; c < classes; ++c) v.push_back(std::string("texture.") + group + ".cooc_o2.c" + std::to_string(c));
+      for (int c = 0; c < classes; ++c)
+        v.push_back(std::string("texture.") + group + ".cooc_o2.c" + std::to_string(c));
       v.push_back(std::string("texture.") + group + ".log_variance");
       v.push_back(std::string("texture.") + group + ".log_kurtosis");
     }

@@ -67,6 +67,23 @@ with tempfile.TemporaryDirectory() as tmp:
     check(0.0 <= cv["ece"] <= 0.15, f"cross-validated ECE in range, got {cv['ece']}")
     check(m["provenance"]["counts"]["per_generator"] == {"sim-bilinear": 20, "sim-tconv": 20}, "counts per generator")
     check(0 < m["thresholds"]["likely_camera"] <= m["thresholds"]["likely_generated"] <= 1, "thresholds ordered")
+    settings = m["provenance"]["settings"]
+    check(settings["augment"] == "full" and settings["instances"] == "windows", f"defaults recorded: {settings}")
+    check(m["learning"]["instances"] == "windows" and m["learning"]["pooling"] in ("mean", "top-third"),
+          f"window-level learning and its pooling recorded: {m['learning']}")
+    check(m["provenance"]["counts"]["augmented_copies"] == 4 * 80, "four augmented copies per image")
+    check("320 augmented copies (full, " in strict.stderr + trained.stderr, f"train reports the copies: {trained.stderr[-300:]}")
+    check("320 augmented copies (full, 320 extracted)" in strict.stderr, "the first run extracts the copies")
+    again = run(["train", train, "-o", os.path.join(tmp, "again.json"), "--cache", cache])
+    check("320 augmented copies (full, 0 extracted)" in again.stderr, "copies come from the cache the second time")
+    plain = run(["train", train, "-o", os.path.join(tmp, "plain.json"), "--cache", cache, "--augment", "none",
+                 "--instances", "image"])
+    with open(os.path.join(tmp, "plain.json")) as f:
+        p = json.load(f)
+    check(plain.returncode == 0 and p["learning"]["instances"] == "image"
+          and p["provenance"]["counts"]["augmented_copies"] == 0, "--augment none --instances image trains as before")
+    check(run(["train", train, "-o", os.path.join(tmp, "x.json"), "--augment", "heavy"]).returncode == 2,
+          "an unknown augmentation is a usage error")
 
     page = os.path.join(tmp, "evaluation.html")
     evaluated = run(["evaluate", model, flip, "--cache", cache, "--json", "--html", page])

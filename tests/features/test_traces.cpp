@@ -175,8 +175,9 @@ TEST_CASE("higher-order co-occurrences equal a brute-force count (Fridrich & Kod
   test::write_floats(path, truncated(plane));
   for (int order : {2, 3, 4}) {
     CAPTURE(order);
-    const auto expected = test::numbers(test::python(
-        "traces_reference.py", {"tuples", path.string(), std::to_string(w), std::to_string(h), std::to_string(order)}));
+    const auto expected =
+        test::numbers(test::python("traces_reference.py", {"tuples", path.string(), std::to_string(w),
+                                                           std::to_string(h), std::to_string(order)}));
     std::vector<double> histogram(static_cast<size_t>(folded_tuple_classes(2, order, true)), 0.0);
     CHECK(add_folded_tuples(quantise(plane, 1.0, 2), order, true, histogram) == h * (w - order + 1));
     REQUIRE(expected.size() == histogram.size());
@@ -190,7 +191,8 @@ TEST_CASE("higher-order co-occurrences equal a brute-force count (Fridrich & Kod
   }
   const auto expected = test::numbers(test::python("traces_reference.py", args));
   std::vector<double> histogram(63, 0.0);
-  CHECK(add_cross_channel_triples(quantise(r, 1.0, 2), quantise(g, 1.0, 2), quantise(b, 1.0, 2), histogram) == w * h);
+  CHECK(add_cross_channel_triples(quantise(r, 1.0, 2), quantise(g, 1.0, 2), quantise(b, 1.0, 2), histogram) ==
+        w * h);
   REQUIRE(expected.size() == histogram.size());
   for (size_t i = 0; i < histogram.size(); ++i) CHECK(histogram[i] == expected[i]);
 }

@@ -24,7 +24,8 @@ std::string quality(const char* prefix, std::uint64_t bits) {
 
 std::string fraction(const char* prefix, std::uint64_t bits) {
   char buf[48];
-  std::snprintf(buf, sizeof buf, "%s%.2f", prefix, 0.5 + 0.01 * static_cast<double>(bits % 41));  // 0.50..0.90
+  std::snprintf(buf, sizeof buf, "%s%.2f", prefix,
+                0.5 + 0.01 * static_cast<double>(bits % 41));  // 0.50..0.90
   return buf;
 }
 

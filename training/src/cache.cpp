@@ -1,12 +1,12 @@
 // SQLite adapter for the feature cache.
 #include "residue/training/cache.hpp"
 
-#include "residue/training/applicability.hpp"
-
 #include <sqlite3.h>
 
 #include <cstring>
 #include <nlohmann/json.hpp>
+
+#include "residue/training/applicability.hpp"
 
 namespace residue {
 

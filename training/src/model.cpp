@@ -74,7 +74,8 @@ Score score(const Model& model, const FeatureVector& features, std::optional<dou
     for (const auto& w : features.windows) {
       double m = model.linear.bias;
       for (size_t k = 0; k < model.feature_index.size(); ++k)
-        m += model.linear.weights[k] * (w[model.feature_index[k]] - model.scaler.mean[k]) / model.scaler.scale[k];
+        m += model.linear.weights[k] * (w[model.feature_index[k]] - model.scaler.mean[k]) /
+             model.scaler.scale[k];
       margins.push_back(m);
     }
     std::vector<size_t> chosen;

@@ -79,7 +79,8 @@ Outcome prepare_one(const LabelledFile& file, const ExtractOptions& options, Fea
     }
     if (!copy) {
       auto processed = apply_transform(*bytes, transform, options.limits);
-      auto prepared = processed ? prepare_bytes(*processed, key, options, nullptr) : Result<PreparedItem>(processed.error());
+      auto prepared = processed ? prepare_bytes(*processed, key, options, nullptr)
+                                : Result<PreparedItem>(processed.error());
       if (!prepared) {
         ++out.copies_failed;  // e.g. a downscaled copy too small for a window: the image stays
         continue;

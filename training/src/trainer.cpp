@@ -40,8 +40,8 @@ struct Fitted {
 };
 
 // Scaler + SVM on the instances `rows` (each giving its training rows).
-Result<Fitted> fit_rows(const Instances& items, const std::vector<size_t>& columns, const std::vector<size_t>& rows,
-                        double c, const TrainSettings& settings) {
+Result<Fitted> fit_rows(const Instances& items, const std::vector<size_t>& columns,
+                        const std::vector<size_t>& rows, double c, const TrainSettings& settings) {
   std::vector<const std::vector<double>*> vectors;
   std::vector<int> y;
   for (size_t r : rows) {
@@ -65,8 +65,8 @@ Result<Fitted> fit_rows(const Instances& items, const std::vector<size_t>& colum
 // An instance's margin under each pooling of kPoolings (image-level: its vector's margin, twice).
 const char* const kPoolings[] = {"mean", "top-third"};
 
-std::array<double, 2> pooled_margins(const Fitted& f, const PreparedItem& item, const std::vector<size_t>& columns,
-                                     bool windows) {
+std::array<double, 2> pooled_margins(const Fitted& f, const PreparedItem& item,
+                                     const std::vector<size_t>& columns, bool windows) {
   std::vector<double> raw(columns.size());
   std::vector<double> z(columns.size());
   auto margin = [&](const std::vector<double>& v) {
@@ -129,7 +129,8 @@ Applicability fit_applicability(const Instances& items, const std::vector<int>& 
   // The processing profile is the originals': processing that only augmented copies showed does
   // not count as seen, so the guards of check_domain stay (false positives are the worse error).
   for (size_t i = 0; i < items.size(); ++i) {
-    if (items[i]->augmentation.empty()) (labels[i] == 1 ? a.generated : a.camera) += items[i]->facts.processing;
+    if (items[i]->augmentation.empty())
+      (labels[i] == 1 ? a.generated : a.camera) += items[i]->facts.processing;
   }
   return a;
 }
@@ -327,7 +328,8 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
     // instances. Image-level learning has one margin (both entries equal): "mean" is kept.
     double auc_c = -1.0;
     for (int p = 0; p < (windows ? 2 : 1); ++p) {
-      const std::vector<double> image_margins(margins[p].begin(), margins[p].begin() + static_cast<std::ptrdiff_t>(n));
+      const std::vector<double> image_margins(margins[p].begin(),
+                                              margins[p].begin() + static_cast<std::ptrdiff_t>(n));
       const double auc = roc_auc(image_margins, labels);
       auc_c = std::max(auc_c, auc);
       if (auc > best_auc + 1e-9) {  // ties keep the smaller C (stronger regularisation) and the mean
@@ -348,7 +350,8 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   model.calibration = fit_platt(margins_all, labels_all);
   std::vector<double> probabilities_all;
   for (double m : margins_all) probabilities_all.push_back(model.calibration.probability(m));
-  cv.probabilities.assign(probabilities_all.begin(), probabilities_all.begin() + static_cast<std::ptrdiff_t>(n));
+  cv.probabilities.assign(probabilities_all.begin(),
+                          probabilities_all.begin() + static_cast<std::ptrdiff_t>(n));
   model.training_prior = static_cast<double>(positives) / static_cast<double>(items.size());
 
   std::vector<double> generated_p;
@@ -357,8 +360,8 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   }
   model.thresholds.target_fpr = settings.target_fpr;
   model.thresholds.generated_miss = settings.generated_miss;
-  const auto [threshold, promise] = promised_threshold(probabilities_all, labels_all, groups_all, settings.target_fpr,
-                                                       settings.fpr_confidence);
+  const auto [threshold, promise] = promised_threshold(probabilities_all, labels_all, groups_all,
+                                                       settings.target_fpr, settings.fpr_confidence);
   model.thresholds.likely_generated = threshold;
   model.thresholds.promise = promise;
   std::sort(generated_p.begin(), generated_p.end());

@@ -127,7 +127,8 @@ NoiseLevelCurve noise_level_function(const float* plane, int n);
 double texture_diversity(const float* x, int stride, int size);
 // Indices of the (n / patch)^2 patches of an N x N plane (row-major), poorest texture first;
 // their diversities in `diversity` when given.
-std::vector<int> patches_by_texture(const float* luma, int n, int patch, std::vector<double>* diversity = nullptr);
+std::vector<int> patches_by_texture(const float* luma, int n, int patch,
+                                    std::vector<double>* diversity = nullptr);
 
 // JPEG-LS (ISO/IEC 14495-1, A.3-A.4) median edge detector: min(a, b) if c >= max(a, b),
 // max(a, b) if c <= min(a, b), else a + b - c (a west, b north, c north-west).

@@ -28,7 +28,7 @@ struct FileFacts {
   std::uint64_t dhash = 0;  // difference hash of the picture (near duplicates)
   DeclaredMetadata metadata;
   ProcessingEvidence processing;  // reported and profiled for the applicability check, never learned
-  double extract_ms = 0.0;  // one thread's time to decode, extract and read metadata (milliseconds)
+  double extract_ms = 0.0;        // one thread's time to decode, extract and read metadata (milliseconds)
 };
 
 struct PreparedItem {

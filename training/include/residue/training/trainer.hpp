@@ -24,10 +24,10 @@ struct TrainSettings {
   double target_fpr = 0.01;       // camera FPR the likely-generated threshold promises ...
   double fpr_confidence = 0.95;   // ... as an upper Clopper-Pearson bound at this confidence
   double domain_coverage = 0.99;  // share of training images (out of fold) inside the domain
-  double generated_miss = 0.05;  // on generated images, for the likely-camera threshold
+  double generated_miss = 0.05;   // on generated images, for the likely-camera threshold
   GroupBy group_by = GroupBy::kDuplicates;
   std::vector<std::string> feature_prefixes;  // empty: every feature
-  Augment augment = Augment::kFull;            // what prepare_dataset was asked for (recorded)
+  Augment augment = Augment::kFull;           // what prepare_dataset was asked for (recorded)
   // Window-level learning: every analysis window is a training instance (labelled and grouped as
   // its image); an image's margin pools its windows' margins, by the mean or the mean of the top
   // third, whichever ranks the out-of-fold images better. At most `windows_per_image` windows of
