@@ -28,12 +28,16 @@ struct BenchArgs {
   int batch = 24;
   std::string workdir;
   int training_size = 0;  // > 0: time training on this many simulated cached vectors instead
+  int training_copies = 4;   // simulated augmented copies per image (--augment full makes 4)
+  int training_windows = 4;  // simulated window vectors per instance (0: image-level learning)
 };
 
 // Training from cached vectors: `n` simulated feature vectors (two overlapping Gaussian clouds,
-// one per class, 20 % generated, in 50 simulated generator folders), grouped 5-fold CV over the
-// default C grid, Platt, thresholds and the final fit. Peak memory is the process's maximum RSS.
-int run_training_bench(int n) {
+// one per class, 20 % generated, in 50 simulated generator folders), each with `copies` augmented
+// copies and `windows` window vectors per instance (the vector plus noise), grouped 5-fold CV
+// over the default C grid (and both poolings), Platt, thresholds and the final fit. Peak memory is
+// the process's maximum RSS.
+int run_training_bench(int n, int copies, int windows) {
   std::mt19937 rng(17);
   std::normal_distribution<double> noise(0.0, 1.0);
   const size_t d = feature_names().size();
@@ -48,12 +52,33 @@ int run_training_bench(int n) {
     it.features.values.resize(d);
     for (size_t j = 0; j < d; ++j) it.features.values[j] = noise(rng) + (generated && j % 7 == 0 ? 0.4 : 0.0);
   }
+  auto jittered = [&](const std::vector<double>& v) {
+    std::vector<double> out(v);
+    for (double& x : out) x += 0.3 * noise(rng);
+    return out;
+  };
+  std::vector<PreparedItem> copy_items;
+  for (size_t i = 0; i < items.size(); ++i) {
+    for (int c = 0; c < copies; ++c) {
+      PreparedItem copy = items[i];
+      copy.features.values = jittered(items[i].features.values);
+      copy.augmentation = "simulated-" + std::to_string(c);
+      copy.source = i;
+      copy_items.push_back(std::move(copy));
+    }
+  }
+  for (auto* list : {&items, &copy_items}) {
+    for (auto& it : *list) {
+      for (int w = 0; w < windows; ++w) it.features.windows.push_back(jittered(it.features.values));
+    }
+  }
   const auto start = Clock::now();
   const AuditReport audit = audit_dataset(items, 0);
   const auto audited = Clock::now();
   TrainSettings settings;
-  settings.augment = Augment::kNone;  // the simulated vectors have no files to process
-  auto outcome = train_model(items, settings, audit);
+  settings.augment = Augment::kNone;  // the copies are simulated here, not made from files
+  settings.window_instances = windows > 0;
+  auto outcome = train_model(items, settings, audit, copy_items);
   const double train_s = std::chrono::duration<double>(Clock::now() - audited).count();
   rusage usage{};
   getrusage(RUSAGE_SELF, &usage);
@@ -62,10 +87,12 @@ int run_training_bench(int n) {
     return 1;
   }
   std::printf(
-      "training on %d cached vectors (%zu features, simulated): audit %.2f s, grouped 5-fold CV over %zu C "
-      "values + Platt + final fit %.1f s, peak memory %.0f MiB, chosen C %g, out-of-fold AUC %.3f\n",
-      n, d, std::chrono::duration<double>(audited - start).count(), TrainSettings{}.c_grid.size(), train_s,
-      usage.ru_maxrss / 1024.0, outcome->cv.chosen_c, outcome->cv.report.overall.roc_auc);
+      "training on %d cached vectors (%zu features, simulated) with %d copies each and %d windows per "
+      "instance (%s): audit %.2f s, grouped 5-fold CV over %zu C values + Platt + final fit %.1f s, peak memory "
+      "%.0f MiB, chosen C %g, out-of-fold AUC %.3f\n",
+      n, d, copies, windows, outcome->model.instances.c_str(), std::chrono::duration<double>(audited - start).count(),
+      TrainSettings{}.c_grid.size(), train_s, usage.ru_maxrss / 1024.0, outcome->cv.chosen_c,
+      outcome->cv.report.overall.roc_auc);
   return 0;
 }
 
@@ -131,7 +158,8 @@ void bench_case(const Case& c, int repeats) {
 }
 
 int run_bench(const BenchArgs& args) {
-  if (args.training_size > 0) return run_training_bench(args.training_size);
+  if (args.training_size > 0)
+    return run_training_bench(args.training_size, args.training_copies, args.training_windows);
   namespace fs = std::filesystem;
   const fs::path dir =
       args.workdir.empty() ? fs::temp_directory_path() / "residue-bench" : fs::path(args.workdir);
@@ -200,6 +228,13 @@ void add_bench_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--training-size", args->training_size,
                   "instead: time training on this many simulated cached feature vectors")
       ->check(CLI::Range(20, 1000000));
+  cmd->add_option("--training-copies", args->training_copies, "with --training-size: augmented copies per image")
+      ->check(CLI::Range(0, 16))
+      ->capture_default_str();
+  cmd->add_option("--training-windows", args->training_windows,
+                  "with --training-size: window vectors per instance (0: image-level learning)")
+      ->check(CLI::Range(0, 64))
+      ->capture_default_str();
   cmd->callback([args, &exit_code] { exit_code = run_bench(*args); });
 }
 
