@@ -27,7 +27,7 @@ struct BenchArgs {
   int repeats = 5;
   int batch = 24;
   std::string workdir;
-  int training_size = 0;  // > 0: time training on this many simulated cached vectors instead
+  int training_size = 0;     // > 0: time training on this many simulated cached vectors instead
   int training_copies = 4;   // simulated augmented copies per image (--augment full makes 4)
   int training_windows = 4;  // simulated window vectors per instance (0: image-level learning)
 };
@@ -88,11 +88,12 @@ int run_training_bench(int n, int copies, int windows) {
   }
   std::printf(
       "training on %d cached vectors (%zu features, simulated) with %d copies each and %d windows per "
-      "instance (%s): audit %.2f s, grouped 5-fold CV over %zu C values + Platt + final fit %.1f s, peak memory "
+      "instance (%s): audit %.2f s, grouped 5-fold CV over %zu C values + Platt + final fit %.1f s, peak "
+      "memory "
       "%.0f MiB, chosen C %g, out-of-fold AUC %.3f\n",
-      n, d, copies, windows, outcome->model.instances.c_str(), std::chrono::duration<double>(audited - start).count(),
-      TrainSettings{}.c_grid.size(), train_s, usage.ru_maxrss / 1024.0, outcome->cv.chosen_c,
-      outcome->cv.report.overall.roc_auc);
+      n, d, copies, windows, outcome->model.instances.c_str(),
+      std::chrono::duration<double>(audited - start).count(), TrainSettings{}.c_grid.size(), train_s,
+      usage.ru_maxrss / 1024.0, outcome->cv.chosen_c, outcome->cv.report.overall.roc_auc);
   return 0;
 }
 
@@ -228,7 +229,8 @@ void add_bench_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--training-size", args->training_size,
                   "instead: time training on this many simulated cached feature vectors")
       ->check(CLI::Range(20, 1000000));
-  cmd->add_option("--training-copies", args->training_copies, "with --training-size: augmented copies per image")
+  cmd->add_option("--training-copies", args->training_copies,
+                  "with --training-size: augmented copies per image")
       ->check(CLI::Range(0, 16))
       ->capture_default_str();
   cmd->add_option("--training-windows", args->training_windows,

@@ -22,7 +22,7 @@ struct TrainArgs {
   std::string group_by = "duplicates";
   std::vector<std::string> only;
   std::string augment = "full";
-  std::string instances = "windows";
+  std::string instances = "image";
   std::string from;  // parent model whose settings are reused
   bool keep_c = false;
   std::vector<std::string> given;  // options set on the command line (they win over --from)

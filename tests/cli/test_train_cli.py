@@ -68,20 +68,25 @@ with tempfile.TemporaryDirectory() as tmp:
     check(m["provenance"]["counts"]["per_generator"] == {"sim-bilinear": 20, "sim-tconv": 20}, "counts per generator")
     check(0 < m["thresholds"]["likely_camera"] <= m["thresholds"]["likely_generated"] <= 1, "thresholds ordered")
     settings = m["provenance"]["settings"]
-    check(settings["augment"] == "full" and settings["instances"] == "windows", f"defaults recorded: {settings}")
-    check(m["learning"]["instances"] == "windows" and m["learning"]["pooling"] in ("mean", "top-third"),
-          f"window-level learning and its pooling recorded: {m['learning']}")
+    check(settings["augment"] == "full" and settings["instances"] == "image", f"defaults recorded: {settings}")
+    check(m["learning"]["instances"] == "image", f"image-level learning recorded: {m['learning']}")
     check(m["provenance"]["counts"]["augmented_copies"] == 4 * 80, "four augmented copies per image")
     check("320 augmented copies (full, " in strict.stderr + trained.stderr, f"train reports the copies: {trained.stderr[-300:]}")
     check("320 augmented copies (full, 320 extracted)" in strict.stderr, "the first run extracts the copies")
     again = run(["train", train, "-o", os.path.join(tmp, "again.json"), "--cache", cache])
     check("320 augmented copies (full, 0 extracted)" in again.stderr, "copies come from the cache the second time")
-    plain = run(["train", train, "-o", os.path.join(tmp, "plain.json"), "--cache", cache, "--augment", "none",
-                 "--instances", "image"])
+    plain = run(["train", train, "-o", os.path.join(tmp, "plain.json"), "--cache", cache, "--augment", "none"])
     with open(os.path.join(tmp, "plain.json")) as f:
         p = json.load(f)
-    check(plain.returncode == 0 and p["learning"]["instances"] == "image"
-          and p["provenance"]["counts"]["augmented_copies"] == 0, "--augment none --instances image trains as before")
+    check(plain.returncode == 0 and p["provenance"]["counts"]["augmented_copies"] == 0, "--augment none trains without copies")
+    windowed = run(["train", train, "-o", os.path.join(tmp, "windows.json"), "--cache", cache, "--instances", "windows"])
+    with open(os.path.join(tmp, "windows.json")) as f:
+        w = json.load(f)
+    check(windowed.returncode == 0 and w["learning"]["instances"] == "windows"
+          and w["learning"]["pooling"] in ("mean", "top-third"), f"--instances windows: pooling recorded {w['learning']}")
+    check("of its windows' margins" in windowed.stdout, "train says how windows are pooled")
+    scanned = run(["scan", os.path.join(tmp, "windows.json"), os.path.join(flip, "camera")])
+    check(scanned.returncode == 0 and scanned.stdout.count("p_generated") >= 10, "a window-level model scans")
     check(run(["train", train, "-o", os.path.join(tmp, "x.json"), "--augment", "heavy"]).returncode == 2,
           "an unknown augmentation is a usage error")
 
