@@ -58,12 +58,20 @@ double coding_cost_bits(const std::vector<int>& samples, int n) {
   for (auto& c : counts) c.fill(0);
   std::vector<std::uint32_t> totals(kContexts, 0);
   auto at = [&](int y, int x) { return samples[static_cast<size_t>(y) * n + x]; };
+  // jpegls_gradient_region for every difference of two 8-bit samples, looked up.
+  static const std::array<int, 511> kRegion = [] {
+    std::array<int, 511> t{};
+    for (int d = -255; d <= 255; ++d) t[static_cast<size_t>(d + 255)] = jpegls_gradient_region(d);
+    return t;
+  }();
+  auto region = [&](int d) {
+    return d >= -255 && d <= 255 ? kRegion[static_cast<size_t>(d + 255)] : jpegls_gradient_region(d);
+  };
   // Interior pixels with all four causal neighbours a (W), b (N), c (NW), d (NE).
   for (int y = 1; y < n; ++y) {
     for (int x = 1; x + 1 < n; ++x) {
       const int a = at(y, x - 1), b = at(y - 1, x), c = at(y - 1, x - 1), d = at(y - 1, x + 1);
-      int q1 = jpegls_gradient_region(d - b), q2 = jpegls_gradient_region(b - c),
-          q3 = jpegls_gradient_region(c - a);
+      int q1 = region(d - b), q2 = region(b - c), q3 = region(c - a);
       int sign = 1;
       if (q1 < 0 || (q1 == 0 && (q2 < 0 || (q2 == 0 && q3 < 0)))) {
         q1 = -q1;
