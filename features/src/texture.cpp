@@ -61,14 +61,12 @@ double texture_diversity(const float* x, int stride, int size) {
   double sum = 0.0;
   for (int y = 0; y < size; ++y) {
     const float* row = x + static_cast<size_t>(y) * stride;
+    for (int i = 0; i + 1 < size; ++i) sum += std::fabs(row[i] - row[i + 1]);
+    if (y + 1 == size) break;
     const float* below = row + stride;
     for (int i = 0; i < size; ++i) {
-      if (i + 1 < size) sum += std::fabs(row[i] - row[i + 1]);
-      if (y + 1 < size) sum += std::fabs(row[i] - below[i]);
-      if (i + 1 < size && y + 1 < size) {
-        sum += std::fabs(row[i] - below[i + 1]);
-        sum += std::fabs(below[i] - row[i + 1]);
-      }
+      sum += std::fabs(row[i] - below[i]);
+      if (i + 1 < size) sum += std::fabs(row[i] - below[i + 1]) + std::fabs(below[i] - row[i + 1]);
     }
   }
   return sum;
