@@ -21,7 +21,7 @@ std::vector<int> halve(const std::vector<int>& x, int n) {
   std::vector<int> out(static_cast<size_t>(h) * h);
   for (int y = 0; y < h; ++y) {
     for (int i = 0; i < h; ++i) {
-      const size_t k = static_cast<size_t>(2 * y) * n + 2 * i;
+      const size_t k = 2 * static_cast<size_t>(y) * n + 2 * static_cast<size_t>(i);
       const int sum = x[k] + x[k + 1] + x[k + n] + x[k + n + 1];
       out[static_cast<size_t>(y) * h + i] = (sum + 2) / 4;
     }
@@ -61,11 +61,11 @@ double coding_cost_bits(const std::vector<int>& samples, int n) {
   // jpegls_gradient_region for every difference of two 8-bit samples, looked up.
   static const std::array<int, 511> kRegion = [] {
     std::array<int, 511> t{};
-    for (int d = -255; d <= 255; ++d) t[static_cast<size_t>(d + 255)] = jpegls_gradient_region(d);
+    for (int d = -255; d <= 255; ++d) t[static_cast<size_t>(d) + 255] = jpegls_gradient_region(d);
     return t;
   }();
   auto region = [&](int d) {
-    return d >= -255 && d <= 255 ? kRegion[static_cast<size_t>(d + 255)] : jpegls_gradient_region(d);
+    return d >= -255 && d <= 255 ? kRegion[static_cast<size_t>(d) + 255] : jpegls_gradient_region(d);
   };
   // Interior pixels with all four causal neighbours a (W), b (N), c (NW), d (NE).
   for (int y = 1; y < n; ++y) {
@@ -82,7 +82,7 @@ double coding_cost_bits(const std::vector<int>& samples, int n) {
       int e = sign * (at(y, x) - med_predict(a, b, c));
       e = ((e + 128) % 256 + 256) % 256 - 128;  // modulo reduction to [-128, 127]
       const int context = ((q1 + 4) * 9 + (q2 + 4)) * 9 + (q3 + 4);
-      ++counts[static_cast<size_t>(context)][static_cast<size_t>(e + 128)];
+      ++counts[static_cast<size_t>(context)][static_cast<size_t>(e) + 128];
       ++totals[static_cast<size_t>(context)];
     }
   }

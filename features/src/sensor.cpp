@@ -109,6 +109,7 @@ const std::vector<std::string>& sensor_names() {
 std::vector<double> sensor_window(const WindowInput& window) {
   const Tile& tile = window.tile;
   std::vector<NoiseLevelCurve> curves;
+  curves.reserve(3);
   for (int c = 0; c < tile.channels; ++c) curves.push_back(noise_level_function(tile.plane(c), tile.size));
   while (curves.size() < 3) curves.push_back(curves.front());  // grey: one curve for all three
   std::vector<double> values;

@@ -77,8 +77,8 @@ std::vector<int> patches_by_texture(const float* luma, int n, int patch, std::ve
   std::vector<double> d(static_cast<size_t>(per_row) * per_row);
   for (int py = 0; py < per_row; ++py) {
     for (int px = 0; px < per_row; ++px) {
-      d[static_cast<size_t>(py) * per_row + px] =
-          texture_diversity(luma + static_cast<size_t>(py) * patch * n + px * patch, n, patch);
+      d[static_cast<size_t>(py) * per_row + px] = texture_diversity(
+          luma + static_cast<size_t>(py) * patch * n + static_cast<size_t>(px) * patch, n, patch);
     }
   }
   std::vector<int> order(d.size());
