@@ -16,10 +16,12 @@ namespace {
 // The training instances: the images, then their augmented copies.
 using Instances = std::vector<const PreparedItem*>;
 
+int label_of(const PreparedItem& item) { return item.file.label == Label::kGenerated ? 1 : 0; }
+
 std::vector<int> labels_of(const Instances& items, const std::vector<size_t>& rows) {
   std::vector<int> y;
   y.reserve(rows.size());
-  for (size_t r : rows) y.push_back(items[r]->file.label == Label::kGenerated ? 1 : 0);
+  for (size_t r : rows) y.push_back(label_of(*items[r]));
   return y;
 }
 
@@ -47,7 +49,7 @@ Result<Fitted> fit_rows(const Instances& items, const std::vector<size_t>& colum
   for (size_t r : rows) {
     for (const auto* v : training_rows(*items[r], settings.window_instances, settings.windows_per_image)) {
       vectors.push_back(v);
-      y.push_back(items[r]->file.label == Label::kGenerated ? 1 : 0);
+      y.push_back(label_of(*items[r]));
     }
   }
   Matrix x{vectors.size(), columns.size(), std::vector<double>(vectors.size() * columns.size())};
