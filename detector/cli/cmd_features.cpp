@@ -36,15 +36,15 @@ int run_features(const FeaturesArgs& args) {
   }
   size_t failed = expanded.problems.size();
   for (const auto& [path, message] : expanded.problems) {
-    *out << error_record(path, {ErrorCode::kUnreadable, message}).dump() << "\n";
+    *out << record_line(error_record(path, {ErrorCode::kUnreadable, message})) << "\n";
   }
   extract_batch(expanded.files, args.extract, args.jobs,
                 [&](size_t, const std::string& path, const Result<Extraction>& result) {
                   if (result) {
-                    *out << features_record(path, *result).dump() << "\n";
+                    *out << record_line(features_record(path, *result)) << "\n";
                   } else {
                     ++failed;
-                    *out << error_record(path, result.error()).dump() << "\n";
+                    *out << record_line(error_record(path, result.error())) << "\n";
                   }
                 });
   if (!args.output.empty()) {

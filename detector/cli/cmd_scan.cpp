@@ -63,10 +63,11 @@ Result<Done> load_resume(const std::string& file) {
     start = nl + 1;
     if (j.is_discarded() || !j.is_object() || !j.contains("path")) continue;
     const bool failed = j.contains("error");
+    const std::string path = path_of(j);  // the exact bytes, also for names that are not UTF-8
     if (j.contains("sha256") && j["sha256"].is_string()) {
-      done.hashes[j["path"].get<std::string>() + "\n" + j["sha256"].get<std::string>()] = failed;
+      done.hashes[path + "\n" + j["sha256"].get<std::string>()] = failed;
     } else {
-      done.paths[j["path"].get<std::string>()] = failed;
+      done.paths[path] = failed;
     }
   }
   return done;
@@ -82,7 +83,7 @@ std::string csv_field(const std::string& s) {
 std::string csv_line(const nlohmann::ordered_json& r) {
   auto str = [&](const char* k) {
     if (!r.contains(k) || r[k].is_null()) return std::string();
-    return r[k].is_string() ? r[k].get<std::string>() : r[k].dump();
+    return r[k].is_string() ? valid_utf8(r[k].get<std::string>()) : record_line(r[k]);
   };
   std::string error_code, error_message;
   if (r.contains("error")) {
@@ -91,12 +92,12 @@ std::string csv_line(const nlohmann::ordered_json& r) {
   }
   return csv_field(str("path")) + "," + str("sha256") + "," + str("format") + "," + str("width") + "," +
          str("height") + "," + str("p_generated") + "," + str("band") + "," + str("margin") + "," +
-         error_code + "," + csv_field(error_message) + "\n";
+         error_code + "," + csv_field(valid_utf8(error_message)) + "," + str("path_bytes") + "\n";
 }
 
 std::string table_line(const nlohmann::ordered_json& r) {
   char line[512];
-  const std::string path = r["path"];
+  const std::string path = r["path"];  // valid UTF-8 (set_path)
   const std::string shown = path.size() > 48 ? "…" + path.substr(path.size() - 47) : path;
   if (r.contains("error")) {
     std::snprintf(line, sizeof line, "%-48s  error %s: %s\n", shown.c_str(),
@@ -157,13 +158,13 @@ int run_scan(ScanArgs& args) {
     out = &file;
   }
   if (args.format == "csv" && args.resume.empty()) {
-    *out << "path,sha256,format,width,height,p_generated,band,margin,error_code,error_message\n";
+    *out << "path,sha256,format,width,height,p_generated,band,margin,error_code,error_message,path_bytes\n";
   }
   size_t failed = 0;
   size_t written = 0;
   size_t skipped = 0;
   for (const auto& [path, message] : expanded.problems) {
-    *out << error_record(path, {ErrorCode::kUnreadable, message}).dump() << "\n";
+    *out << record_line(error_record(path, {ErrorCode::kUnreadable, message})) << "\n";
     ++failed;
   }
   const Progress bar("images");
@@ -198,7 +199,7 @@ int run_scan(ScanArgs& args) {
           } else if (args.format == "table") {
             *out << table_line(r);
           } else {
-            *out << r.dump() << "\n";
+            *out << record_line(r) << "\n";
           }
           out->flush();  // a killed scan loses at most the line being written
           ++written;

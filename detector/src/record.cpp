@@ -1,12 +1,143 @@
 #include "residue/detector/record.hpp"
 
+#include <cctype>
+
 #include "residue/training/applicability.hpp"
 
 namespace residue {
 
+namespace {
+
+// At text[i]: the length of the well-formed UTF-8 sequence that starts there (Unicode Standard,
+// Table 3-7: no overlong forms, no surrogates, nothing above U+10FFFF), or 0 and in `bad` the length
+// of its maximal subpart (the longest prefix of a well-formed sequence, at least 1 byte), which is
+// what becomes one U+FFFD (Unicode Standard, section 3.9, "U+FFFD Substitution of Maximal Subparts").
+size_t utf8_sequence(const std::string& text, size_t i, size_t& bad) {
+  const auto byte = [&](size_t k) { return static_cast<unsigned char>(text[k]); };
+  const unsigned char b0 = byte(i);
+  bad = 1;
+  if (b0 < 0x80) return 1;
+  size_t n = 0;
+  unsigned char lo = 0x80;
+  unsigned char hi = 0xBF;
+  if (b0 >= 0xC2 && b0 <= 0xDF) {
+    n = 2;
+  } else if (b0 >= 0xE0 && b0 <= 0xEF) {
+    n = 3;
+    if (b0 == 0xE0) lo = 0xA0;
+    if (b0 == 0xED) hi = 0x9F;
+  } else if (b0 >= 0xF0 && b0 <= 0xF4) {
+    n = 4;
+    if (b0 == 0xF0) lo = 0x90;
+    if (b0 == 0xF4) hi = 0x8F;
+  } else {
+    return 0;
+  }
+  for (size_t k = 1; k < n; ++k) {
+    if (i + k >= text.size()) return 0;
+    const unsigned char b = byte(i + k);
+    if (k == 1 ? (b < lo || b > hi) : (b < 0x80 || b > 0xBF)) return 0;
+    bad = k + 1;
+  }
+  return n;
+}
+
+template <typename J>
+std::string path_from(const J& record) {
+  if (record.contains("path_bytes") && record["path_bytes"].is_string()) {
+    return percent_decode(record["path_bytes"].template get<std::string>());
+  }
+  if (record.contains("path") && record["path"].is_string())
+    return record["path"].template get<std::string>();
+  return {};
+}
+
+}  // namespace
+
+bool is_valid_utf8(const std::string& text) {
+  size_t bad = 0;
+  for (size_t i = 0; i < text.size();) {
+    const size_t n = utf8_sequence(text, i, bad);
+    if (n == 0) return false;
+    i += n;
+  }
+  return true;
+}
+
+std::string valid_utf8(const std::string& text) {
+  std::string out;
+  out.reserve(text.size());
+  size_t bad = 0;
+  for (size_t i = 0; i < text.size();) {
+    const size_t n = utf8_sequence(text, i, bad);
+    if (n == 0) {
+      out += "\xEF\xBF\xBD";  // U+FFFD REPLACEMENT CHARACTER
+      i += bad;
+    } else {
+      out.append(text, i, n);
+      i += n;
+    }
+  }
+  return out;
+}
+
+std::string percent_encode(const std::string& bytes) {
+  static constexpr char kHex[] = "0123456789ABCDEF";
+  std::string out;
+  for (const char c : bytes) {
+    const auto b = static_cast<unsigned char>(c);
+    if (std::isalnum(b) != 0 || c == '-' || c == '.' || c == '_' || c == '~' || c == '/') {
+      out += c;
+    } else {
+      out += '%';
+      out += kHex[b >> 4];
+      out += kHex[b & 15];
+    }
+  }
+  return out;
+}
+
+std::string percent_decode(const std::string& text) {
+  const auto hex = [](char c) -> int {
+    if (c >= '0' && c <= '9') return c - '0';
+    if (c >= 'A' && c <= 'F') return c - 'A' + 10;
+    if (c >= 'a' && c <= 'f') return c - 'a' + 10;
+    return -1;
+  };
+  std::string out;
+  for (size_t i = 0; i < text.size(); ++i) {
+    if (text[i] == '%' && i + 2 < text.size() && hex(text[i + 1]) >= 0 && hex(text[i + 2]) >= 0) {
+      out += static_cast<char>(hex(text[i + 1]) * 16 + hex(text[i + 2]));
+      i += 2;
+    } else {
+      out += text[i];
+    }
+  }
+  return out;
+}
+
+void set_path(nlohmann::ordered_json& record, const std::string& path) {
+  if (is_valid_utf8(path)) {
+    record["path"] = path;
+    if (record.contains("path_bytes")) record.erase("path_bytes");
+  } else {
+    record["path"] = valid_utf8(path);
+    record["path_bytes"] = percent_encode(path);
+  }
+}
+
+std::string path_of(const nlohmann::json& record) { return path_from(record); }
+std::string path_of(const nlohmann::ordered_json& record) { return path_from(record); }
+
+std::string record_line(const nlohmann::ordered_json& record) {
+  return record.dump(-1, ' ', false, nlohmann::ordered_json::error_handler_t::replace);
+}
+
 nlohmann::ordered_json error_record(const std::string& path, const Error& error) {
-  return {{"path", path},
-          {"error", {{"code", std::string(error_code_name(error.code))}, {"message", error.message}}}};
+  nlohmann::ordered_json r;
+  set_path(r, path);
+  r["error"] = {{"code", std::string(error_code_name(error.code))}, {"message", error.message}};
+  return r;
 }
 
 nlohmann::ordered_json features_record(const std::string& path, const Extraction& e) {
@@ -19,8 +150,9 @@ nlohmann::ordered_json features_record(const std::string& path, const Extraction
     compression["jpeg_quality"] = e.compression.jpeg->quality;
     compression["jpeg_tables_standard"] = e.compression.jpeg->exact;
   }
-  return {
-      {"path", path},
+  nlohmann::ordered_json r;
+  set_path(r, path);
+  nlohmann::ordered_json rest = {
       {"format", std::string(image_format_name(e.header.format))},
       {"width", e.header.width},
       {"height", e.header.height},
@@ -46,6 +178,8 @@ nlohmann::ordered_json features_record(const std::string& path, const Extraction
         {"processing", e.timings.processing_ms},
         {"total", e.timings.total_ms}}},
   };
+  for (auto& [key, value] : rest.items()) r[key] = std::move(value);
+  return r;
 }
 
 }  // namespace residue

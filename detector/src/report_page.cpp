@@ -236,7 +236,7 @@ std::string report_page(const ReportInput& in) {
     }
     h += "<tr><td class='n'>" + std::to_string(i + 1) + "</td><td><code>" + html_escape(r["path"]) +
          "</code></td>" + "<td class='n'>" + fmt("%.3f", r["p_generated"].get<double>()) + "</td><td>" +
-         html_escape(r["band"]) + "</td><td>" + html_escape(declared) + "</td>" + pictures_of(r["path"]) +
+         html_escape(r["band"]) + "</td><td>" + html_escape(declared) + "</td>" + pictures_of(path_of(r)) +
          "</tr>";
   }
   h += "</table>";

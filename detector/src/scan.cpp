@@ -33,7 +33,7 @@ nlohmann::ordered_json declared_json(const DeclaredMetadata& m) {
 nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::uint8_t> bytes,
                                   const Model& model, const ScanSettings& settings) {
   nlohmann::ordered_json r;
-  r["path"] = path;
+  set_path(r, path);
   r["sha256"] = sha256_hex(bytes);
   auto extraction = extract_bytes(bytes, settings.extract);
   if (!extraction) {
@@ -85,7 +85,7 @@ nlohmann::ordered_json scan_file(const std::string& path, const Model& model, co
   auto bytes = read_file(path, settings.extract.limits);
   if (!bytes) {
     nlohmann::ordered_json r;
-    r["path"] = path;
+    set_path(r, path);
     r["sha256"] = nullptr;
     r["error"] = {{"code", std::string(error_code_name(bytes.error().code))},
                   {"message", bytes.error().message}};

@@ -282,7 +282,7 @@ class Worker {
     }
     record["job"] = job;
     record["worker"] = s_.consumer;
-    return finish(e.id, job, record.dump());
+    return finish(e.id, job, record_line(record));
   }
 
   // Result and acknowledgement in one transaction, retried across reconnections until done.

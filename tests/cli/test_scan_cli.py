@@ -16,6 +16,7 @@ import re
 import subprocess
 import sys
 import tempfile
+import urllib.parse
 
 from PIL import Image, PngImagePlugin
 
@@ -106,6 +107,45 @@ with tempfile.TemporaryDirectory() as tmp:
     paths = sorted(r["path"] for r in again)
     check(paths == sorted(r["path"] for r in records), f"after resume every input exactly once ({len(again)})")
     check(len(set(paths)) == len(paths), "no duplicates after resume")
+
+    # File names that are not valid UTF-8 (old code pages, ZIP extracts): every record is written,
+    # as valid UTF-8, with the exact bytes in "path_bytes" (RFC 3986 percent-encoding), and --resume
+    # and the CSV keep them apart. Before, one such name aborted the whole batch (exit 134).
+    names = os.path.join(tmp, "names").encode()
+    os.makedirs(names)
+    odd = [b"photo-\xff\xfe.png", b"broken-\xe9t\xe9.jpg", "caf\u00e9 100%41.png".encode()]
+    for name in odd:
+        with open(os.path.join(names, name), "wb") as f:
+            f.write(b"" if name.endswith(b".jpg") else good)
+    odd_out = os.path.join(tmp, "odd.jsonl")
+    odd_scan = run(["scan", model, names.decode("utf-8", "surrogateescape"), "-o", odd_out])
+    check(odd_scan.returncode == 3, f"a folder with non-UTF-8 names scans to the end (exit {odd_scan.returncode})")
+    with open(odd_out, "rb") as f:
+        raw = f.read()
+    check(raw.decode("utf-8", "strict") is not None, "the output is valid UTF-8")
+    odd_records = [json.loads(x) for x in raw.decode().splitlines()]
+    exact = sorted(urllib.parse.unquote_to_bytes(r["path_bytes"]) if "path_bytes" in r else r["path"].encode()
+                   for r in odd_records)
+    check(exact == sorted(os.path.join(names, n) for n in odd), f"every name given back exactly: {exact}")
+    by_odd = {os.path.basename(r["path"]): r for r in odd_records}
+    check("path_bytes" not in by_odd["caf\u00e9 100%41.png"], "a valid UTF-8 name is written as it is")
+    check(by_odd["photo-\ufffd\ufffd.png"].get("band") is not None, "the non-UTF-8 photo is scored")
+    check(by_odd["broken-\ufffdt\ufffd.jpg"]["error"]["code"] == "empty", "the non-UTF-8 broken file has its error")
+    with open(odd_out, "rb") as f:
+        first = f.read().split(b"\n")[0]
+    with open(odd_out, "wb") as f:
+        f.write(first + b"\n")
+    check(run(["scan", model, names.decode("utf-8", "surrogateescape"), "--resume", odd_out]).returncode == 3,
+          "resume over non-UTF-8 names")
+    check(len(lines(odd_out)) == 3, "resume matches non-UTF-8 names: no loss, no duplicate")
+    odd_csv = subprocess.run([residue, "scan", model, names, "--format", "csv"], capture_output=True)
+    rows = list(csv.DictReader(io.StringIO(odd_csv.stdout.decode("utf-8", "strict"))))
+    check(len(rows) == 3 and sum(1 for r in rows if r["path_bytes"]) == 2, "CSV: valid UTF-8 with path_bytes")
+    odd_features = subprocess.run([residue, "features", names], capture_output=True)
+    check(odd_features.returncode == 3 and len(odd_features.stdout.decode("utf-8", "strict").splitlines()) == 3,
+          "features: every non-UTF-8 name gets its record")
+    odd_report = os.path.join(tmp, "odd.html")
+    check(run(["report", odd_out, "-o", odd_report]).returncode == 0, "report on records with non-UTF-8 names")
 
     # Shards: 1/3, 2/3, 3/3 together equal the unsharded scan.
     union = []

@@ -19,7 +19,28 @@ inline constexpr const char* kAdvisoryNotice =
 // kCheckFailed: `compare` found NEW worse than OLD; `drift` found that retraining looks due.
 enum class ExitCode : int { kOk = 0, kFailure = 1, kUsage = 2, kSomeInputsFailed = 3, kCheckFailed = 4 };
 
-// {"path", "error": {"code", "message"}}
+// Paths in records. A file name is bytes, not text, and archives hold names that are not valid UTF-8
+// (old code pages, ZIP extracts); JSON, CSV and HTML need valid UTF-8. So "path" is always valid
+// UTF-8: the name itself when it is valid UTF-8, otherwise the name with every byte that is not part
+// of a valid UTF-8 sequence replaced by U+FFFD (for people to read). Only then, "path_bytes" follows
+// it with the exact bytes, percent-encoded as in RFC 3986 (every byte other than A-Z a-z 0-9 - . _ ~ /
+// as %XX), so that no path is lost or confused with another (docs/reliability.md, "File names").
+void set_path(nlohmann::ordered_json& record, const std::string& path);
+// The exact path bytes of a record written by set_path (its "path_bytes" when present, else "path");
+// empty when the record has neither.
+std::string path_of(const nlohmann::json& record);
+std::string path_of(const nlohmann::ordered_json& record);
+// `text` with every byte that is not part of a valid UTF-8 sequence replaced by U+FFFD.
+std::string valid_utf8(const std::string& text);
+bool is_valid_utf8(const std::string& text);
+std::string percent_encode(const std::string& bytes);
+std::string percent_decode(const std::string& text);
+
+// One JSON line of a record. Strings other than the path (an error message quoting a file name, a
+// declared camera model) may hold invalid UTF-8 too: those bytes are written as U+FFFD, never thrown.
+std::string record_line(const nlohmann::ordered_json& record);
+
+// {"path", ["path_bytes",] "error": {"code", "message"}}
 nlohmann::ordered_json error_record(const std::string& path, const Error& error);
 
 // The record of `residue features`: image facts, windows, named values, compression history,
