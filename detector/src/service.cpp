@@ -7,6 +7,7 @@
 #include <chrono>
 #include <condition_variable>
 #include <cstdio>
+#include <cstdlib>
 #include <fstream>
 #include <map>
 #include <mutex>
@@ -95,6 +96,25 @@ int status_for(const std::string& code) {
   return 500;
 }
 
+// The routes, with the one method each takes and whether it needs the bearer token.
+struct Route {
+  const char* path;
+  const char* method;
+  bool needs_auth;
+};
+constexpr Route kRoutes[] = {{"/v1/score", "POST", true},
+                             {"/v1/health", "GET", false},
+                             {"/v1/model", "GET", true},
+                             {"/v1/model/reload", "POST", true},
+                             {"/metrics", "GET", false}};
+
+const Route* find_route(const std::string& path) {
+  for (const Route& r : kRoutes) {
+    if (path == r.path) return &r;
+  }
+  return nullptr;
+}
+
 std::atomic<bool> g_reload_requested{false};
 extern "C" void on_sighup(int /*signal*/) { g_reload_requested = true; }
 
@@ -129,10 +149,10 @@ struct Service::State {
   void log(const Json& line) {
     std::lock_guard lock(log_mutex);
     if (log_file.is_open()) {
-      log_file << line.dump() << "\n";
+      log_file << record_line(line) << "\n";
       log_file.flush();
     } else {
-      std::fprintf(stderr, "%s\n", line.dump().c_str());
+      std::fprintf(stderr, "%s\n", record_line(line).c_str());
     }
   }
 
@@ -215,159 +235,195 @@ Result<bool> Service::run() {
   server.set_read_timeout(cfg.timeout_seconds, 0);
   server.set_write_timeout(cfg.timeout_seconds, 0);
 
-  auto reply = [&s](httplib::Response& res, int status, const Json& body) {
+  auto reply = [](httplib::Response& res, int status, const Json& body) {
     res.status = status;
-    res.set_content(body.dump(), "application/json");
+    res.set_content(record_line(body), "application/json");
   };
-  // Every request gets an id, a log line and a metrics observation.
-  auto handle = [&s, reply](const char* route, bool needs_auth,
-                            std::function<std::string(const httplib::Request&, httplib::Response&)> body) {
-    return [&s, reply, route, needs_auth, body](const httplib::Request& req, httplib::Response& res) {
-      const auto start = Clock::now();
-      const auto id = s.next_id++;
-      res.set_header("X-Request-Id", std::to_string(id));
-      std::string band;
-      try {
-        if (needs_auth && !s.authorised(req)) {
-          res.set_header("WWW-Authenticate", "Bearer");
-          reply(res, 401, error_body("unauthorised", "missing or wrong bearer token"));
-        } else {
-          band = body(req, res);
-        }
-      } catch (const std::exception& e) {
-        reply(res, 500, error_body("internal", e.what()));
-      }
-      const double seconds = std::chrono::duration<double>(Clock::now() - start).count();
-      s.metrics.observe(route, res.status, seconds, band);
-      s.log({{"id", id},
-             {"method", req.method},
-             {"path", req.path},
-             {"status", res.status},
-             {"latency_ms", seconds * 1000.0},
-             {"band", band.empty() ? Json(nullptr) : Json(band)}});
-    };
+  // Every request gets an id, a log line and a metrics observation; `body` answers it and returns
+  // the band it scored, if any.
+  auto observed = [&s, reply](const char* route, const httplib::Request& req, httplib::Response& res,
+                              const std::function<std::string()>& body) {
+    const auto start = Clock::now();
+    const auto id = s.next_id++;
+    res.set_header("X-Request-Id", std::to_string(id));
+    std::string band;
+    try {
+      band = body();
+    } catch (const std::exception& e) {
+      reply(res, 500, error_body("internal", e.what()));
+    }
+    const double seconds = std::chrono::duration<double>(Clock::now() - start).count();
+    s.metrics.observe(route, res.status, seconds, band);
+    s.log({{"id", id},
+           {"method", req.method},
+           {"path", req.path},
+           {"status", res.status},
+           {"latency_ms", seconds * 1000.0},
+           {"band", band.empty() ? Json(nullptr) : Json(band)}});
   };
 
-  server.Post(
-      "/v1/score",
-      handle(
-          "/v1/score", true,
-          [&s, &cfg, reply](const httplib::Request& req, httplib::Response& res) -> std::string {
-            std::string_view body = req.body;
-            if (req.is_multipart_form_data()) {
-              if (req.files.size() != 1) {
-                reply(res, 400, error_body("bad-request", "a multipart upload must carry exactly one file"));
-                return "";
-              }
-              body = req.files.begin()->second.content;
-            }
-            if (body.empty()) {
-              reply(res, 400, error_body("empty", "the request body is empty: send the image bytes"));
-              return "";
-            }
-            ScanSettings settings = cfg.scan;
-            if (req.has_param("prior")) {
-              try {
-                const double prior = std::stod(req.get_param_value("prior"));
-                if (!(prior > 0.0 && prior < 1.0)) throw std::invalid_argument("range");
-                settings.prior = prior;
-              } catch (const std::exception&) {
-                reply(res, 400, error_body("bad-request", "prior must be a number strictly between 0 and 1"));
-                return "";
-              }
-            }
-            if (!s.acquire()) {
-              res.set_header("Retry-After", "1");
-              reply(res, 503,
-                    error_body("overloaded",
-                               "all scoring workers are busy and the queue is full; retry shortly"));
-              return "";
-            }
-            const auto model = s.current();  // this request finishes on this model even if another is loaded
-            Json record;
-            try {
-              record = scan_bytes(req.get_param_value("name").empty() ? "-" : req.get_param_value("name"),
-                                  std::span(reinterpret_cast<const std::uint8_t*>(body.data()), body.size()),
-                                  *model, settings);
-            } catch (...) {
-              s.release();
-              throw;
-            }
-            s.release();
-            if (record.contains("error")) {
-              reply(res, status_for(record["error"]["code"]), record);
-              return "";
-            }
-            reply(res, 200, record);
-            return record["band"];
-          }));
-  server.Get("/v1/health",
-             handle("/v1/health", false, [&s, reply](const httplib::Request&, httplib::Response& res) {
-               const auto model = s.current();
-               reply(res, model ? 200 : 503,
-                     {{"status", model ? "ok" : "no-model"}, {"model", model ? Json(model->id) : Json()}});
-               return std::string();
-             }));
-  server.Get("/v1/model",
-             handle("/v1/model", true, [&s, reply](const httplib::Request&, httplib::Response& res) {
-               const auto model = s.current();
-               Json j = model_to_json(*model);
-               j.erase("scaler");
-               j.erase("linear");
-               j["advisory"] = kAdvisoryNotice;
-               reply(res, 200, j);
-               return std::string();
-             }));
-  server.Post(
-      "/v1/model/reload",
-      handle("/v1/model/reload", true, [this, reply](const httplib::Request&, httplib::Response& res) {
-        const auto before = state_->current()->id;
-        auto loaded = load_model();
-        if (!loaded) {
-          reply(res, 422, error_body("model-refused", loaded.error().message + "; still serving " + before));
-        } else {
-          reply(res, 200, {{"model", *loaded}, {"previous", before}});
+  // Route, method, token and declared size are checked on the headers, before any body is read:
+  // a stranger cannot make the service read (or wait for) a body it is going to refuse.
+  server.set_pre_routing_handler(
+      [&s, &cfg, reply, observed](const httplib::Request& req, httplib::Response& res) {
+        const Route* route = find_route(req.path);
+        const bool method_ok =
+            route != nullptr &&
+            (req.method == route->method || (req.method == "HEAD" && std::string(route->method) == "GET"));
+        const bool token_ok = route == nullptr || !route->needs_auth || s.authorised(req);
+        const bool size_ok =
+            !req.has_header("Content-Length") ||
+            std::strtoull(req.get_header_value("Content-Length").c_str(), nullptr, 10) <= cfg.max_body_bytes;
+        if (method_ok && token_ok && size_ok) return httplib::Server::HandlerResponse::Unhandled;
+        observed(route != nullptr ? route->path : "unknown", req, res, [&] {
+          if (route == nullptr) {
+            reply(res, 404, error_body("not-found", "no such route; see docs/openapi.yaml"));
+          } else if (!method_ok) {
+            res.set_header("Allow", route->method);
+            reply(res, 405, error_body("method-not-allowed", std::string("use ") + route->method));
+          } else if (!token_ok) {
+            res.set_header("WWW-Authenticate", "Bearer");
+            reply(res, 401, error_body("unauthorised", "missing or wrong bearer token"));
+          } else {
+            reply(res, 413,
+                  error_body("too-large", "the request body is over the size limit of " +
+                                              std::to_string(cfg.max_body_bytes) + " bytes"));
+          }
+          return std::string();
+        });
+        // The body, if any, is left unread: the connection cannot carry another request after it.
+        if (req.has_header("Content-Length") || req.has_header("Transfer-Encoding")) {
+          res.set_header("Connection", "close");
         }
-        return std::string();
-      }));
-  server.Get("/metrics", handle("/metrics", false, [&s](const httplib::Request&, httplib::Response& res) {
-               int waiting = 0;
-               int active = 0;
-               {
-                 std::lock_guard lock(s.slots_mutex);
-                 waiting = s.waiting;
-                 active = s.active;
-               }
-               res.set_content(s.metrics.text(waiting, active, s.current()->id), "text/plain; version=0.0.4");
-               return std::string();
-             }));
-  for (const char* path : {"/v1/score", "/v1/model/reload"}) {
-    server.Get(path, handle(path, false, [reply](const httplib::Request&, httplib::Response& res) {
-                 res.set_header("Allow", "POST");
-                 reply(res, 405, error_body("method-not-allowed", "use POST"));
-                 return std::string();
-               }));
-  }
-  for (const char* path : {"/v1/health", "/v1/model", "/metrics"}) {
-    server.Post(path, handle(path, false, [reply](const httplib::Request&, httplib::Response& res) {
-                  res.set_header("Allow", "GET");
-                  reply(res, 405, error_body("method-not-allowed", "use GET"));
-                  return std::string();
-                }));
-  }
-  server.set_error_handler([reply](const httplib::Request& req, httplib::Response& res) {
-    if (res.status == 413 && req.get_header_value("Content-Type") == "application/x-www-form-urlencoded") {
-      // The HTTP library caps form-encoded bodies at 8 KiB whatever the limit: curl's --data-binary
-      // sends that type unless told otherwise.
-      reply(res, 413,
-            error_body("too-large",
-                       "a form-encoded body is limited to 8 KiB: send the image with "
-                       "Content-Type: application/octet-stream (or image/jpeg, image/png)"));
-    } else if (res.status == 413) {
+        return httplib::Server::HandlerResponse::Handled;
+      });
+
+  server.Post("/v1/score", [&s, &cfg, reply, observed](const httplib::Request& req, httplib::Response& res,
+                                                       const httplib::ContentReader& content_reader) {
+    observed("/v1/score", req, res, [&]() -> std::string {
+      // The body is read here rather than by the HTTP library, so that it is taken as image bytes
+      // whatever its declared type (curl --data-binary declares a form) and a chunked body is held
+      // to the same size limit. A multipart form must carry exactly one part, the file.
+      std::string body;
+      size_t parts = 0;
+      bool too_large = false;
+      const auto append = [&](const char* data, size_t n) {
+        if (body.size() + n > cfg.max_body_bytes) {
+          too_large = true;
+          return false;
+        }
+        body.append(data, n);
+        return true;
+      };
+      const bool read =
+          req.is_multipart_form_data()
+              ? content_reader([&](const httplib::MultipartFormData&) { return ++parts == 1; }, append)
+              : content_reader(append);
+      if (too_large || (!read && res.status == 413)) {
+        res.set_header("Connection", "close");
+        reply(res, 413,
+              error_body("too-large", "the request body is over the size limit of " +
+                                          std::to_string(cfg.max_body_bytes) + " bytes"));
+        return "";
+      }
+      if (req.is_multipart_form_data() && parts != 1) {
+        reply(res, 400, error_body("bad-request", "a multipart upload must carry exactly one file"));
+        return "";
+      }
+      if (!read) {
+        reply(res, 400, error_body("bad-request", "the request body could not be read"));
+        return "";
+      }
+      if (body.empty()) {
+        reply(res, 400, error_body("empty", "the request body is empty: send the image bytes"));
+        return "";
+      }
+      ScanSettings settings = cfg.scan;
+      if (req.has_param("prior")) {
+        try {
+          const double prior = std::stod(req.get_param_value("prior"));
+          if (!(prior > 0.0 && prior < 1.0)) throw std::invalid_argument("range");
+          settings.prior = prior;
+        } catch (const std::exception&) {
+          reply(res, 400, error_body("bad-request", "prior must be a number strictly between 0 and 1"));
+          return "";
+        }
+      }
+      if (!s.acquire()) {
+        res.set_header("Retry-After", "1");
+        reply(res, 503,
+              error_body("overloaded", "all scoring workers are busy and the queue is full; retry shortly"));
+        return "";
+      }
+      const auto model = s.current();  // this request finishes on this model even if another is loaded
+      Json record;
+      try {
+        record = scan_bytes(req.get_param_value("name").empty() ? "-" : req.get_param_value("name"),
+                            std::span(reinterpret_cast<const std::uint8_t*>(body.data()), body.size()),
+                            *model, settings);
+      } catch (...) {
+        s.release();
+        throw;
+      }
+      s.release();
+      if (record.contains("error")) {
+        reply(res, status_for(record["error"]["code"]), record);
+        return "";
+      }
+      reply(res, 200, record);
+      return record["band"];
+    });
+  });
+  server.Get("/v1/health", [&s, reply, observed](const httplib::Request& req, httplib::Response& res) {
+    observed("/v1/health", req, res, [&] {
+      const auto model = s.current();
+      reply(res, model ? 200 : 503,
+            {{"status", model ? "ok" : "no-model"}, {"model", model ? Json(model->id) : Json()}});
+      return std::string();
+    });
+  });
+  server.Get("/v1/model", [&s, reply, observed](const httplib::Request& req, httplib::Response& res) {
+    observed("/v1/model", req, res, [&] {
+      const auto model = s.current();
+      Json j = model_to_json(*model);
+      j.erase("scaler");
+      j.erase("linear");
+      j["advisory"] = kAdvisoryNotice;
+      reply(res, 200, j);
+      return std::string();
+    });
+  });
+  server.Post("/v1/model/reload", [this, reply, observed](const httplib::Request& req,
+                                                          httplib::Response& res) {
+    observed("/v1/model/reload", req, res, [&] {
+      const auto before = state_->current()->id;
+      auto loaded = load_model();
+      if (!loaded) {
+        reply(res, 422, error_body("model-refused", loaded.error().message + "; still serving " + before));
+      } else {
+        reply(res, 200, {{"model", *loaded}, {"previous", before}});
+      }
+      return std::string();
+    });
+  });
+  server.Get("/metrics", [&s, observed](const httplib::Request& req, httplib::Response& res) {
+    observed("/metrics", req, res, [&] {
+      int waiting = 0;
+      int active = 0;
+      {
+        std::lock_guard lock(s.slots_mutex);
+        waiting = s.waiting;
+        active = s.active;
+      }
+      res.set_content(s.metrics.text(waiting, active, s.current()->id), "text/plain; version=0.0.4");
+      return std::string();
+    });
+  });
+  server.set_error_handler([reply](const httplib::Request&, httplib::Response& res) {
+    if (res.status == 413) {
       reply(res, 413, error_body("too-large", "the request body is over the size limit"));
     } else if (res.status == 400) {
-      reply(res, 400,
-            error_body("bad-request", "the request could not be read (no body, or no Content-Length)"));
+      reply(res, 400, error_body("bad-request", "the request could not be read"));
     } else if (res.status == 404) {
       reply(res, 404, error_body("not-found", "no such route; see docs/openapi.yaml"));
     } else if (res.body.empty()) {

@@ -10,6 +10,7 @@ Usage: test_service.py PATH/TO/residue
 import json
 import os
 import signal
+import socket
 import subprocess
 import sys
 import tempfile
@@ -52,6 +53,43 @@ def score(base, data, headers=None, query=""):
     h.update(headers or {})
     status, hdrs, body = request(base + "/v1/score" + query, data, "POST", h)
     return status, hdrs, json.loads(body) if body else None
+
+
+def raw(base, head, body=b"", timeout=5):
+    """Sends `head` (request line and headers) and `body` on a plain socket; returns (status, seconds,
+    JSON body or None). A server that waits for a body it was promised but not sent times out here."""
+    host, port = base.split("//")[1].split(":")
+    t0 = time.time()
+    with socket.create_connection((host, int(port)), timeout=timeout) as sock:
+        sock.sendall(head.encode() + b"\r\n" + body)
+        answer = b""
+        try:
+            while b"\r\n\r\n" not in answer or len(answer.split(b"\r\n\r\n", 1)[1]) < content_length(answer):
+                part = sock.recv(65536)
+                if not part:
+                    break
+                answer += part
+        except socket.timeout:
+            return None, time.time() - t0, None
+    seconds = time.time() - t0
+    if not answer:
+        return None, seconds, None
+    status = int(answer.split(b" ", 2)[1])
+    payload = answer.split(b"\r\n\r\n", 1)[1] if b"\r\n\r\n" in answer else b""
+    return status, seconds, json.loads(payload) if payload.startswith(b"{") else None
+
+
+def content_length(answer):
+    for line in answer.split(b"\r\n\r\n", 1)[0].split(b"\r\n")[1:]:
+        name, _, value = line.partition(b":")
+        if name.strip().lower() == b"content-length":
+            return int(value)
+    return 0
+
+
+def chunked(data, size=3000):
+    return b"".join(f"{len(data[i:i + size]):x}\r\n".encode() + data[i:i + size] + b"\r\n"
+                    for i in range(0, len(data), size)) + b"0\r\n\r\n"
 
 
 def stop(proc):
@@ -118,6 +156,27 @@ with tempfile.TemporaryDirectory() as tmp:
         check(request(base + "/v1/health", b"x", "POST")[0] == 405, "POST on health is a 405")
         status, _, body = request(base + "/nowhere")
         check(status == 404 and json.loads(body)["error"]["code"] == "not-found", "unknown route is a JSON 404")
+        # The most common first call: curl --data-binary @photo.jpg declares a form, not an image.
+        status, _, body = request(base + "/v1/score", data, "POST",
+                                  {"Content-Type": "application/x-www-form-urlencoded"})
+        check(status == 200 and json.loads(body)["p_generated"] == r["p_generated"],
+              f"raw image bytes declared as a form are scored as the image ({status})")
+        status, _, body = request(base + "/v1/score", data, "POST", {"Content-Type": "text/plain"})
+        check(status == 200 and json.loads(body)["sha256"] == r["sha256"], "raw image bytes of any declared type")
+        # A chunked body (no Content-Length) is read and scored the same.
+        status, _, c = raw(base, "POST /v1/score HTTP/1.1\r\nHost: x\r\nTransfer-Encoding: chunked\r\n"
+                                 "Connection: close\r\n", chunked(data))
+        check(status == 200 and c["p_generated"] == r["p_generated"], f"chunked body is scored ({status})")
+        # Route and method are checked on the headers: a promised 40 MB body is never waited for.
+        for head, want, what in (
+                ("POST /nowhere HTTP/1.1", 404, "unknown route"),
+                ("POST /v1/health HTTP/1.1", 405, "wrong method"),
+                ("POST /v1/score HTTP/1.1", None, "within the limit")):
+            status, seconds, _ = raw(base, head + "\r\nHost: x\r\nContent-Length: 40000000\r\n", timeout=3)
+            if want is None:
+                check(status is None, "a body within the limit is waited for (the check below is not vacuous)")
+            else:
+                check(status == want and seconds < 2, f"{what}: {want} without reading the body ({status}, {seconds:.1f} s)")
 
         # 200 concurrent requests from 8 threads: all answered, scores identical to scan.
         results, lock = [], threading.Lock()
@@ -200,6 +259,21 @@ with tempfile.TemporaryDirectory() as tmp:
         check(request(base + "/v1/health")[0] == 200, "health needs no token (for load balancers)")
         status, _, e = score(base, b"\0" * 20000, {"Authorization": "Bearer s3cret-token"})
         check(status == 413 and e["error"]["code"] == "too-large", "oversized body is a 413")
+        # The token and the declared size are checked on the headers, before any body is read: an
+        # unauthenticated client promising 40 MB gets its 401 at once (before: after reading it all).
+        for head, want, what in (
+                ("POST /v1/score HTTP/1.1\r\nHost: x\r\nContent-Length: 40000000\r\n", 401, "no token"),
+                ("POST /v1/score HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer wrong\r\n"
+                 "Content-Length: 40000000\r\n", 401, "wrong token"),
+                ("POST /v1/model/reload HTTP/1.1\r\nHost: x\r\nContent-Length: 40000000\r\n", 401, "reload, no token"),
+                ("POST /v1/score HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer s3cret-token\r\n"
+                 "Content-Length: 40000000\r\n", 413, "declared over the limit")):
+            status, seconds, e = raw(base, head, timeout=3)
+            check(status == want and e is not None and seconds < 2,
+                  f"{what}: {want} on the headers alone ({status}, {seconds:.1f} s)")
+        status, _, e = raw(base, "POST /v1/score HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer s3cret-token\r\n"
+                                 "Transfer-Encoding: chunked\r\nConnection: close\r\n", chunked(b"\0" * 20000))
+        check(status == 413 and e["error"]["code"] == "too-large", f"a chunked body is held to the limit ({status})")
         status, _, r2 = score(base, open(images[1], "rb").read()[:9000], {"Authorization": "Bearer s3cret-token"})
         check(status in (200, 422), "a body under the limit with the right token is scored or refused cleanly")
     finally:
