@@ -2,6 +2,7 @@
 #pragma once
 
 #include <array>
+#include <optional>
 #include <span>
 
 #include "residue/features/decode.hpp"
@@ -23,6 +24,30 @@ struct JpegOutput {
 Result<JpegOutput> decode_jpeg(std::span<const std::uint8_t> bytes, const DecodeLimits& limits,
                                const WindowLayout* layout, int scale_denominator = 1);
 
+struct WindowPixels {
+  std::vector<Tile> tiles;
+  int channels = 0;
+  bool alpha_dropped = false;
+  std::uint64_t decoded_rows = 0;
+  int warnings = 0;
+};
+
+// Decodes a PNG with libpng row by row, keeping only the windows of `layout`: memory is one row
+// plus the windows (interlaced images: the rows the windows cover), not the image. The pixels equal
+// decode_with_opencv's.
+Result<WindowPixels> decode_png_tiles(std::span<const std::uint8_t> bytes, const WindowLayout& layout);
+
+// Decodes the bands of a WebP that hold windows, each with libwebp's cropping (rows above a band
+// are decoded again for each band; memory is the bands, not the image). The pixels equal
+// decode_with_opencv's. Lossless WebP above 50 MP is refused (its decoder holds the whole image).
+Result<WindowPixels> decode_webp_tiles(std::span<const std::uint8_t> bytes, const WindowLayout& layout);
+
+// Reads a TIFF scanline by scanline into the windows of `layout` when it is stored in a common
+// layout (contiguous 8- or 16-bit unsigned grey or RGB[A], strips, top row first); std::nullopt for
+// the others, which the caller decodes whole. The pixels equal decode_with_opencv's.
+Result<std::optional<WindowPixels>> decode_tiff_tiles(std::span<const std::uint8_t> bytes,
+                                                      const WindowLayout& layout);
+
 // Decodes PNG, WebP, TIFF and BMP with OpenCV's imgcodecs; drops alpha and reports it.
 Result<Image> decode_with_opencv(std::span<const std::uint8_t> bytes, const ImageHeader& header,
                                  bool* alpha_dropped);
@@ -38,7 +63,8 @@ Image gaussian_blur(const Image& image, double sigma);
 
 // A palette PNG (colour type 3, 8-bit indices) through libpng: `indices` width x height,
 // `palette` up to 256 RGB triples.
-Result<std::vector<std::uint8_t>> encode_palette_png(int width, int height, const std::vector<std::uint8_t>& indices,
+Result<std::vector<std::uint8_t>> encode_palette_png(int width, int height,
+                                                     const std::vector<std::uint8_t>& indices,
                                                      const std::vector<std::array<std::uint8_t, 3>>& palette);
 
 // 3 x 3 median filter with replicated borders (OpenCV medianBlur), in place of a copy.

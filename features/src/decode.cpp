@@ -130,7 +130,39 @@ Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const
     out.decoded_rows = jpeg->decoded_rows;
     out.decoder_warnings = jpeg->warnings;
     out.tiles = skip_unused_rows ? std::move(jpeg->tiles) : cut_tiles(jpeg->full, out.layout);
+  } else if (header->format == ImageFormat::kPng || header->format == ImageFormat::kWebp) {
+    // Streamed or banded: memory follows the windows, not the image (docs/reliability.md).
+    auto part = header->format == ImageFormat::kPng ? detail::decode_png_tiles(bytes, out.layout)
+                                                    : detail::decode_webp_tiles(bytes, out.layout);
+    if (!part) return part.error();
+    out.tiles = std::move(part->tiles);
+    out.alpha_dropped = part->alpha_dropped;
+    out.decoded_rows = part->decoded_rows;
+    out.decoder_warnings = part->warnings;
   } else {
+    if (header->format == ImageFormat::kTiff) {
+      auto part = detail::decode_tiff_tiles(bytes, out.layout);
+      if (!part) return part.error();
+      if (*part) {
+        out.tiles = std::move((*part)->tiles);
+        out.alpha_dropped = (*part)->alpha_dropped;
+        out.decoded_rows = (*part)->decoded_rows;
+        out.channels = out.tiles.empty() ? 0 : out.tiles.front().channels;
+        return out;
+      }
+    }
+    // BMP and the rarer TIFF layouts are decoded whole (about 20 bytes a pixel at the peak), so
+    // they have their own, smaller pixel limit.
+    const auto pixels =
+        static_cast<std::uint64_t>(header->width) * static_cast<std::uint64_t>(header->height);
+    if (pixels > limits.max_whole_decode_pixels) {
+      return make_error(ErrorCode::kTooLarge,
+                        std::string(image_format_name(header->format)) + " of " +
+                            std::to_string(pixels / 1000000) +
+                            " MP in this layout is decoded whole, and the limit for that is " +
+                            std::to_string(limits.max_whole_decode_pixels / 1000000) +
+                            " MP (memory bound); convert it to PNG or an 8-bit stripped TIFF");
+    }
     auto image = detail::decode_with_opencv(bytes, *header, &out.alpha_dropped);
     if (!image) return image.error();
     if (image->width != header->width || image->height != header->height) {

@@ -1,7 +1,12 @@
-// libpng adapter: writes palette PNGs (colour type 3), which OpenCV's encoder cannot.
+// libpng adapter: decodes PNGs row by row into the analysis windows (memory bounded by the windows,
+// not the image), and writes palette PNGs (colour type 3), which OpenCV's encoder cannot.
+// Errors leave libpng by longjmp to the setjmp in the calling function; no C++ object with a
+// destructor is created between a setjmp and the libpng calls that may jump to it.
 #include <png.h>
 
+#include <algorithm>
 #include <csetjmp>
+#include <map>
 
 #include "adapters.hpp"
 
@@ -16,7 +21,124 @@ void append(png_structp png, png_bytep data, png_size_t length) {
 
 void no_flush(png_structp /*png*/) {}
 
+struct Source {
+  std::span<const std::uint8_t> bytes;
+  size_t at = 0;
+  bool ran_out = false;
+};
+
+void take(png_structp png, png_bytep data, png_size_t length) {
+  auto* src = static_cast<Source*>(png_get_io_ptr(png));
+  if (length > src->bytes.size() - src->at) {
+    src->ran_out = true;
+    png_error(png, "the data ends early");
+  }
+  std::copy_n(src->bytes.data() + src->at, length, data);
+  src->at += length;
+}
+
+void count_warning(png_structp png, png_const_charp /*message*/) {
+  ++*static_cast<int*>(png_get_error_ptr(png));
+}
+
+void raise_error(png_structp png, png_const_charp /*message*/) { png_longjmp(png, 1); }
+
+constexpr float kOne257th = static_cast<float>(1.0 / 257.0);
+
+// Copies image row y (interleaved samples, 8 or 16 bits big-endian) into every tile covering it.
+void scatter_png_row(const png_byte* row, int y, int channels, int bit_depth, std::vector<Tile>& tiles) {
+  const size_t bytes_per_sample = bit_depth == 16 ? 2 : 1;
+  for (auto& t : tiles) {
+    if (y < t.y || y >= t.y + t.size) continue;
+    const png_byte* src = row + static_cast<size_t>(t.x) * channels * bytes_per_sample;
+    for (int c = 0; c < channels; ++c) {
+      float* dst = t.plane(c) + static_cast<size_t>(y - t.y) * t.size;
+      for (int i = 0; i < t.size; ++i) {
+        const size_t k = (static_cast<size_t>(i) * channels + c) * bytes_per_sample;
+        // 16 bits: scaled by 1/257 onto the 8-bit scale in single precision, as OpenCV's convertTo.
+        dst[i] = bit_depth == 16 ? static_cast<float>((src[k] << 8) | src[k + 1]) * kOne257th : src[k];
+      }
+    }
+  }
+}
+
+bool needed(int y, const WindowLayout& layout) {
+  return std::any_of(layout.origins.begin(), layout.origins.end(),
+                     [&](const WindowRect& o) { return y >= o.y && y < o.y + layout.size; });
+}
+
 }  // namespace
+
+Result<WindowPixels> decode_png_tiles(std::span<const std::uint8_t> bytes, const WindowLayout& layout) {
+  WindowPixels out;
+  Source src{bytes};
+  png_structp png = png_create_read_struct(PNG_LIBPNG_VER_STRING, &out.warnings, raise_error, count_warning);
+  png_infop info = png != nullptr ? png_create_info_struct(png) : nullptr;
+  if (info == nullptr) {
+    png_destroy_read_struct(&png, nullptr, nullptr);
+    return make_error(ErrorCode::kInternal, "PNG: libpng could not start");
+  }
+  // Everything that lives across the jump is declared before setjmp.
+  std::vector<png_byte> scratch;
+  std::map<int, std::vector<png_byte>> kept;  // interlaced images: the rows the windows need
+  int width = 0;
+  int height = 0;
+  if (setjmp(png_jmpbuf(png)) != 0) {  // NOLINT(cert-err52-cpp): libpng reports errors by longjmp
+    png_destroy_read_struct(&png, &info, nullptr);
+    if (src.ran_out) return make_error(ErrorCode::kTruncated, "PNG data ends before the image does");
+    return make_error(ErrorCode::kCorrupt, "the PNG decoder rejected the data");
+  }
+  png_set_read_fn(png, &src, take);
+  png_set_user_limits(png, 0x7fffffff, 0x7fffffff);  // the header check already bounded the size
+  png_read_info(png, info);
+  width = static_cast<int>(png_get_image_width(png, info));
+  height = static_cast<int>(png_get_image_height(png, info));
+  const int colour = png_get_color_type(png, info);
+  const int depth = png_get_bit_depth(png, info);
+  // The same pixels as OpenCV's imread(IMREAD_UNCHANGED) with alpha dropped afterwards: palette
+  // expanded to RGB, grey below 8 bits expanded to 8, 16 bits kept (scaled by 1/257 here), no gamma.
+  out.alpha_dropped = (colour & PNG_COLOR_MASK_ALPHA) != 0 || png_get_valid(png, info, PNG_INFO_tRNS) != 0;
+  if (colour == PNG_COLOR_TYPE_PALETTE) png_set_palette_to_rgb(png);
+  if (colour == PNG_COLOR_TYPE_GRAY && depth < 8) png_set_expand_gray_1_2_4_to_8(png);
+  if (colour == PNG_COLOR_TYPE_GRAY_ALPHA) png_set_gray_to_rgb(png);  // as OpenCV: grey + alpha -> BGRA
+  if (out.alpha_dropped) png_set_strip_alpha(png);  // also the alpha a palette's tRNS expands to
+  const int passes = png_set_interlace_handling(png);
+  png_read_update_info(png, info);
+  out.channels = (colour & PNG_COLOR_MASK_COLOR) != 0 || colour == PNG_COLOR_TYPE_GRAY_ALPHA ? 3 : 1;
+  const int out_depth = png_get_bit_depth(png, info);
+  if (static_cast<int>(png_get_channels(png, info)) != out.channels)
+    png_error(png, "unexpected channel count");
+  scratch.resize(png_get_rowbytes(png, info));
+  for (const auto& o : layout.origins) {
+    out.tiles.push_back(
+        Tile{o.x, o.y, layout.size, out.channels,
+             std::vector<float>(static_cast<size_t>(out.channels) * layout.size * layout.size)});
+  }
+  if (passes == 1) {
+    for (int y = 0; y < height; ++y) {
+      png_read_row(png, scratch.data(), nullptr);
+      if (needed(y, layout)) scatter_png_row(scratch.data(), y, out.channels, out_depth, out.tiles);
+    }
+  } else {
+    // Adam7: every pass adds pixels to rows all over the image, so the rows the windows need are
+    // kept whole until the last pass; the others go to a scratch row.
+    for (int y = 0; y < height; ++y) {
+      if (needed(y, layout)) kept[y].assign(scratch.size(), 0);
+    }
+    for (int pass = 0; pass < passes; ++pass) {
+      for (int y = 0; y < height; ++y) {
+        const auto it = kept.find(y);
+        png_read_row(png, it != kept.end() ? it->second.data() : scratch.data(), nullptr);
+      }
+    }
+    for (const auto& [y, row] : kept) scatter_png_row(row.data(), y, out.channels, out_depth, out.tiles);
+  }
+  png_read_end(png, nullptr);
+  png_destroy_read_struct(&png, &info, nullptr);
+  out.decoded_rows = static_cast<std::uint64_t>(height);
+  (void)width;
+  return out;
+}
 
 Result<std::vector<std::uint8_t>> encode_palette_png(
     int width, int height, const std::vector<std::uint8_t>& indices,

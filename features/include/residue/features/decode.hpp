@@ -23,6 +23,10 @@ namespace residue {
 struct DecodeLimits {
   std::uint64_t max_file_bytes = 256ULL << 20;  // 256 MiB
   std::uint64_t max_pixels = 120'000'000;       // 120 megapixels, from the header
+  // JPEG, PNG, WebP and common TIFFs are decoded window by window (memory follows the windows);
+  // BMP and the rarer TIFF layouts are decoded whole, about 20 bytes a pixel at the peak, so their
+  // limit is lower: it keeps peak memory near 300 MB (docs/reliability.md).
+  std::uint64_t max_whole_decode_pixels = 12'000'000;
 };
 
 // JPEG quantisation tables as stored in the file, natural (row-major) coefficient order.
