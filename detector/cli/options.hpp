@@ -19,7 +19,7 @@ inline void add_extract_options(CLI::App& command, ExtractOptions& options) {
           [&options](double mb) {
             options.limits.max_file_bytes = static_cast<std::uint64_t>(mb * 1048576.0);
           },
-          "refuse files larger than this many MiB (default 256)")
+          "refuse files larger than this many MiB (default 200: with the decoders reading window by window, peak memory is about 70 MB plus the file)")
       ->check(CLI::PositiveNumber);
   command
       .add_option("--min-window", options.windows.min_size,

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <charconv>
+#include <memory>
 
 #include "residue/detector/redis_client.hpp"
 
@@ -69,6 +70,24 @@ bool RedisReply::is_transient_error() const {
                                                       "CLUSTERDOWN", "READONLY", "OOM"};
   if (std::find(kTransient.begin(), kTransient.end(), kind) != kTransient.end()) return true;
   return text.rfind("ERR max number of clients reached", 0) == 0;
+}
+
+Result<std::vector<RedisReply>> parse_redis_replies(std::string_view bytes) {
+  std::unique_ptr<redisReader, decltype(&redisReaderFree)> reader(redisReaderCreate(), redisReaderFree);
+  if (!reader) return make_error(ErrorCode::kInternal, "hiredis: no reader");
+  if (redisReaderFeed(reader.get(), bytes.data(), bytes.size()) != REDIS_OK) {
+    return make_error(ErrorCode::kCorrupt, "hiredis: cannot feed the reader");
+  }
+  std::vector<RedisReply> out;
+  while (true) {
+    void* raw = nullptr;
+    if (redisReaderGetReply(reader.get(), &raw) != REDIS_OK) {
+      return make_error(ErrorCode::kCorrupt, std::string("RESP protocol error: ") + reader->errstr);
+    }
+    if (raw == nullptr) return out;
+    out.push_back(convert(static_cast<redisReply*>(raw)));
+    freeReplyObject(raw);
+  }
 }
 
 Result<RedisAddress> parse_redis_url(const std::string& url) {

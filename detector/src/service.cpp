@@ -115,6 +115,51 @@ const Route* find_route(const std::string& path) {
   return nullptr;
 }
 
+// One connection's bytes in memory in place of a socket: what the request-handling tests and the
+// fuzz target feed the server.
+class MemoryStream : public httplib::Stream {
+ public:
+  explicit MemoryStream(std::string_view input) : input_(input) {}
+  [[nodiscard]] bool is_readable() const override { return at_ < input_.size(); }
+  [[nodiscard]] bool is_writable() const override { return true; }
+  ssize_t read(char* ptr, size_t size) override {
+    const size_t n = std::min(size, input_.size() - at_);
+    std::copy_n(input_.data() + at_, n, ptr);
+    at_ += n;
+    return static_cast<ssize_t>(n);
+  }
+  ssize_t write(const char* ptr, size_t size) override {
+    output_.append(ptr, size);
+    return static_cast<ssize_t>(size);
+  }
+  void get_remote_ip_and_port(std::string& ip, int& port) const override {
+    ip = "127.0.0.1";
+    port = 0;
+  }
+  void get_local_ip_and_port(std::string& ip, int& port) const override {
+    ip = "127.0.0.1";
+    port = 0;
+  }
+  [[nodiscard]] socket_t socket() const override { return INVALID_SOCKET; }
+  [[nodiscard]] const std::string& output() const { return output_; }
+
+ private:
+  std::string_view input_;
+  size_t at_ = 0;
+  std::string output_;
+};
+
+// The HTTP library's server, able to answer one request given as bytes.
+class RequestServer : public httplib::Server {
+ public:
+  std::string respond(std::string_view request) {
+    MemoryStream stream(request);
+    bool closed = false;
+    process_request(stream, true, closed, nullptr);
+    return stream.output();
+  }
+};
+
 std::atomic<bool> g_reload_requested{false};
 extern "C" void on_sighup(int /*signal*/) { g_reload_requested = true; }
 
@@ -127,7 +172,8 @@ bool is_loopback(const std::string& host) {
 struct Service::State {
   ServiceSettings settings;
   std::string model_path;
-  httplib::Server server;
+  RequestServer server;
+  bool prepared = false;
   std::mutex model_mutex;
   std::shared_ptr<const Model> model;
   std::mutex slots_mutex;
@@ -207,7 +253,53 @@ void Service::stop() {
 }
 
 Result<bool> Service::run() {
+  auto ready = prepare();
+  if (!ready) return ready.error();
   State& s = *state_;
+  const ServiceSettings& cfg = s.settings;
+  std::signal(SIGHUP, on_sighup);
+  s.reload_watcher = std::thread([this] {
+    while (!state_->stopping) {
+      if (g_reload_requested.exchange(false)) {
+        auto loaded = load_model();
+        state_->log({{"event", "reload"},
+                     {"trigger", "SIGHUP"},
+                     {"ok", loaded.ok()},
+                     {"model", loaded ? Json(*loaded) : Json(loaded.error().message)}});
+      }
+      std::this_thread::sleep_for(std::chrono::milliseconds(100));
+    }
+  });
+
+  int port = cfg.port;
+  if (port == 0) {
+    port = s.server.bind_to_any_port(cfg.host);
+  } else if (!s.server.bind_to_port(cfg.host, port)) {
+    port = -1;
+  }
+  if (port < 0) {
+    stop();
+    return make_error(ErrorCode::kUnreadable, "cannot bind " + cfg.host + ":" + std::to_string(cfg.port));
+  }
+  s.settings.port = port;
+  s.log({{"event", "listening"},
+         {"host", cfg.host},
+         {"port", port},
+         {"model", s.current()->id},
+         {"workers", cfg.workers},
+         {"queue", cfg.queue}});
+  s.server.listen_after_bind();
+  return true;
+}
+
+std::string Service::respond(std::string_view request) {
+  if (!prepare()) return {};
+  return state_->server.respond(request);
+}
+
+Result<bool> Service::prepare() {
+  State& s = *state_;
+  if (s.prepared) return true;
   const ServiceSettings& cfg = s.settings;
   if (!is_loopback(cfg.host) && cfg.token.empty() && !cfg.allow_unauthenticated) {
     return make_error(ErrorCode::kUnsupported,
@@ -305,6 +397,10 @@ Result<bool> Service::run() {
       // whatever its declared type (curl --data-binary declares a form) and a chunked body is held
       // to the same size limit. A multipart form must carry exactly one part, the file.
       std::string body;
+      if (req.has_header("Content-Length")) {  // no doubling reallocations for a large upload
+        body.reserve(std::min<std::size_t>(
+            std::strtoull(req.get_header_value("Content-Length").c_str(), nullptr, 10), cfg.max_body_bytes));
+      }
       size_t parts = 0;
       bool too_large = false;
       const auto append = [&](const char* data, size_t n) {
@@ -431,38 +527,7 @@ Result<bool> Service::run() {
     }
   });
 
-  std::signal(SIGHUP, on_sighup);
-  s.reload_watcher = std::thread([this] {
-    while (!state_->stopping) {
-      if (g_reload_requested.exchange(false)) {
-        auto loaded = load_model();
-        state_->log({{"event", "reload"},
-                     {"trigger", "SIGHUP"},
-                     {"ok", loaded.ok()},
-                     {"model", loaded ? Json(*loaded) : Json(loaded.error().message)}});
-      }
-      std::this_thread::sleep_for(std::chrono::milliseconds(100));
-    }
-  });
-
-  int port = cfg.port;
-  if (port == 0) {
-    port = server.bind_to_any_port(cfg.host);
-  } else if (!server.bind_to_port(cfg.host, port)) {
-    port = -1;
-  }
-  if (port < 0) {
-    stop();
-    return make_error(ErrorCode::kUnreadable, "cannot bind " + cfg.host + ":" + std::to_string(cfg.port));
-  }
-  s.settings.port = port;
-  s.log({{"event", "listening"},
-         {"host", cfg.host},
-         {"port", port},
-         {"model", s.current()->id},
-         {"workers", cfg.workers},
-         {"queue", cfg.queue}});
-  server.listen_after_bind();
+  s.prepared = true;
   return true;
 }
 

@@ -6,6 +6,7 @@
 #include <chrono>
 #include <memory>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "residue/features/status.hpp"
@@ -34,6 +35,10 @@ struct RedisReply {
   // The caller waits and tries again.
   [[nodiscard]] bool is_transient_error() const;
 };
+
+// The replies in `bytes` (RESP, the Redis serialisation protocol), parsed by hiredis's reader as a
+// connection parses them; kCorrupt for a protocol error. A reply cut off at the end is left out.
+Result<std::vector<RedisReply>> parse_redis_replies(std::string_view bytes);
 
 class RedisClient {
  public:

@@ -12,6 +12,7 @@
 
 #include <memory>
 #include <string>
+#include <string_view>
 
 #include "residue/detector/scan.hpp"
 
@@ -41,11 +42,17 @@ class Service {
   Result<std::string> load_model();
   // Binds and serves until stop(); returns an error when it cannot start.
   Result<bool> run();
+  // Answers one HTTP/1.1 request given as bytes (request line, headers, body), without a socket:
+  // the response's bytes, or empty when the service cannot start. For the request-handling tests
+  // and the fuzz target; everything but the socket is the same as under run().
+  std::string respond(std::string_view request);
   void stop();
   // The port actually bound (useful with port 0).
   [[nodiscard]] int port() const;
 
  private:
+  // Checks the settings, opens the access log, loads the model and sets up the routes, once.
+  Result<bool> prepare();
   struct State;
   std::unique_ptr<State> state_;
 };

@@ -69,7 +69,7 @@ struct EnqueueSettings {
   std::string stream;
   std::string batch;  // job ids are "<batch>/<n>"
   bool send_bytes = false;
-  std::uint64_t max_file_bytes = 256ULL << 20;  // with send_bytes: larger files are refused
+  std::uint64_t max_file_bytes = 200ULL << 20;  // with send_bytes: larger files are refused
   size_t pipeline = 500;                        // XADDs per round trip
 };
 

@@ -21,7 +21,7 @@
 namespace residue {
 
 struct DecodeLimits {
-  std::uint64_t max_file_bytes = 256ULL << 20;  // 256 MiB
+  std::uint64_t max_file_bytes = 200ULL << 20;  // 200 MiB: the file is held in memory (docs/reliability.md)
   std::uint64_t max_pixels = 120'000'000;       // 120 megapixels, from the header
   // JPEG, PNG, WebP and common TIFFs are decoded window by window (memory follows the windows);
   // BMP and the rarer TIFF layouts are decoded whole, about 20 bytes a pixel at the peak, so their

@@ -1,0 +1,97 @@
+#!/usr/bin/env bash
+# Builds the libFuzzer targets with clang under AddressSanitizer + UndefinedBehaviorSanitizer
+# (build-fuzz/) and runs one for SECONDS (or, with --runs N, for N executions), starting from a seed
+# corpus the tests' own generators write (fuzz-corpus/TARGET/, kept between runs; new inputs found
+# are added there). Crashes, leaks and timeouts are saved as fuzz-corpus/TARGET-crash-* and fail the
+# run. Needs scripts/setup.sh's packages plus clang and libclang-rt-dev (installed here if missing).
+# Usage: scripts/fuzz.sh TARGET SECONDS | scripts/fuzz.sh TARGET --runs N | scripts/fuzz.sh all --runs N
+#   TARGET: header extract model record redis_reply service
+set -euo pipefail
+cd "$(dirname "$0")/.."
+targets=(header extract model record redis_reply service)
+if [ $# -lt 2 ]; then
+  echo "usage: scripts/fuzz.sh TARGET SECONDS | TARGET --runs N   (TARGET: ${targets[*]} or all)" >&2
+  exit 2
+fi
+target=$1
+shift
+if [ "$1" = "--runs" ]; then limit=(-runs="$2"); else limit=(-max_total_time="$1"); fi
+
+missing=()
+for p in clang libclang-rt-dev; do
+  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "ok installed" || missing+=("$p")
+done
+if [ ${#missing[@]} -gt 0 ]; then
+  sudo_cmd=()
+  [ "$(id -u)" -ne 0 ] && sudo_cmd=(sudo)
+  "${sudo_cmd[@]}" apt-get update -qq
+  DEBIAN_FRONTEND=noninteractive "${sudo_cmd[@]}" apt-get install -y -qq --no-install-recommends "${missing[@]}"
+fi
+if [ ! -f build-fuzz/CMakeCache.txt ]; then
+  CC=clang CXX=clang++ cmake -S . -B build-fuzz -DCMAKE_BUILD_TYPE=RelWithDebInfo -DRESIDUE_FUZZ=ON > /dev/null
+fi
+cmake --build build-fuzz -j"$(nproc)" > /dev/null
+
+corpus=fuzz-corpus
+seeds() {  # seeds TARGET DIR: writes the seed inputs for TARGET into DIR
+  local t=$1 dir=$2
+  mkdir -p "$dir"
+  case $t in
+    header | extract)
+      /usr/bin/python3 tests/reference/make_files.py "$corpus/.files" > /dev/null
+      find "$corpus/.files" -type f -size -300k -exec cp {} "$dir/" \; ;;
+    model)
+      cp "$corpus/.model.json" "$dir/model.json" ;;
+    record)
+      printf '/photos/a.png' > "$dir/plain"
+      printf '/archive/\xff\xfe name.jpg' > "$dir/latin1"
+      printf '/x/caf\xc3\xa9 100%%41.png' > "$dir/utf8" ;;
+    redis_reply)
+      printf '+OK\r\n' > "$dir/status"
+      printf -- '-LOADING Redis is loading\r\n' > "$dir/error"
+      printf ':42\r\n' > "$dir/integer"
+      printf '$-1\r\n' > "$dir/nil"
+      printf '*1\r\n*2\r\n$6\r\njobs-1\r\n*1\r\n*2\r\n$15\r\n1700000000000-0\r\n*4\r\n$3\r\njob\r\n$1\r\n7\r\n$4\r\npath\r\n$6\r\n/a.png\r\n' > "$dir/xreadgroup" ;;
+    service)
+      local image
+      image=$(find "$corpus/.files" -name 'thumb_150x100.png' | head -1)
+      printf 'GET /v1/health HTTP/1.1\r\nHost: x\r\n\r\n' > "$dir/health"
+      printf 'GET /metrics HTTP/1.1\r\nHost: x\r\n\r\n' > "$dir/metrics"
+      printf 'GET /v1/model HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer fuzz-token\r\n\r\n' > "$dir/model"
+      printf 'POST /v1/score HTTP/1.1\r\nHost: x\r\nContent-Length: 40000000\r\n\r\n' > "$dir/no-token"
+      { printf 'POST /v1/score?prior=0.2 HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer fuzz-token\r\n'
+        printf 'Content-Type: application/x-www-form-urlencoded\r\nContent-Length: %d\r\n\r\n' "$(stat -c %s "$image")"
+        cat "$image"; } > "$dir/score"
+      { printf 'POST /v1/score HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer fuzz-token\r\n'
+        printf 'Transfer-Encoding: chunked\r\n\r\n5\r\nhello\r\n0\r\n\r\n'; } > "$dir/chunked"
+      { printf 'POST /v1/score HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer fuzz-token\r\n'
+        printf 'Content-Type: multipart/form-data; boundary=b\r\nContent-Length: 66\r\n\r\n'
+        printf -- '--b\r\nContent-Disposition: form-data; name="f"; filename="x"\r\n\r\nabc\r\n--b--\r\n'; } > "$dir/multipart" ;;
+  esac
+}
+
+model() {  # a small model for the model and service targets (simulated images)
+  if [ ! -f "$corpus/.model.json" ]; then
+    mkdir -p "$corpus"
+    /usr/bin/python3 tests/cli/make_labelled.py "$corpus/.train" 1 jpeg png 12 > /dev/null
+    build/residue train "$corpus/.train" -o "$corpus/.model.json" --no-cache --augment none --folds 3 > /dev/null 2>&1 ||
+      { echo "fuzz.sh: training the fuzz model needs build/residue (scripts/setup.sh)" >&2; exit 1; }
+  fi
+  export RESIDUE_FUZZ_MODEL="$PWD/$corpus/.model.json"
+}
+
+run_one() {
+  local t=$1
+  [ -d "$corpus/$t" ] || seeds "$t" "$corpus/$t"
+  echo "== fuzz_$t ${limit[*]}"
+  # The seeds live in fuzz-corpus/TARGET; new inputs go there too.
+  build-fuzz/fuzz/fuzz_"$t" "$corpus/$t" "${limit[@]}" -rss_limit_mb=2560 -timeout=25 -max_len=400000 \
+    -artifact_prefix="$corpus/$t-" -print_final_stats=1 2>&1 | tail -25
+}
+
+model
+if [ "$target" = all ]; then
+  for t in "${targets[@]}"; do run_one "$t"; done
+else
+  run_one "$target"
+fi
