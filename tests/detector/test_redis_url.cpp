@@ -63,3 +63,29 @@ TEST_CASE("Redis error replies: 'not now' is told apart from 'never'") {
   status.text = "LOADING";
   CHECK_FALSE(status.is_transient_error());  // only error replies
 }
+
+TEST_CASE(
+    "Redis replies: the protocol specification's examples (RESP2, redis.io/docs/reference/protocol-spec)") {
+  auto r = parse_redis_replies(
+      "+OK\r\n:1000\r\n$5\r\nhello\r\n$-1\r\n*2\r\n$3\r\nfoo\r\n$3\r\nbar\r\n-ERR unknown command\r\n");
+  REQUIRE(r);
+  REQUIRE(r->size() == 6);
+  CHECK((*r)[0].type == RedisReply::Type::kStatus);
+  CHECK((*r)[0].text == "OK");
+  CHECK((*r)[1].integer == 1000);
+  CHECK((*r)[2].text == "hello");
+  CHECK((*r)[3].is_nil());
+  REQUIRE((*r)[4].elements.size() == 2);
+  CHECK((*r)[4].elements[1].text == "bar");
+  CHECK((*r)[5].is_error());
+  CHECK((*r)[5].text == "ERR unknown command");
+  // Binary-safe bulk strings: a CR LF and a NUL inside the payload.
+  auto bin = parse_redis_replies(std::string("$4\r\na\r\n\0\r\n", 10));
+  REQUIRE(bin);
+  CHECK((*bin)[0].text == std::string("a\r\n\0", 4));
+  // A reply cut off at the end is left out; a protocol error is an error.
+  auto cut = parse_redis_replies("+OK\r\n$10\r\nhal");
+  REQUIRE(cut);
+  CHECK(cut->size() == 1);
+  CHECK_FALSE(parse_redis_replies("?what\r\n"));
+}
