@@ -17,6 +17,7 @@ std::uint32_t be32(Bytes b, size_t i) {
   return (std::uint32_t{b[i]} << 24) | (b[i + 1] << 16) | (b[i + 2] << 8) | b[i + 3];
 }
 std::uint32_t le16(Bytes b, size_t i) { return b[i] | (b[i + 1] << 8); }
+std::uint32_t le24(Bytes b, size_t i) { return b[i] | (b[i + 1] << 8) | (b[i + 2] << 16); }
 std::uint32_t le32(Bytes b, size_t i) {
   return b[i] | (b[i + 1] << 8) | (b[i + 2] << 16) | (std::uint32_t{b[i + 3]} << 24);
 }
@@ -131,8 +132,9 @@ Result<ImageHeader> webp_header(Bytes b) {
     h.height = static_cast<int>(((bits >> 14) & 0x3FFF) + 1);
     h.channels = (bits >> 28) & 1 ? 4 : 3;
   } else if (chunk == "VP8X") {
-    h.width = static_cast<int>((le32(b, 24) & 0xFFFFFF) + 1);
-    h.height = static_cast<int>((le32(b, 27) & 0xFFFFFF) + 1);
+    // Canvas width and height minus one, 24 bits each at offsets 24 and 27 (RFC 9649, 2.7).
+    h.width = static_cast<int>(le24(b, 24) + 1);
+    h.height = static_cast<int>(le24(b, 27) + 1);
     h.channels = (b[20] & 0x10) ? 4 : 3;
   } else {
     return make_error(ErrorCode::kCorrupt, "WebP has an unknown first chunk '" + chunk + "'");

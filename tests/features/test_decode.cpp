@@ -200,6 +200,19 @@ TEST_CASE("TIFF windows read scanline by scanline equal OpenCV's whole-image dec
   CHECK(decode_path("tif_lzw.tif", small).ok());  // read by scanline: the smaller limit does not apply
 }
 
+TEST_CASE("inputs the fuzz targets found, kept as regressions (run under the sanitizers in CI)") {
+  // fuzz_header, 2026-12-03: a 30-byte VP8X WebP; the canvas height was read as 32 bits at offset
+  // 27, one byte past the end. It is 24 bits (RFC 9649, section 2.7).
+  const std::vector<std::uint8_t> vp8x = {0x52, 0x49, 0x46, 0x46, 0x76, 0x0e, 0x02, 0x00, 0x57, 0x45,
+                                          0x42, 0x50, 0x56, 0x50, 0x38, 0x58, 0x0a, 0xd4, 0x48, 0x43,
+                                          0x32, 0x0f, 0xc1, 0x73, 0x75, 0x41, 0xf9, 0xf8, 0x00, 0x23};
+  auto h = read_header(vp8x);
+  REQUIRE(h.ok());
+  CHECK(h->width == 0xf94175 + 1);  // bytes 24-26: 75 41 f9, little-endian
+  CHECK(h->height == 0x2300f8 + 1);  // bytes 27-29: f8 00 23
+  CHECK_FALSE(decode_windows(vp8x).ok());
+}
+
 TEST_CASE("bad input gives the right typed error") {
   CHECK(code_of("empty.jpg") == ErrorCode::kEmpty);
   CHECK(code_of("truncated_half.jpg") == ErrorCode::kTruncated);
