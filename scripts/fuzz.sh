@@ -86,10 +86,11 @@ run_one() {
   echo "== fuzz_$t ${limit[*]}"
   # The seeds live in fuzz-corpus/TARGET; new inputs go there too.
   build-fuzz/fuzz/fuzz_"$t" "$corpus/$t" "${limit[@]}" -rss_limit_mb=2560 -timeout=25 -max_len=400000 \
-    -artifact_prefix="$corpus/$t-" -print_final_stats=1 2>&1 | tail -25
+    -artifact_prefix="$corpus/$t-" -print_final_stats=1 2>&1 | grep -v "^#[0-9]*\s*\(NEW\|REDUCE\|pulse\)" | tail -60
 }
 
 model
+export UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1
 if [ "$target" = all ]; then
   for t in "${targets[@]}"; do run_one "$t"; done
 else

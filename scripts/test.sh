@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Sets up (Debian packages), builds, and runs every test: a release build, then the same tests
-# under AddressSanitizer and UndefinedBehaviorSanitizer.
+# under AddressSanitizer and UndefinedBehaviorSanitizer, then each fuzz target briefly.
 # Usage: scripts/test.sh [--no-sanitizers]
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -16,4 +16,6 @@ if [ "${1:-}" != "--no-sanitizers" ]; then
   cmake -S . -B build-asan -DCMAKE_BUILD_TYPE=RelWithDebInfo -DRESIDUE_SANITIZE=ON
   cmake --build build-asan -j"$jobs"
   UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ctest --test-dir build-asan -j"$jobs" --output-on-failure
+  # The fuzz targets keep building and each runs briefly from its seed corpus (docs/reliability.md).
+  scripts/fuzz.sh all --runs 2000
 fi
