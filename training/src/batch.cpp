@@ -25,7 +25,10 @@ ExpandedInputs expand_inputs(const std::vector<std::string>& inputs, std::istrea
         out.problems.emplace_back(input, "error while listing: " + ec.message());
         break;
       }
-      if (it->is_regular_file(ec)) found.push_back(it->path().string());
+      // Folders are descended into; everything else is listed, so that a FIFO, a socket, a device
+      // or a broken link gets its own error record instead of vanishing from the batch (read_file
+      // refuses what is not a regular file without opening it).
+      if (!it->is_directory(ec)) found.push_back(it->path().string());
     }
     std::sort(found.begin(), found.end());
     out.files.insert(out.files.end(), found.begin(), found.end());
