@@ -14,18 +14,11 @@ packages=(
   python3 python3-numpy python3-scipy python3-skimage python3-pil python3-sklearn exiv2
   # a real Redis server for the work-queue tests (they start their own on loopback)
   redis-server redis-tools
+  # GNU time, for the peak memory the bad-batch test checks
+  time
 )
 
-missing=()
-for p in "${packages[@]}"; do
-  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "ok installed" || missing+=("$p")
-done
-if [ ${#missing[@]} -gt 0 ]; then
-  sudo_cmd=()
-  [ "$(id -u)" -ne 0 ] && sudo_cmd=(sudo)
-  "${sudo_cmd[@]}" apt-get update -qq
-  DEBIAN_FRONTEND=noninteractive "${sudo_cmd[@]}" apt-get install -y -qq --no-install-recommends "${missing[@]}"
-fi
+scripts/install_packages.sh "${packages[@]}"
 
 if [ "${1:-}" != "--no-build" ]; then
   cmake -S . -B build -DCMAKE_BUILD_TYPE=Release
