@@ -178,7 +178,7 @@ nlohmann::ordered_json features_record(const std::string& path, const Extraction
         {"processing", e.timings.processing_ms},
         {"total", e.timings.total_ms}}},
   };
-  for (auto& [key, value] : rest.items()) r[key] = std::move(value);
+  r.update(rest);
   return r;
 }
 

@@ -154,6 +154,7 @@ Result<std::vector<std::uint8_t>> encode_palette_png(
   }
   std::vector<std::uint8_t> out;
   std::vector<png_color> colours;
+  colours.reserve(palette.size());
   for (const auto& c : palette) colours.push_back({c[0], c[1], c[2]});
   std::vector<png_const_bytep> rows(static_cast<size_t>(height));
   for (int y = 0; y < height; ++y)

@@ -54,7 +54,8 @@ Result<WindowPixels> decode_webp_tiles(std::span<const std::uint8_t> bytes, cons
     auto [it, fresh] = bands.try_emplace(o.y, o.x, o.x + layout.size);
     if (!fresh)
       it->second = {std::min(it->second.first, o.x), std::max(it->second.second, o.x + layout.size)};
-    out.tiles.push_back(Tile{o.x, o.y, layout.size, 3, std::vector<float>(3U * layout.size * layout.size)});
+    out.tiles.push_back(
+        Tile{o.x, o.y, layout.size, 3, std::vector<float>(size_t{3} * layout.size * layout.size)});
   }
   for (const auto& [y, span] : bands) {
     // Crop origins are even (libwebp rounds them down for 4:2:0 chroma); window origins are
