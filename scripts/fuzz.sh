@@ -77,7 +77,7 @@ run_one() {
   echo "== fuzz_$t ${limit[*]}"
   # The seeds live in fuzz-corpus/TARGET; new inputs go there too.
   build-fuzz/fuzz/fuzz_"$t" "$corpus/$t" "${limit[@]}" -rss_limit_mb=2560 -timeout=25 -max_len=400000 \
-    -artifact_prefix="$corpus/$t-" -print_final_stats=1 2>&1 | grep -v "^#[0-9]*\s*\(NEW\|REDUCE\|pulse\)" | tail -60
+    -artifact_prefix="$corpus/$t-" -print_final_stats=1 2>&1 | grep -v -e "^#[0-9]*\s*\(NEW\|REDUCE\|pulse\)" -e "^\"" -e "^######" | tail -60
 }
 
 model
