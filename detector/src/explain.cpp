@@ -98,7 +98,11 @@ Result<Explanation> explain_image(const std::string& image, const Model& model, 
       "Pictures: noise_residual.png (centre of the image), residual_spectrum.png (red marks at the N/8 grid\n"
       "where upsampling leaves peaks), resampling_pmap_spectrum.png, contributions.svg\n\n" +
       std::string(kAdvisoryNotice) + "\n";
-  if (!ok || !write_file_atomically(dir / "summary.json", summary.dump(2) + "\n").ok() ||
+  if (!ok ||
+      !write_file_atomically(
+           dir / "summary.json",
+           summary.dump(2, ' ', false, nlohmann::ordered_json::error_handler_t::replace) + "\n")
+           .ok() ||
       !write_file_atomically(dir / "summary.txt", text).ok()) {
     return make_error(ErrorCode::kInternal, "cannot write into " + output_dir.string());
   }
