@@ -205,4 +205,18 @@ TEST_CASE("a model round-trips through its file; wrong extractor or damaged file
   REQUIRE_FALSE(cut.ok());
   CHECK(cut.error().code == ErrorCode::kCorrupt);
   CHECK_FALSE(load_model(test::scratch() / "absent.json").ok());
+  // fuzz_model, 2026-12-03: a negative fractional count (converting -1.03 to an unsigned count is
+  // undefined behaviour) and a histogram bin that is not a number are refused, not crashed on.
+  auto counted = model_to_json(m);
+  counted["thresholds"]["promise"] = {{"confidence", 0.95},
+                                      {"camera_images", -1.03},
+                                      {"camera_groups", 3},
+                                      {"false_positive_images", 0},
+                                      {"false_positive_groups", 0},
+                                      {"fpr_upper_bound", 0.5},
+                                      {"met", false},
+                                      {"groups_needed", 5}};
+  auto negative = model_from_json(nlohmann::json::parse(counted.dump()));
+  REQUIRE_FALSE(negative.ok());
+  CHECK(negative.error().code == ErrorCode::kCorrupt);
 }

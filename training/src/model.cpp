@@ -1,8 +1,10 @@
 #include "residue/training/model.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <fstream>
+#include <set>
 #include <sstream>
 
 #include "residue/features/fingerprint.hpp"
@@ -170,7 +172,45 @@ nlohmann::ordered_json model_to_json(const Model& m) {
   return j;
 }
 
+namespace {
+
+// The values the loader converts to integers (counts, indices, histogram bins) must be JSON
+// integers: converting a floating-point value out of the integer's range, a negative count say, is
+// undefined behaviour in the conversion (found by fuzz_model). `key` is the member holding `j`.
+bool counts_are_integers(const nlohmann::json& j, const std::string& key) {
+  static const std::set<std::string> kCounts = {"camera_images",
+                                                "camera_groups",
+                                                "false_positive_images",
+                                                "false_positive_groups",
+                                                "groups_needed",
+                                                "min_support",
+                                                "columns",
+                                                "images",
+                                                "quantised",
+                                                "lossy_webp",
+                                                "screenshot_like",
+                                                "double_jpeg",
+                                                "format_version"};
+  if (j.is_object()) {
+    for (const auto& [k, v] : j.items()) {
+      if (!counts_are_integers(v, k)) return false;
+    }
+    return true;
+  }
+  if (j.is_array()) {
+    return std::all_of(j.begin(), j.end(),
+                       [&](const nlohmann::json& v) { return counts_are_integers(v, key); });
+  }
+  const bool bin = !key.empty() && key.find_first_not_of("-0123456789") == std::string::npos;
+  return !((kCounts.count(key) != 0 || bin) && j.is_number_float());
+}
+
+}  // namespace
+
 Result<Model> model_from_json(const nlohmann::json& j) {
+  if (!counts_are_integers(j, "")) {
+    return make_error(ErrorCode::kCorrupt, "model file is damaged: a count or index is not a whole number");
+  }
   try {
     if (j.at("format") != kModelFormat)
       return make_error(ErrorCode::kUnsupported, "not a residue model file");
@@ -254,6 +294,8 @@ Result<Model> model_from_json(const nlohmann::json& j) {
     return m;
   } catch (const nlohmann::json::exception& e) {
     return make_error(ErrorCode::kCorrupt, std::string("model file is incomplete or damaged: ") + e.what());
+  } catch (const std::exception& e) {  // e.g. std::stoi on a histogram key that is not a number
+    return make_error(ErrorCode::kCorrupt, std::string("model file is damaged: ") + e.what());
   }
 }
 
