@@ -4,7 +4,7 @@
 # corpus the tests' own generators write (fuzz-corpus/TARGET/, kept between runs; new inputs found
 # are added there). Crashes, leaks and timeouts are saved as fuzz-corpus/TARGET-crash-* and fail the
 # run. Needs scripts/setup.sh's packages plus clang and libclang-rt-dev (installed here if missing).
-# Usage: scripts/fuzz.sh TARGET SECONDS | scripts/fuzz.sh TARGET --runs N | scripts/fuzz.sh all --runs N
+# Usage: scripts/fuzz.sh TARGET SECONDS | scripts/fuzz.sh TARGET --runs N | scripts/fuzz.sh all SECONDS
 #   TARGET: header extract model record redis_reply service
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -28,9 +28,32 @@ seeds() {  # seeds TARGET DIR: writes the seed inputs for TARGET into DIR
   local t=$1 dir=$2
   mkdir -p "$dir"
   case $t in
-    header | extract)
+    header)
       /usr/bin/python3 tests/reference/make_files.py "$corpus/.files" > /dev/null
       find "$corpus/.files" -type f -size -300k -exec cp {} "$dir/" \; ;;
+    extract)
+      # Small images of every container and layout, so that one execution (every family, under the
+      # sanitizers) stays well under a second; the header target has the large ones.
+      /usr/bin/python3 - "$dir" <<'PY'
+import sys
+import numpy as np
+import skimage.data as data
+from PIL import Image
+out, photo = sys.argv[1], data.astronaut()
+for size in (64, 96):
+    im = Image.fromarray(photo[100:100 + size, 180:180 + size])
+    im.save(f"{out}/rgb{size}.png")
+    im.save(f"{out}/rgb{size}.jpg", quality=85)
+    im.save(f"{out}/rgb{size}.webp", quality=80)
+    im.save(f"{out}/rgb{size}.tif")
+    im.save(f"{out}/rgb{size}.bmp")
+    im.convert("L").save(f"{out}/grey{size}.png")
+    im.quantize(64).save(f"{out}/palette{size}.png")
+    im.convert("RGBA").save(f"{out}/rgba{size}.webp", lossless=True)
+    Image.fromarray(np.asarray(im.convert("L"), np.uint16) * 257).save(f"{out}/grey16_{size}.png")
+    im.save(f"{out}/progressive{size}.jpg", quality=70, progressive=True)
+PY
+      ;;
     model)
       cp "$corpus/.model.json" "$dir/model.json" ;;
     record)
@@ -72,11 +95,12 @@ model() {  # a small model for the model and service targets (simulated images)
 }
 
 run_one() {
-  local t=$1
+  local t=$1 max_len=400000
+  [ "$t" = extract ] && max_len=65536
   [ -d "$corpus/$t" ] || seeds "$t" "$corpus/$t"
   echo "== fuzz_$t ${limit[*]}"
   # The seeds live in fuzz-corpus/TARGET; new inputs go there too.
-  build-fuzz/fuzz/fuzz_"$t" "$corpus/$t" "${limit[@]}" -rss_limit_mb=2560 -timeout=25 -max_len=400000 \
+  build-fuzz/fuzz/fuzz_"$t" "$corpus/$t" "${limit[@]}" -rss_limit_mb=2560 -timeout=25 -max_len="$max_len" \
     -artifact_prefix="$corpus/$t-" -print_final_stats=1 2>&1 | grep -v -e "^#[0-9]*\s*\(NEW\|REDUCE\|pulse\)" -e "^\"" -e "^######" | tail -60
 }
 

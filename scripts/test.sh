@@ -17,5 +17,5 @@ if [ "${1:-}" != "--no-sanitizers" ]; then
   cmake --build build-asan -j"$jobs"
   UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ctest --test-dir build-asan -j"$jobs" --output-on-failure
   # The fuzz targets keep building and each runs briefly from its seed corpus (docs/reliability.md).
-  scripts/fuzz.sh all --runs 2000
+  scripts/fuzz.sh all 20
 fi
