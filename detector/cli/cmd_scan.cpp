@@ -98,9 +98,16 @@ std::string csv_line(const nlohmann::ordered_json& r) {
 std::string table_line(const nlohmann::ordered_json& r) {
   char line[512];
   const std::string path = r["path"];  // valid UTF-8 (set_path)
-  const std::string shown = path.size() > 48 ? "…" + path.substr(path.size() - 47) : path;
+  // Padded to 48 characters, not bytes (a name's accents or U+FFFD take several bytes, one column);
+  // a longer path keeps its last 47 characters.
+  std::vector<size_t> starts;  // byte offset of each character
+  for (size_t i = 0; i < path.size(); ++i) {
+    if ((static_cast<unsigned char>(path[i]) & 0xC0) != 0x80) starts.push_back(i);
+  }
+  std::string shown = starts.size() > 48 ? "…" + path.substr(starts[starts.size() - 47]) : path;
+  shown += std::string(48 - std::min<size_t>(48, starts.size()), ' ');
   if (r.contains("error")) {
-    std::snprintf(line, sizeof line, "%-48s  error %s: %s\n", shown.c_str(),
+    std::snprintf(line, sizeof line, "%s  error %s: %s\n", shown.c_str(),
                   r["error"]["code"].get<std::string>().c_str(),
                   r["error"]["message"].get<std::string>().c_str());
   } else {
@@ -108,8 +115,8 @@ std::string table_line(const nlohmann::ordered_json& r) {
         r["declared"].is_null()
             ? ""
             : (r["declared"]["declares_generated"].get<bool>() ? "declares generated" : "");
-    std::snprintf(line, sizeof line, "%-48s  %6.3f  %-16s %s\n", shown.c_str(),
-                  r["p_generated"].get<double>(), r["band"].get<std::string>().c_str(), declared.c_str());
+    std::snprintf(line, sizeof line, "%s  %6.3f  %-16s %s\n", shown.c_str(), r["p_generated"].get<double>(),
+                  r["band"].get<std::string>().c_str(), declared.c_str());
   }
   return line;
 }
