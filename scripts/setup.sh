@@ -14,8 +14,9 @@ packages=(
   python3 python3-numpy python3-scipy python3-skimage python3-pil python3-sklearn exiv2
   # a real Redis server for the work-queue tests (they start their own on loopback)
   redis-server redis-tools
-  # GNU time, for the peak memory the bad-batch test checks
-  time
+  # GNU time, for the peak memory the bad-batch test checks; promtool (in Debian's prometheus
+  # package) for the service test's check of /metrics
+  time prometheus
 )
 
 scripts/install_packages.sh "${packages[@]}"

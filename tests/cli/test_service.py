@@ -197,6 +197,9 @@ with tempfile.TemporaryDirectory() as tmp:
         status, _, body = request(base + "/metrics")
         text = body.decode()
         check('residue_requests_total{route="/v1/score",status="200"}' in text, "metrics count requests by status")
+        # The exposition format checked by Prometheus's own linter (promtool, Debian package prometheus).
+        lint = subprocess.run(["promtool", "check", "metrics"], input=text, capture_output=True, text=True)
+        check(lint.returncode == 0, f"promtool check metrics accepts /metrics: {lint.stdout}{lint.stderr}")
         check("residue_request_duration_seconds_bucket" in text and "residue_queue_depth" in text
               and 'residue_scores_total{band="likely-camera"}' in text, "metrics: latency histogram, queue, bands")
 
