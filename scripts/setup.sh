@@ -12,6 +12,8 @@ packages=(
   libjpeg62-turbo-dev libpng-dev libwebp-dev libtiff-dev
   # reference libraries for the tests (Debian's, used by /usr/bin/python3)
   python3 python3-numpy python3-scipy python3-skimage python3-pil python3-sklearn exiv2
+  # the service test checks every response against docs/openapi.yaml
+  python3-jsonschema python3-yaml
   # a real Redis server for the work-queue tests (they start their own on loopback)
   redis-server redis-tools
   # GNU time, for the peak memory the bad-batch test checks; promtool (in Debian's prometheus

@@ -25,9 +25,12 @@ from PIL import Image
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from harness import check, finish, runner  # noqa: E402
+import openapi_check  # noqa: E402
 
 residue = sys.argv[1]
 run = runner(residue)
+lock = threading.Lock()
+validated = [0]  # responses checked against docs/openapi.yaml
 here = os.path.dirname(os.path.abspath(__file__))
 
 
@@ -39,13 +42,26 @@ def start(model, *extra):
     return proc, f"http://127.0.0.1:{port}"
 
 
+def documented(path, method, status, payload):
+    """Every JSON answer is checked against docs/openapi.yaml (tests/cli/openapi_check.py)."""
+    if not payload.startswith(b"{"):
+        return
+    problem = openapi_check.validate(path, method, status, json.loads(payload))
+    check(problem is None, f"response matches docs/openapi.yaml: {problem}")
+    with lock:
+        validated[0] += 1
+
+
 def request(url, body=None, method=None, headers=None, timeout=30):
     req = urllib.request.Request(url, data=body, method=method, headers=headers or {})
+    path = "/" + url.split("/", 3)[3]
     try:
         with urllib.request.urlopen(req, timeout=timeout) as r:
-            return r.status, dict(r.headers), r.read()
+            answer = r.status, dict(r.headers), r.read()
     except urllib.error.HTTPError as e:
-        return e.code, dict(e.headers), e.read()
+        answer = e.code, dict(e.headers), e.read()
+    documented(path, req.get_method(), answer[0], answer[2])
+    return answer
 
 
 def score(base, data, headers=None, query=""):
@@ -76,6 +92,8 @@ def raw(base, head, body=b"", timeout=5):
         return None, seconds, None
     status = int(answer.split(b" ", 2)[1])
     payload = answer.split(b"\r\n\r\n", 1)[1] if b"\r\n\r\n" in answer else b""
+    method, path = head.split(" ")[:2]
+    documented(path, method, status, payload)
     return status, seconds, json.loads(payload) if payload.startswith(b"{") else None
 
 
@@ -179,7 +197,7 @@ with tempfile.TemporaryDirectory() as tmp:
                 check(status == want and seconds < 2, f"{what}: {want} without reading the body ({status}, {seconds:.1f} s)")
 
         # 200 concurrent requests from 8 threads: all answered, scores identical to scan.
-        results, lock = [], threading.Lock()
+        results = []
 
         def client(k):
             for i in range(25):
@@ -318,4 +336,5 @@ with tempfile.TemporaryDirectory() as tmp:
     finally:
         stop(proc)
 
+check(validated[0] > 250, f"every JSON response was checked against docs/openapi.yaml ({validated[0]})")
 finish()
