@@ -130,26 +130,26 @@ Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const
     out.decoded_rows = jpeg->decoded_rows;
     out.decoder_warnings = jpeg->warnings;
     out.tiles = skip_unused_rows ? std::move(jpeg->tiles) : cut_tiles(jpeg->full, out.layout);
-  } else if (header->format == ImageFormat::kPng || header->format == ImageFormat::kWebp) {
-    // Streamed or banded: memory follows the windows, not the image (docs/reliability.md).
-    auto part = header->format == ImageFormat::kPng ? detail::decode_png_tiles(bytes, out.layout)
-                                                    : detail::decode_webp_tiles(bytes, out.layout);
-    if (!part) return part.error();
-    out.tiles = std::move(part->tiles);
-    out.alpha_dropped = part->alpha_dropped;
-    out.decoded_rows = part->decoded_rows;
-    out.decoder_warnings = part->warnings;
   } else {
-    if (header->format == ImageFormat::kTiff) {
-      auto part = detail::decode_tiff_tiles(bytes, out.layout);
-      if (!part) return part.error();
-      if (*part) {
-        out.tiles = std::move((*part)->tiles);
-        out.alpha_dropped = (*part)->alpha_dropped;
-        out.decoded_rows = (*part)->decoded_rows;
-        out.channels = out.tiles.empty() ? 0 : out.tiles.front().channels;
-        return out;
-      }
+    // PNG, WebP and the common TIFFs window by window: memory follows the windows, not the image
+    // (docs/reliability.md). A TIFF in a rarer layout comes back empty and is decoded whole below.
+    using Part = Result<std::optional<detail::WindowPixels>>;
+    const auto always = [](Result<detail::WindowPixels> r) -> Part {
+      if (!r) return r.error();
+      return std::optional(std::move(*r));
+    };
+    Part part = std::optional<detail::WindowPixels>();
+    if (header->format == ImageFormat::kPng) part = always(detail::decode_png_tiles(bytes, out.layout));
+    if (header->format == ImageFormat::kWebp) part = always(detail::decode_webp_tiles(bytes, out.layout));
+    if (header->format == ImageFormat::kTiff) part = detail::decode_tiff_tiles(bytes, out.layout);
+    if (!part) return part.error();
+    if (*part) {
+      out.tiles = std::move((*part)->tiles);
+      out.alpha_dropped = (*part)->alpha_dropped;
+      out.decoded_rows = (*part)->decoded_rows;
+      out.decoder_warnings = (*part)->warnings;
+      out.channels = out.tiles.empty() ? 0 : out.tiles.front().channels;
+      return out;
     }
     // BMP and the rarer TIFF layouts are decoded whole (about 20 bytes a pixel at the peak), so
     // they have their own, smaller pixel limit.

@@ -81,7 +81,6 @@ Result<WindowPixels> decode_png_tiles(std::span<const std::uint8_t> bytes, const
   // Everything that lives across the jump is declared before setjmp.
   std::vector<png_byte> scratch;
   std::map<int, std::vector<png_byte>> kept;  // interlaced images: the rows the windows need
-  int width = 0;
   int height = 0;
   if (setjmp(png_jmpbuf(png)) != 0) {  // NOLINT(cert-err52-cpp): libpng reports errors by longjmp
     png_destroy_read_struct(&png, &info, nullptr);
@@ -91,7 +90,6 @@ Result<WindowPixels> decode_png_tiles(std::span<const std::uint8_t> bytes, const
   png_set_read_fn(png, &src, take);
   png_set_user_limits(png, 0x7fffffff, 0x7fffffff);  // the header check already bounded the size
   png_read_info(png, info);
-  width = static_cast<int>(png_get_image_width(png, info));
   height = static_cast<int>(png_get_image_height(png, info));
   const int colour = png_get_color_type(png, info);
   const int depth = png_get_bit_depth(png, info);
@@ -136,7 +134,6 @@ Result<WindowPixels> decode_png_tiles(std::span<const std::uint8_t> bytes, const
   png_read_end(png, nullptr);
   png_destroy_read_struct(&png, &info, nullptr);
   out.decoded_rows = static_cast<std::uint64_t>(height);
-  (void)width;
   return out;
 }
 

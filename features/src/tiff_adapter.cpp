@@ -1,6 +1,6 @@
 // libtiff adapter: reads a TIFF scanline by scanline into the analysis windows, so that memory
 // follows the windows, not the image. Only the common layouts are read this way (see
-// tiff_streamable); the others go through OpenCV's whole-image decode, under a smaller pixel limit.
+// decode_tiff_tiles); the others go through OpenCV's whole-image decode, under a smaller pixel limit.
 #include <tiffio.h>
 
 #include <algorithm>
