@@ -115,8 +115,8 @@ const Route* find_route(const std::string& path) {
   return nullptr;
 }
 
-// One connection's bytes in memory in place of a socket: what the request-handling tests and the
-// fuzz target feed the server.
+// One connection's bytes in memory in place of a socket: what the fuzz target (tests/fuzz/
+// fuzz_service.cpp) feeds the server.
 class MemoryStream : public httplib::Stream {
  public:
   explicit MemoryStream(std::string_view input) : input_(input) {}

@@ -43,8 +43,8 @@ class Service {
   // Binds and serves until stop(); returns an error when it cannot start.
   Result<bool> run();
   // Answers one HTTP/1.1 request given as bytes (request line, headers, body), without a socket:
-  // the response's bytes, or empty when the service cannot start. For the request-handling tests
-  // and the fuzz target; everything but the socket is the same as under run().
+  // the response's bytes, or empty when the service cannot start. For the fuzz target; everything
+  // but the socket is the same as under run().
   std::string respond(std::string_view request);
   void stop();
   // The port actually bound (useful with port 0).
