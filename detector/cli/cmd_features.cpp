@@ -1,5 +1,4 @@
 // `residue features FILE...`: one JSON object per file with the named trace values.
-#include <fstream>
 #include <iostream>
 #include <memory>
 #include <thread>
@@ -24,7 +23,6 @@ struct FeaturesArgs {
 int run_features(const FeaturesArgs& args) {
   const auto expanded = expand_inputs(args.inputs, std::cin);
   AtomicTextFile file;
-  std::ostream* out = &std::cout;
   if (!args.output.empty()) {
     auto opened = AtomicTextFile::open(args.output);
     if (!opened) {
@@ -32,19 +30,26 @@ int run_features(const FeaturesArgs& args) {
       return static_cast<int>(ExitCode::kFailure);
     }
     file = std::move(*opened);
-    out = &file.stream();
   }
+  const auto emit = [&](const nlohmann::ordered_json& record) {
+    const std::string line = record_line(record) + "\n";
+    if (args.output.empty()) {
+      std::cout << line;
+    } else {
+      file.write(line);
+    }
+  };
   size_t failed = expanded.problems.size();
   for (const auto& [path, message] : expanded.problems) {
-    *out << record_line(error_record(path, {ErrorCode::kUnreadable, message})) << "\n";
+    emit(error_record(path, {ErrorCode::kUnreadable, message}));
   }
   extract_batch(expanded.files, args.extract, args.jobs,
                 [&](size_t, const std::string& path, const Result<Extraction>& result) {
                   if (result) {
-                    *out << record_line(features_record(path, *result)) << "\n";
+                    emit(features_record(path, *result));
                   } else {
                     ++failed;
-                    *out << record_line(error_record(path, result.error())) << "\n";
+                    emit(error_record(path, result.error()));
                   }
                 });
   if (!args.output.empty()) {

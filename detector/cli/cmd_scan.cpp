@@ -3,7 +3,10 @@
 #include <fnmatch.h>
 
 #include <algorithm>
+#include <atomic>
+#include <cerrno>
 #include <cstdio>
+#include <cstring>
 #include <fstream>
 #include <iostream>
 #include <map>
@@ -145,6 +148,11 @@ int run_scan(ScanArgs& args) {
   }
   Done done;
   std::string output = args.output;
+  if (!args.resume.empty() && args.format != "jsonl") {
+    // The earlier output is read back record by record, which only JSON lines allow.
+    std::cerr << "residue scan: --resume reads and appends JSON lines; use --format jsonl\n";
+    return static_cast<int>(ExitCode::kUsage);
+  }
   if (!args.resume.empty()) {
     auto loaded = load_resume(args.resume);
     if (!loaded) {
@@ -170,6 +178,10 @@ int run_scan(ScanArgs& args) {
   size_t failed = 0;
   size_t written = 0;
   size_t skipped = 0;
+  // A write that fails (disk full, file size limit) stops the scan; --resume OUTPUT later cuts a
+  // half-written last line and carries on.
+  std::atomic<bool> write_failed{false};
+  int write_errno = 0;
   for (const auto& [path, message] : expanded.problems) {
     *out << record_line(error_record(path, {ErrorCode::kUnreadable, message})) << "\n";
     ++failed;
@@ -179,6 +191,7 @@ int run_scan(ScanArgs& args) {
   ordered_parallel<nlohmann::ordered_json>(
       paths.size(), args.jobs,
       [&](size_t i) -> nlohmann::ordered_json {
+        if (write_failed) return {{"stopped", true}};
         // Inputs already in the resumed output come back as {"already": failed?}.
         if (const auto it = done.paths.find(paths[i]); it != done.paths.end())
           return {{"already", it->second}};
@@ -192,6 +205,7 @@ int run_scan(ScanArgs& args) {
         return r;
       },
       [&](size_t i, nlohmann::ordered_json& r) {
+        if (write_failed || r.contains("stopped")) return;
         if (r.contains("already")) {
           ++skipped;
           if (r["already"].get<bool>()) ++failed;  // still failed, so the exit status says so
@@ -201,6 +215,7 @@ int run_scan(ScanArgs& args) {
           } else {
             ++bands[r["band"].get<std::string>()];
           }
+          errno = 0;  // so that a failed write below leaves its reason
           if (args.format == "csv") {
             *out << csv_line(r);
           } else if (args.format == "table") {
@@ -209,12 +224,28 @@ int run_scan(ScanArgs& args) {
             *out << record_line(r) << "\n";
           }
           out->flush();  // a killed scan loses at most the line being written
+          if (!*out) {
+            write_errno = errno;
+            write_failed = true;
+            return;
+          }
           ++written;
         }
         bar.update(i + 1, paths.size());
       });
-  if (args.format == "table") {
+  if (args.format == "table" && !write_failed) {
     *out << "\n" << kAdvisoryNotice << "\n";
+  }
+  if (write_failed) {
+    const std::string where = output.empty() ? "standard output" : output;
+    std::cerr << "residue scan: cannot write " << where << ": "
+              << (write_errno != 0 ? std::strerror(write_errno) : "write failed") << "; stopped after "
+              << written << " records";
+    if (!output.empty())
+      std::cerr << " (residue scan --resume " << output
+                << " carries on from its last complete line once there is room)";
+    std::cerr << "\n";
+    return static_cast<int>(ExitCode::kFailure);
   }
   std::cerr << "residue scan: " << written << " records (" << bands["likely-generated"]
             << " likely-generated, " << bands["inconclusive"] << " inconclusive, " << bands["likely-camera"]

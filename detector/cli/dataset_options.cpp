@@ -74,6 +74,11 @@ std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const 
     std::cerr << "; " << out.report.failed.size() + out.dataset.skipped.size() << " skipped:";
   }
   std::cerr << "\n";
+  if (cache && cache->failed_writes() > 0) {
+    std::cerr << "residue " << command << ": " << cache->failed_writes()
+              << " vectors could not be stored in the feature cache (" << cache->first_write_failure()
+              << "); they were used, but will be extracted again next time\n";
+  }
   for (const auto& [path, reason] : out.dataset.skipped)
     std::cerr << "  skipped " << path << ": " << reason << "\n";
   for (const auto& [file, error] : out.report.failed) {

@@ -1,4 +1,5 @@
 // residue: tells camera photographs from generated images by the traces generators leave.
+#include <csignal>
 #include <exception>
 #include <iostream>
 
@@ -6,6 +7,9 @@
 #include "residue/detector/record.hpp"
 
 int main(int argc, char** argv) try {
+  // Past a file size limit (ulimit -f), a write should fail with EFBIG and be reported like a full
+  // disk, not kill the process with SIGXFSZ halfway through a file.
+  std::signal(SIGXFSZ, SIG_IGN);
   CLI::App app{"residue: screens images for traces of generative models (advisory evidence, not proof)"};
   app.require_subcommand(1);
   app.set_version_flag("--version", "residue 0.1.0");

@@ -197,6 +197,11 @@ struct Service::State {
     if (log_file.is_open()) {
       log_file << record_line(line) << "\n";
       log_file.flush();
+      if (!log_file) {  // a full disk must not stop scoring: the log goes to stderr from here on
+        log_file.close();
+        std::fprintf(stderr,
+                     "residue serve: cannot append to the access log (disk full?); logging to stderr\n");
+      }
     } else {
       std::fprintf(stderr, "%s\n", record_line(line).c_str());
     }

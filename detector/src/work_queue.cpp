@@ -335,7 +335,12 @@ class Worker {
         return make_error(ErrorCode::kUnsupported, "writing a result failed: transaction aborted");
       }
       link_.ready();
-      if (jsonl_) jsonl_ << record << "\n" << std::flush;
+      if (jsonl_) {
+        jsonl_ << record << "\n" << std::flush;
+        // The result is safe in Redis; the local copy is a convenience, so a full disk is said
+        // once and the worker goes on.
+        if (!jsonl_) log_("cannot append to " + s_.jsonl_path + " (disk full?); results go on to Redis only");
+      }
       return true;
     }
   }

@@ -141,10 +141,21 @@ Result<bool> FeatureCache::store(const std::string& sha256, const Entry& entry) 
   }
   sqlite3_bind_blob(s.stmt, 4, blob.data(), static_cast<int>(blob.size() * sizeof(double)), SQLITE_TRANSIENT);
   if (sqlite3_step(s.stmt) != SQLITE_DONE) {
-    return make_error(ErrorCode::kInternal,
-                      std::string("feature cache write failed: ") + sqlite3_errmsg(db_));
+    const std::string message = std::string("feature cache write failed: ") + sqlite3_errmsg(db_);
+    if (failed_writes_++ == 0) first_write_failure_ = message;
+    return make_error(ErrorCode::kInternal, message);
   }
   return true;
+}
+
+size_t FeatureCache::failed_writes() {
+  std::lock_guard lock(mutex_);
+  return failed_writes_;
+}
+
+std::string FeatureCache::first_write_failure() {
+  std::lock_guard lock(mutex_);
+  return first_write_failure_;
 }
 
 size_t FeatureCache::size() {

@@ -30,6 +30,10 @@ class FeatureCache {
   // The entry for this content under the current extractor version, if stored.
   std::optional<Entry> find(const std::string& sha256);
   Result<bool> store(const std::string& sha256, const Entry& entry);
+  // Writes that failed so far (a full disk, a file size limit) and the first one's reason: a cache
+  // that cannot grow is no reason to stop training, but the user should hear of it once.
+  size_t failed_writes();
+  std::string first_write_failure();
   // Number of entries for the current extractor version.
   size_t size();
 
@@ -37,6 +41,8 @@ class FeatureCache {
   explicit FeatureCache(sqlite3* db) : db_(db) {}
   sqlite3* db_;
   std::mutex mutex_;
+  size_t failed_writes_ = 0;
+  std::string first_write_failure_;
 };
 
 }  // namespace residue
