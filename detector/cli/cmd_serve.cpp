@@ -61,8 +61,23 @@ void add_serve_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--max-body-mb", args->max_body_mb, "largest request body in MiB (413 above)")
       ->check(CLI::PositiveNumber)
       ->capture_default_str();
-  cmd->add_option("--timeout", args->settings.timeout_seconds, "seconds to read or write a request")
+  cmd->add_option("--timeout", args->settings.timeout_seconds,
+                  "seconds one read or write on a connection may wait")
       ->check(CLI::Range(1, 3600))
+      ->capture_default_str();
+  cmd->add_option("--max-connections", args->settings.max_connections,
+                  "connections open at once (one thread each); beyond, 503 and closed (raise ulimit -n "
+                  "above about 1,000)")
+      ->check(CLI::Range(1, 10000))
+      ->capture_default_str();
+  cmd->add_option("--header-timeout", args->settings.header_timeout_seconds,
+                  "seconds a client has to send a request's head, from connecting or from the last answer; "
+                  "then the connection is cut")
+      ->check(CLI::Range(1, 3600))
+      ->capture_default_str();
+  cmd->add_option("--body-timeout", args->settings.body_timeout_seconds,
+                  "seconds a client has to send a request's body, from its head; then the connection is cut")
+      ->check(CLI::Range(1, 36000))
       ->capture_default_str();
   cmd->add_option("--token-file", args->token_file,
                   "file whose first line is the bearer token clients must send");

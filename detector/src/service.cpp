@@ -1,7 +1,9 @@
-// cpp-httplib adapter for the service (the only file that includes httplib.h).
+// cpp-httplib adapter for the service (with connection_guard.cpp, the only files that include
+// httplib.h).
 #include "residue/detector/service.hpp"
 
 #include <httplib.h>
+#include <sys/socket.h>
 
 #include <atomic>
 #include <chrono>
@@ -13,6 +15,7 @@
 #include <mutex>
 #include <thread>
 
+#include "connection_guard.hpp"
 #include "residue/detector/record.hpp"
 
 namespace residue {
@@ -37,7 +40,7 @@ class Metrics {
     sum_ += seconds;
     if (!band.empty()) ++bands_[band];
   }
-  std::string text(int queue_depth, int in_flight, const std::string& model_id) {
+  std::string text(int queue_depth, int in_flight, const std::string& model_id, const ConnectionCounts& c) {
     std::lock_guard lock(mutex_);
     std::string t;
     t += "# HELP residue_requests_total HTTP requests by route and status.\n# TYPE residue_requests_total "
@@ -68,6 +71,17 @@ class Metrics {
     for (const char* band : {"likely-camera", "inconclusive", "likely-generated"}) {
       t += "residue_scores_total{band=\"" + std::string(band) + "\"} " + std::to_string(bands_[band]) + "\n";
     }
+    t += "# HELP residue_connections_open HTTP connections open now.\n# TYPE residue_connections_open gauge\n"
+         "residue_connections_open " +
+         std::to_string(c.open.load()) + "\n";
+    t += "# HELP residue_connections_refused_total Connections refused over the cap (503, closed).\n"
+         "# TYPE residue_connections_refused_total counter\nresidue_connections_refused_total " +
+         std::to_string(c.refused.load()) + "\n";
+    t += "# HELP residue_connections_timed_out_total Connections cut for sending a request too slowly.\n"
+         "# TYPE residue_connections_timed_out_total counter\n"
+         "residue_connections_timed_out_total{phase=\"head\"} " +
+         std::to_string(c.head_timeouts.load()) + "\nresidue_connections_timed_out_total{phase=\"body\"} " +
+         std::to_string(c.body_timeouts.load()) + "\n";
     t += "# HELP residue_model_info The model being served.\n# TYPE residue_model_info "
          "gauge\nresidue_model_info{id=\"" +
          model_id + "\"} 1\n";
@@ -158,6 +172,9 @@ class RequestServer : public httplib::Server {
     process_request(stream, true, closed, nullptr);
     return stream.output();
   }
+  // The library listens with a backlog of 5: a burst of connections beyond it has its SYNs dropped
+  // and each such client waits a second for the retransmission. Listening again raises it.
+  void widen_backlog() { ::listen(svr_sock_, SOMAXCONN); }
 };
 
 std::atomic<bool> g_reload_requested{false};
@@ -186,6 +203,7 @@ struct Service::State {
   std::atomic<unsigned long long> next_id{1};
   std::atomic<bool> stopping{false};
   std::thread reload_watcher;
+  std::shared_ptr<ConnectionCounts> connections = std::make_shared<ConnectionCounts>();
 
   std::shared_ptr<const Model> current() {
     std::lock_guard lock(model_mutex);
@@ -287,6 +305,7 @@ Result<bool> Service::run() {
     return make_error(ErrorCode::kUnreadable, "cannot bind " + cfg.host + ":" + std::to_string(cfg.port));
   }
   s.settings.port = port;
+  s.server.widen_backlog();
   s.log({{"event", "listening"},
          {"host", cfg.host},
          {"port", port},
@@ -322,11 +341,22 @@ Result<bool> Service::prepare() {
     if (!loaded) return loaded.error();
   }
   auto& server = s.server;
-  // Enough HTTP threads that our own admission control (workers + queue), not the library's
-  // connection queue, decides who waits and who gets 503.
-  const int http_threads = cfg.workers + cfg.queue + 4;
-  server.new_task_queue = [http_threads] {
-    return new httplib::ThreadPool(static_cast<size_t>(http_threads));
+  // One thread per connection, so that idle or slow clients cannot starve the others; our own
+  // admission control (workers + queue) decides who waits for scoring and who gets 503.
+  server.new_task_queue = [&s] {
+    const ServiceSettings& c = s.settings;
+    ConnectionLimits limits;
+    limits.port = c.port;  // the bound port: run() has set it before listening
+    limits.max_connections = c.max_connections;
+    limits.header_timeout = std::chrono::seconds(c.header_timeout_seconds);
+    limits.body_timeout = std::chrono::seconds(c.body_timeout_seconds);
+    const std::string body = record_line(error_body(
+        "too-many-connections",
+        "the service has " + std::to_string(c.max_connections) + " connections open; retry shortly"));
+    limits.refusal =
+        "HTTP/1.1 503 Service Unavailable\r\nContent-Type: application/json\r\nContent-Length: " +
+        std::to_string(body.size()) + "\r\nRetry-After: 1\r\nConnection: close\r\n\r\n" + body;
+    return new ConnectionGuard(limits, s.connections);
   };
   server.set_payload_max_length(cfg.max_body_bytes);
   server.set_read_timeout(cfg.timeout_seconds, 0);
@@ -340,6 +370,8 @@ Result<bool> Service::prepare() {
   // the band it scored, if any.
   auto observed = [&s, reply](const char* route, const httplib::Request& req, httplib::Response& res,
                               const std::function<std::string()>& body) {
+    // Routes other than /v1/score have their body (if any) read by the library before this.
+    if (std::string_view(route) != "/v1/score") connection_working();
     const auto start = Clock::now();
     const auto id = s.next_id++;
     res.set_header("X-Request-Id", std::to_string(id));
@@ -363,6 +395,7 @@ Result<bool> Service::prepare() {
   // a stranger cannot make the service read (or wait for) a body it is going to refuse.
   server.set_pre_routing_handler(
       [&s, &cfg, reply, observed](const httplib::Request& req, httplib::Response& res) {
+        connection_reading_body();
         const Route* route = find_route(req.path);
         const bool method_ok =
             route != nullptr &&
@@ -420,6 +453,7 @@ Result<bool> Service::prepare() {
           req.is_multipart_form_data()
               ? content_reader([&](const httplib::MultipartFormData&) { return ++parts == 1; }, append)
               : content_reader(append);
+      connection_working();
       if (too_large || (!read && res.status == 413)) {
         res.set_header("Connection", "close");
         reply(res, 413,
@@ -516,10 +550,12 @@ Result<bool> Service::prepare() {
         waiting = s.waiting;
         active = s.active;
       }
-      res.set_content(s.metrics.text(waiting, active, s.current()->id), "text/plain; version=0.0.4");
+      res.set_content(s.metrics.text(waiting, active, s.current()->id, *s.connections),
+                      "text/plain; version=0.0.4");
       return std::string();
     });
   });
+  server.set_post_routing_handler([](const httplib::Request&, httplib::Response&) { connection_answered(); });
   server.set_error_handler([reply](const httplib::Request&, httplib::Response& res) {
     if (res.status == 413) {
       reply(res, 413, error_body("too-large", "the request body is over the size limit"));

@@ -1,7 +1,8 @@
 """End-to-end test of `residue serve`: a real server on loopback, started by this test.
 
 Covers every route's success and error cases, 200 concurrent requests compared with `residue scan`,
-a model reload under load (and by SIGHUP), and overload with a tiny queue. Images are made by
+a model reload under load (and by SIGHUP), overload with a tiny queue, and 200 slow or idle
+connections (slowloris) with header and body deadlines and a connection cap. Images are made by
 tests/cli/make_labelled.py (scikit-image crops and SIMULATED upsampling output). Traffic goes
 only to 127.0.0.1, bounded in count and time.
 
@@ -333,6 +334,88 @@ with tempfile.TemporaryDirectory() as tmp:
               f"503 comes before any scored answer: 503 {[round(a[1], 2) for a in busy]}, "
               f"200 {[round(t, 2) for t in served_times]}")
         check(score(base, data)[0] == 200, "the service recovers after the burst")
+    finally:
+        stop(proc)
+
+    # Slow and idle clients (slowloris): every connection has its own thread, a head or body sent too
+    # slowly is cut at its deadline (not only when one read waits --timeout seconds), and beyond
+    # --max-connections a connection gets 503 and is closed at once.
+    proc, base = start(served, "--max-connections", "230", "--header-timeout", "3", "--body-timeout", "3")
+    address = ("127.0.0.1", int(base.rsplit(":", 1)[1]))
+    try:
+        held = []
+        for i in range(200):
+            sock = socket.create_connection(address, timeout=5)
+            if i % 2:
+                sock.sendall(b"GET /v1/health HTTP/1.1\r\nHost: x\r\n")  # a head never finished
+            held.append(sock)
+        slow_body = socket.create_connection(address, timeout=5)
+        slow_body.sendall(b"POST /v1/score HTTP/1.1\r\nHost: x\r\nContent-Length: 100000\r\n\r\n")
+        opened = time.time()
+        t0 = time.time()
+        status = request(base + "/v1/health", timeout=5)[0]
+        check(status == 200 and time.time() - t0 < 1.0,
+              f"health answers within a second with 200 slow connections open ({status}, {time.time() - t0:.2f} s)")
+        status, _, r = score(base, data)
+        check(status == 200 and r["band"] in ("likely-camera", "inconclusive", "likely-generated"),
+              f"scores still flow with 200 slow connections open ({status})")
+        # Over the cap: 60 more connections at once; those past 230 get 503 without sending anything.
+        extra = [socket.create_connection(address, timeout=5) for _ in range(60)]
+        time.sleep(0.5)  # let the server take them all before any is answered (and frees its place)
+        answers = []
+        for sock in extra:
+            sock.sendall(b"POST /v1/score HTTP/1.1\r\nHost: x\r\nContent-Length: 0\r\nConnection: close\r\n\r\n")
+            answer = b""
+            try:
+                while True:
+                    part = sock.recv(65536)
+                    if not part:
+                        break
+                    answer += part
+            except OSError:
+                pass
+            sock.close()
+            if answer:
+                answers.append(int(answer.split(b" ", 2)[1]))
+                documented("/v1/score", "POST", answers[-1], answer.split(b"\r\n\r\n", 1)[1])
+        refused = answers.count(503)
+        check(len(answers) == 60 and set(answers) <= {400, 503} and 25 <= refused <= 32,
+              f"past 230 connections: 503 and closed ({refused} of 60 refused; {sorted(set(answers))})")
+        # Trickle a byte every half second into the unfinished heads and the body: per-read timeouts
+        # (--timeout, 30 s) would never fire; the 3 s deadlines must.
+        while time.time() - opened < 4.5:
+            for sock in held[1::2] + [slow_body]:
+                try:
+                    sock.sendall(b"x")
+                except OSError:
+                    pass
+            time.sleep(0.5)
+
+        def closed(sock):
+            sock.settimeout(2.5)
+            try:
+                while sock.recv(65536):
+                    pass
+                return True
+            except socket.timeout:
+                return False
+            except OSError:
+                return True
+        still = sum(not closed(sock) for sock in held + [slow_body])
+        check(still == 0, f"every slow or idle connection is cut within its deadline ({still} of 201 still open "
+                          f"{time.time() - opened:.1f} s after connecting)")
+        for sock in held + [slow_body]:
+            sock.close()
+        status, _, metrics = request(base + "/metrics")
+        values = {line.split(" ")[0]: float(line.split(" ")[1]) for line in metrics.decode().splitlines()
+                  if line and not line.startswith("#")}
+        check(values.get('residue_connections_timed_out_total{phase="head"}', 0) >= 190
+              and values.get('residue_connections_timed_out_total{phase="body"}', 0) >= 1
+              and values.get("residue_connections_refused_total", 0) == refused,
+              f"/metrics counts the cut and refused connections: "
+              f"{ {k: v for k, v in values.items() if k.startswith('residue_connections')} }")
+        check(request(base + "/v1/health")[0] == 200 and score(base, data)[0] == 200,
+              "the service answers normally afterwards")
     finally:
         stop(proc)
 

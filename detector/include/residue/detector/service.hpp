@@ -5,8 +5,9 @@
 //   GET  /v1/model          model id, schema, thresholds, provenance
 //   POST /v1/model/reload   load the model file again (also on SIGHUP); a bad file is refused
 //   GET  /metrics           Prometheus text exposition format
-// Threading: requests run on the HTTP library's threads; at most `workers` score at once, at most
-// `queue` more wait, the rest get 503 with Retry-After at once. The model is swapped under a lock
+// Threading: each connection has its own thread (at most `max_connections`; a head or body sent
+// too slowly is cut, connection_guard.hpp); at most `workers` score at once, at most `queue` more
+// wait, the rest get 503 with Retry-After at once. The model is swapped under a lock
 // as a shared pointer, so requests in flight finish on the model they started with.
 #pragma once
 
@@ -24,7 +25,10 @@ struct ServiceSettings {
   int workers = 0;                         // scoring threads; 0: one per core
   int queue = 32;                          // requests allowed to wait for a worker
   std::size_t max_body_bytes = 50u << 20;  // 413 above
-  int timeout_seconds = 30;                // reading and writing a request
+  int timeout_seconds = 30;                // one read or write on a connection
+  int max_connections = 256;               // open at once; beyond, 503 and closed
+  int header_timeout_seconds = 10;         // to send a request's head (from connecting or the last answer)
+  int body_timeout_seconds = 120;          // to send a request's body (from its head)
   std::string token;                       // bearer token; empty: no authentication
   bool allow_unauthenticated = false;      // needed to bind a non-loopback address without a token
   std::string access_log;                  // file for the JSON access log; empty: stderr
