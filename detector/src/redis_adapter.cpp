@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <charconv>
+#include <cstdio>
 #include <memory>
 
 #include "residue/detector/redis_client.hpp"
@@ -79,6 +80,29 @@ void arguments(const std::vector<std::string>& argv, std::vector<const char*>& p
   }
 }
 
+// hiredis's blocking redisGetReply, except that it gives up once the data read for the reply
+// passes `max_bytes`: hiredis buffers a bulk string until all of its declared length has arrived,
+// so "$2000000000" from a hostile or broken server would otherwise be held whole.
+int get_bounded_reply(redisContext* c, std::size_t max_bytes, void** reply) {
+  *reply = nullptr;
+  if (redisGetReplyFromReader(c, reply) != REDIS_OK) return REDIS_ERR;
+  if (*reply != nullptr) return REDIS_OK;
+  int written = 0;
+  while (written == 0) {
+    if (redisBufferWrite(c, &written) != REDIS_OK) return REDIS_ERR;
+  }
+  while (*reply == nullptr) {
+    if (redisBufferRead(c) != REDIS_OK) return REDIS_ERR;
+    if (c->reader->len > max_bytes) {
+      c->err = REDIS_ERR_PROTOCOL;
+      std::snprintf(c->errstr, sizeof c->errstr, "reply larger than %zu bytes refused", max_bytes);
+      return REDIS_ERR;
+    }
+    if (redisGetReplyFromReader(c, reply) != REDIS_OK) return REDIS_ERR;
+  }
+  return REDIS_OK;
+}
+
 bool parse_int(const std::string& s, int& out) {
   const auto [end, ec] = std::from_chars(s.data(), s.data() + s.size(), out);
   return ec == std::errc() && end == s.data() + s.size();
@@ -145,7 +169,8 @@ Result<RedisAddress> parse_redis_url(const std::string& url) {
 }
 
 Result<std::unique_ptr<RedisClient>> RedisClient::connect(const RedisAddress& address,
-                                                          std::chrono::milliseconds timeout) {
+                                                          std::chrono::milliseconds timeout,
+                                                          std::size_t max_reply_bytes) {
   const timeval tv{static_cast<time_t>(timeout.count() / 1000),
                    static_cast<suseconds_t>((timeout.count() % 1000) * 1000)};
   redisContext* c = redisConnectWithTimeout(address.host.c_str(), address.port, tv);
@@ -156,7 +181,7 @@ Result<std::unique_ptr<RedisClient>> RedisClient::connect(const RedisAddress& ad
   }
   redisSetTimeout(c, tv);
   c->reader->fn = bounded_functions();
-  std::unique_ptr<RedisClient> client(new RedisClient(c));
+  std::unique_ptr<RedisClient> client(new RedisClient(c, max_reply_bytes));
   if (!address.password.empty()) {
     auto r = client->command({"AUTH", address.password});
     if (!r) return r.error();
@@ -179,10 +204,12 @@ Result<RedisReply> RedisClient::command(const std::vector<std::string>& argv) {
   std::vector<const char*> ptrs;
   std::vector<size_t> lens;
   arguments(argv, ptrs, lens);
-  auto* reply =
-      static_cast<redisReply*>(redisCommandArgv(c, static_cast<int>(ptrs.size()), ptrs.data(), lens.data()));
-  if (reply == nullptr) return connection_error(c, argv.empty() ? "command" : argv[0]);
-  RedisReply out = convert(reply);
+  void* reply = nullptr;
+  if (redisAppendCommandArgv(c, static_cast<int>(ptrs.size()), ptrs.data(), lens.data()) != REDIS_OK ||
+      get_bounded_reply(c, max_reply_bytes_, &reply) != REDIS_OK || reply == nullptr) {
+    return connection_error(c, argv.empty() ? "command" : argv[0]);
+  }
+  RedisReply out = convert(static_cast<redisReply*>(reply));
   freeReplyObject(reply);
   return out;
 }
@@ -201,7 +228,9 @@ Result<std::vector<RedisReply>> RedisClient::pipeline(const std::vector<std::vec
   out.reserve(commands.size());
   for (size_t i = 0; i < commands.size(); ++i) {
     void* raw = nullptr;
-    if (redisGetReply(c, &raw) != REDIS_OK || raw == nullptr) return connection_error(c, "pipeline");
+    if (get_bounded_reply(c, max_reply_bytes_, &raw) != REDIS_OK || raw == nullptr) {
+      return connection_error(c, "pipeline");
+    }
     out.push_back(convert(static_cast<redisReply*>(raw)));
     freeReplyObject(raw);
   }

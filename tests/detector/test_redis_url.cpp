@@ -1,6 +1,13 @@
 // Redis URLs as the redis-cli and Redis documentation write them
 // (redis://[[user]:password@]host[:port][/db]).
+#include <arpa/inet.h>
 #include <doctest/doctest.h>
+#include <netinet/in.h>
+#include <sys/socket.h>
+#include <unistd.h>
+
+#include <string>
+#include <thread>
 
 #include "residue/detector/redis_client.hpp"
 
@@ -91,4 +98,66 @@ TEST_CASE(
   // fuzz_redis_reply, 2026-12-03: an array count of 1.7e9 made hiredis allocate 13 GB at once.
   CHECK_FALSE(parse_redis_replies("*1\r\n*1700000000\r\n*2\r\n$15\r\n"));
   CHECK(parse_redis_replies("*3\r\n:1\r\n:2\r\n:3\r\n").ok());
+}
+
+namespace {
+
+// A one-connection server on loopback that answers the first command with `answer`, then sends
+// `filler` bytes of 'x' (the rest of a bulk string declared far larger than it will ever be).
+struct FakeRedis {
+  int listener = -1;
+  int port = 0;
+  std::thread thread;
+
+  FakeRedis(std::string answer, size_t filler) {
+    listener = ::socket(AF_INET, SOCK_STREAM, 0);
+    sockaddr_in address{};
+    address.sin_family = AF_INET;
+    address.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
+    socklen_t length = sizeof address;
+    ::bind(listener, reinterpret_cast<sockaddr*>(&address), sizeof address);
+    ::listen(listener, 1);
+    ::getsockname(listener, reinterpret_cast<sockaddr*>(&address), &length);
+    port = ntohs(address.sin_port);
+    thread = std::thread([this, answer = std::move(answer), filler] {
+      const int c = ::accept(listener, nullptr, nullptr);
+      char command[256];
+      (void)::recv(c, command, sizeof command, 0);
+      (void)::send(c, answer.data(), answer.size(), MSG_NOSIGNAL);
+      const std::string block(1 << 16, 'x');
+      for (size_t sent = 0; sent < filler; sent += block.size()) {
+        if (::send(c, block.data(), block.size(), MSG_NOSIGNAL) < 0) break;  // the client gave up
+      }
+      ::close(c);
+    });
+  }
+  ~FakeRedis() {
+    thread.join();
+    ::close(listener);
+  }
+};
+
+}  // namespace
+
+TEST_CASE("Redis replies: a bulk string larger than the reply limit is refused before it is held") {
+  // RESP: "$<length>\r\n" declares a bulk string's length; hiredis keeps reading until all of it
+  // has arrived. With a 1 MiB limit, a server streaming a string declared as 2 GB is cut off after
+  // about 1 MiB, and the command fails as a connection error (the client must be replaced).
+  FakeRedis server("$2000000000\r\n", 8U << 20);
+  RedisAddress address;
+  address.port = server.port;
+  auto client = RedisClient::connect(address, std::chrono::milliseconds(5000), 1U << 20);
+  REQUIRE(client);
+  auto reply = (*client)->command({"GET", "job"});
+  REQUIRE_FALSE(reply);
+  CHECK(reply.error().message.find("reply larger than 1048576 bytes refused") != std::string::npos);
+  client->reset();  // closes the socket, so the server's sending stops
+
+  FakeRedis small("$5\r\nhello\r\n", 0);  // within the limit: read as usual
+  address.port = small.port;
+  auto ok = RedisClient::connect(address, std::chrono::milliseconds(5000), 1U << 20);
+  REQUIRE(ok);
+  auto hello = (*ok)->command({"GET", "job"});
+  REQUIRE(hello);
+  CHECK(hello->text == "hello");
 }

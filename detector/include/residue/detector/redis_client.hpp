@@ -4,6 +4,7 @@
 #pragma once
 
 #include <chrono>
+#include <cstddef>
 #include <memory>
 #include <string>
 #include <string_view>
@@ -40,12 +41,18 @@ struct RedisReply {
 // connection parses them; kCorrupt for a protocol error. A reply cut off at the end is left out.
 Result<std::vector<RedisReply>> parse_redis_replies(std::string_view bytes);
 
+// The largest reply a client takes (replies hold results, or jobs that may carry an image's bytes:
+// at most `read_count` files within the file limit). A larger one, or a server that keeps sending
+// one, is refused as a connection error before it is held in memory.
+constexpr std::size_t kMaxRedisReplyBytes = std::size_t{1} << 30;
+
 class RedisClient {
  public:
   // Connects (and authenticates, selects the database). `timeout` bounds connecting and every
   // reply; a blocking command's own wait must be shorter.
   static Result<std::unique_ptr<RedisClient>> connect(const RedisAddress& address,
-                                                      std::chrono::milliseconds timeout);
+                                                      std::chrono::milliseconds timeout,
+                                                      std::size_t max_reply_bytes = kMaxRedisReplyBytes);
   ~RedisClient();
   RedisClient(const RedisClient&) = delete;
   RedisClient& operator=(const RedisClient&) = delete;
@@ -57,8 +64,10 @@ class RedisClient {
   Result<std::vector<RedisReply>> pipeline(const std::vector<std::vector<std::string>>& commands);
 
  private:
-  explicit RedisClient(void* context) : context_(context) {}
+  RedisClient(void* context, std::size_t max_reply_bytes)
+      : context_(context), max_reply_bytes_(max_reply_bytes) {}
   void* context_;  // redisContext*
+  std::size_t max_reply_bytes_;
 };
 
 }  // namespace residue
