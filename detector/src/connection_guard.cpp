@@ -85,7 +85,7 @@ void connection_answered() {
 ConnectionGuard::ConnectionGuard(ConnectionLimits limits, std::shared_ptr<ConnectionCounts> counts)
     : limits_(std::move(limits)), counts_(std::move(counts)), watchdog_([this] { watch(); }) {}
 
-ConnectionGuard::~ConnectionGuard() { shutdown(); }
+ConnectionGuard::~ConnectionGuard() { ConnectionGuard::shutdown(); }
 
 // The socket the HTTP library has just accepted: the one connected socket of our port that no
 // open connection holds yet (enqueue runs on the accepting thread right after accept(2)); -1 when
@@ -100,7 +100,7 @@ int ConnectionGuard::find_new_socket(std::string& peer) {
     const long fd = std::strtol(entry->d_name, &end, 10);
     if (end == entry->d_name || *end != '\0' || fd == ::dirfd(dir)) continue;
     std::string p = peer_on_port(static_cast<int>(fd), limits_.port);
-    if (p.empty() || open_.count({static_cast<int>(fd), p}) != 0) continue;
+    if (p.empty() || open_.contains({static_cast<int>(fd), p})) continue;
     ++candidates;
     found = static_cast<int>(fd);
     peer = std::move(p);
