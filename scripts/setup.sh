@@ -10,6 +10,8 @@ packages=(
   libeigen3-dev libboost-dev libexiv2-dev libssl-dev libsqlite3-dev libcpp-httplib-dev libhiredis-dev
   libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev
   libjpeg62-turbo-dev libpng-dev libwebp-dev libtiff-dev
+  # the Python module (docs/python.md), built for /usr/bin/python3
+  pybind11-dev python3-dev
   # reference libraries for the tests (Debian's, used by /usr/bin/python3)
   python3 python3-numpy python3-scipy python3-skimage python3-pil python3-sklearn exiv2
   # the service test checks every response against docs/openapi.yaml

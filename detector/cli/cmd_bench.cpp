@@ -12,7 +12,7 @@
 #include <thread>
 
 #include "commands.hpp"
-#include "residue/detector/sample_images.hpp"
+#include "residue/detector/demo/sample_images.hpp"
 #include "residue/features/families.hpp"
 #include "residue/training/batch.hpp"
 #include "residue/training/trainer.hpp"

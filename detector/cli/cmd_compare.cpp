@@ -7,8 +7,8 @@
 
 #include "commands.hpp"
 #include "dataset_options.hpp"
-#include "residue/detector/comparison_page.hpp"
-#include "residue/detector/record.hpp"
+#include "residue/detector/pages/comparison_page.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "residue/training/atomic_file.hpp"
 #include "residue/training/comparison.hpp"
 #include "residue/training/model.hpp"

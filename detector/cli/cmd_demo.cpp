@@ -5,9 +5,9 @@
 #include <thread>
 
 #include "commands.hpp"
-#include "residue/detector/demo.hpp"
-#include "residue/detector/record.hpp"
-#include "residue/detector/sample_images.hpp"
+#include "residue/detector/demo/demo.hpp"
+#include "residue/detector/scoring/record.hpp"
+#include "residue/detector/demo/sample_images.hpp"
 
 namespace residue::cli {
 

@@ -8,7 +8,7 @@
 #include <set>
 
 #include "commands.hpp"
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "residue/training/drift.hpp"
 #include "residue/training/model.hpp"
 

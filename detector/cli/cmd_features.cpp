@@ -5,7 +5,7 @@
 
 #include "commands.hpp"
 #include "options.hpp"
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "residue/training/atomic_file.hpp"
 #include "residue/training/batch.hpp"
 

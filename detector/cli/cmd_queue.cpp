@@ -14,8 +14,8 @@
 
 #include "commands.hpp"
 #include "options.hpp"
-#include "residue/detector/record.hpp"
-#include "residue/detector/work_queue.hpp"
+#include "residue/detector/scoring/record.hpp"
+#include "residue/detector/queue/work_queue.hpp"
 #include "residue/training/batch.hpp"
 #include "stop_signals.hpp"
 

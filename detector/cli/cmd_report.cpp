@@ -4,10 +4,10 @@
 #include <memory>
 
 #include "commands.hpp"
-#include "residue/detector/explain.hpp"
-#include "residue/detector/record.hpp"
-#include "residue/detector/report_page.hpp"
-#include "residue/detector/scan.hpp"
+#include "residue/detector/scoring/explain.hpp"
+#include "residue/detector/scoring/record.hpp"
+#include "residue/detector/pages/report_page.hpp"
+#include "residue/detector/scoring/scan.hpp"
 #include "residue/training/atomic_file.hpp"
 
 namespace residue::cli {

@@ -16,8 +16,8 @@
 #include "commands.hpp"
 #include "options.hpp"
 #include "progress.hpp"
-#include "residue/detector/record.hpp"
-#include "residue/detector/scan.hpp"
+#include "residue/detector/scoring/record.hpp"
+#include "residue/detector/scoring/scan.hpp"
 #include "residue/features/fingerprint.hpp"
 #include "residue/training/batch.hpp"
 

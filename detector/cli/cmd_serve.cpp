@@ -5,8 +5,8 @@
 
 #include "commands.hpp"
 #include "options.hpp"
-#include "residue/detector/record.hpp"
-#include "residue/detector/service.hpp"
+#include "residue/detector/scoring/record.hpp"
+#include "residue/detector/service/service.hpp"
 #include "stop_signals.hpp"
 
 namespace residue::cli {

@@ -7,7 +7,7 @@
 
 #include "commands.hpp"
 #include "dataset_options.hpp"
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "residue/training/trainer.hpp"
 
 namespace residue::cli {

@@ -4,7 +4,7 @@
 #include <iostream>
 
 #include "commands.hpp"
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 
 int main(int argc, char** argv) try {
   // Past a file size limit (ulimit -f), a write should fail with EFBIG and be reported like a full

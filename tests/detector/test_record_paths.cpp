@@ -7,7 +7,7 @@
 #include <random>
 #include <sstream>
 
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "support.hpp"
 
 using namespace residue;

@@ -9,7 +9,7 @@
 #include <string>
 #include <thread>
 
-#include "residue/detector/redis_client.hpp"
+#include "residue/detector/queue/redis_client.hpp"
 
 using namespace residue;
 

@@ -4,7 +4,7 @@
 #include <cstdlib>
 #include <string>
 
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, size_t size) {
   const std::string path(reinterpret_cast<const char*>(data), size);

@@ -7,7 +7,7 @@
 #include <memory>
 #include <string_view>
 
-#include "residue/detector/service.hpp"
+#include "residue/detector/service/service.hpp"
 
 namespace {
 

@@ -1,8 +1,8 @@
-#include "residue/detector/comparison_page.hpp"
+#include "residue/detector/pages/comparison_page.hpp"
 
 #include <cstdio>
 
-#include "residue/detector/evaluation_page.hpp"
+#include "residue/detector/pages/evaluation_page.hpp"
 
 namespace residue {
 

@@ -1,12 +1,11 @@
-#include "residue/detector/explain.hpp"
+#include "residue/detector/scoring/explain.hpp"
 
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
 
-#include "residue/detector/pictures.hpp"
-#include "residue/detector/record.hpp"
-#include "residue/detector/sample_images.hpp"
+#include "residue/detector/scoring/pictures.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "residue/features/decode.hpp"
 #include "residue/features/families.hpp"
 #include "residue/training/atomic_file.hpp"

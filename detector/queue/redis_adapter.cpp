@@ -5,7 +5,7 @@
 #include <cstdio>
 #include <memory>
 
-#include "residue/detector/redis_client.hpp"
+#include "residue/detector/queue/redis_client.hpp"
 
 namespace residue {
 

@@ -1,4 +1,4 @@
-#include "residue/detector/work_queue.hpp"
+#include "residue/detector/queue/work_queue.hpp"
 
 #include <algorithm>
 #include <ctime>
@@ -9,7 +9,7 @@
 #include <thread>
 #include <unordered_set>
 
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "residue/features/fingerprint.hpp"
 
 namespace residue {

@@ -15,7 +15,7 @@
 #include <string>
 #include <string_view>
 
-#include "residue/detector/scan.hpp"
+#include "residue/detector/scoring/scan.hpp"
 
 namespace residue {
 

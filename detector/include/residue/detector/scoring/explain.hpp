@@ -5,7 +5,7 @@
 #include <nlohmann/json.hpp>
 #include <string>
 
-#include "residue/detector/scan.hpp"
+#include "residue/detector/scoring/scan.hpp"
 
 namespace residue {
 

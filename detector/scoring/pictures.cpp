@@ -1,4 +1,4 @@
-#include "residue/detector/pictures.hpp"
+#include "residue/detector/scoring/pictures.hpp"
 
 #include <openssl/evp.h>
 

@@ -1,4 +1,4 @@
-// A Redis connection (hiredis behind detector/src/redis_adapter.cpp, the only file that includes
+// A Redis connection (hiredis behind detector/queue/redis_adapter.cpp, the only file that includes
 // it): commands as argument vectors (binary-safe), pipelined batches, our own reply type.
 // Not thread-safe: one client per thread.
 #pragma once

@@ -1,6 +1,6 @@
 // cpp-httplib adapter for the service (with connection_guard.cpp, the only files that include
 // httplib.h).
-#include "residue/detector/service.hpp"
+#include "residue/detector/service/service.hpp"
 
 #include <httplib.h>
 #include <sys/socket.h>
@@ -16,7 +16,7 @@
 #include <thread>
 
 #include "connection_guard.hpp"
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 
 namespace residue {
 

@@ -20,8 +20,8 @@
 #include <string>
 #include <vector>
 
-#include "residue/detector/redis_client.hpp"
-#include "residue/detector/scan.hpp"
+#include "residue/detector/queue/redis_client.hpp"
+#include "residue/detector/scoring/scan.hpp"
 
 namespace residue {
 

@@ -1,13 +1,13 @@
-#include "residue/detector/report_page.hpp"
+#include "residue/detector/pages/report_page.hpp"
 
 #include <algorithm>
 #include <cstdio>
 #include <filesystem>
 #include <map>
 
-#include "residue/detector/evaluation_page.hpp"
-#include "residue/detector/pictures.hpp"
-#include "residue/detector/record.hpp"
+#include "residue/detector/pages/evaluation_page.hpp"
+#include "residue/detector/scoring/pictures.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "residue/features/decode.hpp"
 #include "residue/features/families.hpp"
 

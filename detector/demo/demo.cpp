@@ -1,15 +1,15 @@
-#include "residue/detector/demo.hpp"
+#include "residue/detector/demo/demo.hpp"
 
 #include <cstdio>
 #include <fstream>
 #include <map>
 #include <random>
 
-#include "residue/detector/explain.hpp"
-#include "residue/detector/record.hpp"
-#include "residue/detector/report_page.hpp"
-#include "residue/detector/sample_images.hpp"
-#include "residue/detector/scan.hpp"
+#include "residue/detector/scoring/explain.hpp"
+#include "residue/detector/scoring/record.hpp"
+#include "residue/detector/pages/report_page.hpp"
+#include "residue/detector/demo/sample_images.hpp"
+#include "residue/detector/scoring/scan.hpp"
 #include "residue/training/atomic_file.hpp"
 #include "residue/training/batch.hpp"
 #include "residue/training/cache.hpp"

@@ -1,8 +1,8 @@
-#include "residue/detector/evaluation_page.hpp"
+#include "residue/detector/pages/evaluation_page.hpp"
 
 #include <cstdio>
 
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 
 namespace residue {
 

@@ -1,6 +1,6 @@
-#include "residue/detector/scan.hpp"
+#include "residue/detector/scoring/scan.hpp"
 
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "residue/features/fingerprint.hpp"
 
 namespace residue {

@@ -1,4 +1,4 @@
-#include "residue/detector/sample_images.hpp"
+#include "residue/detector/demo/sample_images.hpp"
 
 #include <algorithm>
 #include <cmath>

@@ -1,4 +1,4 @@
-#include "residue/detector/record.hpp"
+#include "residue/detector/scoring/record.hpp"
 
 #include <cctype>
 
