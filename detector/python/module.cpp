@@ -47,6 +47,17 @@ py::object& error_class() {
   throw py::error_already_set();
 }
 
+[[noreturn]] void raise_error(const Error& error) {
+  raise_error(std::string(residue::error_code_name(error.code)), error.message);
+}
+
+// Runs `work` with the GIL released, so that other Python threads go on meanwhile.
+template <typename Work>
+auto without_gil(Work&& work) {
+  const py::gil_scoped_release unlocked;
+  return work();
+}
+
 py::object to_python(const nlohmann::ordered_json& record) {
   return py::module_::import("json").attr("loads")(residue::record_line(record));
 }
@@ -82,12 +93,8 @@ Source source_of(const py::object& source) {
 // The bytes of `s`, read under the limits, or raised as residue.Error.
 std::vector<std::uint8_t> bytes_of(const Source& s, const ExtractOptions& options) {
   if (!s.is_path) return {s.bytes.begin(), s.bytes.end()};
-  residue::Result<std::vector<std::uint8_t>> read = residue::make_error(residue::ErrorCode::kInternal, "");
-  {
-    py::gil_scoped_release unlocked;
-    read = residue::read_file(s.path, options.limits);
-  }
-  if (!read) raise_error(std::string(residue::error_code_name(read.error().code)), read.error().message);
+  auto read = without_gil([&] { return residue::read_file(s.path, options.limits); });
+  if (!read) raise_error(read.error());
   return std::move(*read);
 }
 
@@ -95,14 +102,8 @@ py::tuple features(const py::object& source, double max_file_mb, std::uint64_t m
   const ExtractOptions options = extract_options(max_file_mb, max_pixels, min_window);
   const Source s = source_of(source);
   const std::vector<std::uint8_t> bytes = bytes_of(s, options);
-  residue::Result<residue::Extraction> extraction = residue::make_error(residue::ErrorCode::kInternal, "");
-  {
-    py::gil_scoped_release unlocked;
-    extraction = residue::extract_bytes(bytes, options);
-  }
-  if (!extraction) {
-    raise_error(std::string(residue::error_code_name(extraction.error().code)), extraction.error().message);
-  }
+  auto extraction = without_gil([&] { return residue::extract_bytes(bytes, options); });
+  if (!extraction) raise_error(extraction.error());
   const auto& values = extraction->features.values;
   py::array_t<double> array(static_cast<py::ssize_t>(values.size()));
   std::copy(values.begin(), values.end(), array.mutable_data());
@@ -140,18 +141,13 @@ class PyModel {
     const Source s = source_of(source);
     ScanSettings settings = settings_;
     if (prior) settings.prior = *prior;
-    nlohmann::ordered_json record;
-    {
-      py::gil_scoped_release unlocked;
-      if (s.is_path) {
-        record = residue::scan_file(s.path, *model_, settings);
-      } else {
-        record = residue::scan_bytes(
-            name.value_or(s.path),
-            std::span(reinterpret_cast<const std::uint8_t*>(s.bytes.data()), s.bytes.size()), *model_,
-            settings);
-      }
-    }
+    const nlohmann::ordered_json record = without_gil([&] {
+      if (s.is_path) return residue::scan_file(s.path, *model_, settings);
+      return residue::scan_bytes(
+          name.value_or(s.path),
+          std::span(reinterpret_cast<const std::uint8_t*>(s.bytes.data()), s.bytes.size()), *model_,
+          settings);
+    });
     if (record.contains("error")) {
       raise_error(record["error"]["code"].get<std::string>(), record["error"]["message"].get<std::string>());
     }
@@ -206,9 +202,11 @@ class Error(ValueError):
   error_class().attr("__module__") = "residue";
   m.attr("Error") = error_class();
 
-  const double kFileMb = 200.0;
-  const std::uint64_t kPixels = 120'000'000;
-  const int kMinWindow = 64;
+  // The command line's defaults (DecodeLimits, WindowPolicy).
+  const ExtractOptions defaults;
+  const double kFileMb = static_cast<double>(defaults.limits.max_file_bytes) / (1024.0 * 1024.0);
+  const std::uint64_t kPixels = defaults.limits.max_pixels;
+  const int kMinWindow = defaults.windows.min_size;
   m.def("feature_names", &residue::feature_names, "The names of the feature vector's values, in order.");
   m.def("features", &features, py::arg("source"), py::kw_only(), py::arg("max_file_mb") = kFileMb,
         py::arg("max_pixels") = kPixels, py::arg("min_window") = kMinWindow,
