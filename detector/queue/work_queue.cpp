@@ -157,18 +157,9 @@ class Worker {
       if (Clock::now() >= next_reclaim) {
         auto r = link_.client().command({"XAUTOCLAIM", s_.stream, s_.group, s_.consumer, ms(s_.reclaim_after),
                                          cursor, "COUNT", std::to_string(s_.read_count)});
-        if (!r) {
-          link_.drop(r.error());
-          continue;
-        }
-        if (r->is_transient_error()) {
-          link_.wait_busy(*r);
-          continue;
-        }
-        if (r->is_error()) {
-          if (!regroup(*r)) return make_error(ErrorCode::kUnsupported, "XAUTOCLAIM: " + r->text);
-          continue;
-        }
+        const auto next = after_read(r, "XAUTOCLAIM");
+        if (!next) return next.error();
+        if (!*next) continue;
         if (r->elements.size() >= 2) {
           cursor = r->elements[0].text;
           entries = entries_of(r->elements[1]);
@@ -185,18 +176,9 @@ class Worker {
         auto r = link_.client().command({"XREADGROUP", "GROUP", s_.group, s_.consumer, "COUNT",
                                          std::to_string(s_.read_count), "BLOCK", ms(s_.block), "STREAMS",
                                          s_.stream, ">"});
-        if (!r) {
-          link_.drop(r.error());
-          continue;
-        }
-        if (r->is_transient_error()) {
-          link_.wait_busy(*r);
-          continue;
-        }
-        if (r->is_error()) {
-          if (!regroup(*r)) return make_error(ErrorCode::kUnsupported, "XREADGROUP: " + r->text);
-          continue;
-        }
+        const auto next = after_read(r, "XREADGROUP");
+        if (!next) return next.error();
+        if (!*next) continue;
         if (!r->elements.empty() && r->elements[0].elements.size() == 2)
           entries = entries_of(r->elements[0].elements[1]);
       }
@@ -213,6 +195,24 @@ class Worker {
 
  private:
   // A missing group (Redis restarted without persistence, or the stream was deleted) is made again.
+  // After XAUTOCLAIM or XREADGROUP: true when the reply holds entries to use; false to read again
+  // (connection lost, Redis busy, consumer group recreated); an error when the worker must stop.
+  Result<bool> after_read(const Result<RedisReply>& r, const char* command) {
+    if (!r) {
+      link_.drop(r.error());
+      return false;
+    }
+    if (r->is_transient_error()) {
+      link_.wait_busy(*r);
+      return false;
+    }
+    if (r->is_error()) {
+      if (!regroup(*r)) return make_error(ErrorCode::kUnsupported, std::string(command) + ": " + r->text);
+      return false;
+    }
+    return true;
+  }
+
   bool regroup(const RedisReply& error) {
     if (error.text.rfind("NOGROUP", 0) == 0) {
       log_("consumer group missing; creating it again");
