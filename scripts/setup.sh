@@ -21,6 +21,10 @@ packages=(
   # GNU time, for the peak memory the bad-batch test checks; promtool (in Debian's prometheus
   # package) for the service test's check of /metrics
   time prometheus
+  # the review page's browser test drives Debian's headless chromium through selenium
+  chromium chromium-driver python3-selenium
+  # the Debian package: man pages from --help, lintian, and systemd-analyze for the units
+  help2man lintian systemd dpkg-dev file
 )
 
 scripts/install_packages.sh "${packages[@]}"

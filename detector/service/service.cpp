@@ -11,12 +11,18 @@
 #include <cstdio>
 #include <cstdlib>
 #include <fstream>
+#include <functional>
 #include <map>
 #include <mutex>
+#include <optional>
+#include <span>
 #include <thread>
 
 #include "connection_guard.hpp"
+#include "residue/detector/scoring/explain.hpp"
+#include "residue/detector/scoring/pictures.hpp"
 #include "residue/detector/scoring/record.hpp"
+#include "review_page.hpp"
 
 namespace residue {
 
@@ -97,6 +103,10 @@ class Metrics {
   std::map<std::string, unsigned long long> bands_;
 };
 
+std::span<const std::uint8_t> as_bytes(const std::string& body) {
+  return {reinterpret_cast<const std::uint8_t*>(body.data()), body.size()};
+}
+
 Json error_body(const std::string& code, const std::string& message) {
   return {{"error", {{"code", code}, {"message", message}}}, {"advisory", kAdvisoryNotice}};
 }
@@ -116,10 +126,9 @@ struct Route {
   const char* method;
   bool needs_auth;
 };
-constexpr Route kRoutes[] = {{"/v1/score", "POST", true},
-                             {"/v1/health", "GET", false},
-                             {"/v1/model", "GET", true},
-                             {"/v1/model/reload", "POST", true},
+constexpr Route kRoutes[] = {{"/", "GET", false},           {"/v1/score", "POST", true},
+                             {"/v1/explain", "POST", true}, {"/v1/health", "GET", false},
+                             {"/v1/model", "GET", true},    {"/v1/model/reload", "POST", true},
                              {"/metrics", "GET", false}};
 
 const Route* find_route(const std::string& path) {
@@ -371,7 +380,9 @@ Result<bool> Service::prepare() {
   auto observed = [&s, reply](const char* route, const httplib::Request& req, httplib::Response& res,
                               const std::function<std::string()>& body) {
     // Routes other than /v1/score have their body (if any) read by the library before this.
-    if (std::string_view(route) != "/v1/score") connection_working();
+    if (std::string_view(route) != "/v1/score" && std::string_view(route) != "/v1/explain") {
+      connection_working();
+    }
     const auto start = Clock::now();
     const auto id = s.next_id++;
     res.set_header("X-Request-Id", std::to_string(id));
@@ -404,7 +415,12 @@ Result<bool> Service::prepare() {
         const bool size_ok =
             !req.has_header("Content-Length") ||
             std::strtoull(req.get_header_value("Content-Length").c_str(), nullptr, 10) <= cfg.max_body_bytes;
-        if (method_ok && token_ok && size_ok) return httplib::Server::HandlerResponse::Unhandled;
+        // An upload route with no body at all: the library would refuse to read it with a bare 400.
+        const bool upload = route != nullptr && std::string_view(route->method) == "POST" &&
+                            std::string_view(route->path) != "/v1/model/reload";
+        const bool body_ok = !upload || !req.has_header("Content-Length") ||
+                             std::strtoull(req.get_header_value("Content-Length").c_str(), nullptr, 10) > 0;
+        if (method_ok && token_ok && size_ok && body_ok) return httplib::Server::HandlerResponse::Unhandled;
         observed(route != nullptr ? route->path : "unknown", req, res, [&] {
           if (route == nullptr) {
             reply(res, 404, error_body("not-found", "no such route; see docs/openapi.yaml"));
@@ -414,10 +430,12 @@ Result<bool> Service::prepare() {
           } else if (!token_ok) {
             res.set_header("WWW-Authenticate", "Bearer");
             reply(res, 401, error_body("unauthorised", "missing or wrong bearer token"));
-          } else {
+          } else if (!size_ok) {
             reply(res, 413,
                   error_body("too-large", "the request body is over the size limit of " +
                                               std::to_string(cfg.max_body_bytes) + " bytes"));
+          } else {
+            reply(res, 400, error_body("empty", "the request body is empty: send the image bytes"));
           }
           return std::string();
         });
@@ -428,85 +446,153 @@ Result<bool> Service::prepare() {
         return httplib::Server::HandlerResponse::Handled;
       });
 
-  server.Post("/v1/score", [&s, &cfg, reply, observed](const httplib::Request& req, httplib::Response& res,
-                                                       const httplib::ContentReader& content_reader) {
-    observed("/v1/score", req, res, [&]() -> std::string {
-      // The body is read here rather than by the HTTP library, so that it is taken as image bytes
-      // whatever its declared type (curl --data-binary declares a form) and a chunked body is held
-      // to the same size limit. A multipart form must carry exactly one part, the file.
-      std::string body;
-      if (req.has_header("Content-Length")) {  // no doubling reallocations for a large upload
-        body.reserve(std::min<std::size_t>(
-            std::strtoull(req.get_header_value("Content-Length").c_str(), nullptr, 10), cfg.max_body_bytes));
+  // Reads an upload as image bytes, or answers the error and gives nothing. The body is read here
+  // rather than by the HTTP library, so that it is taken as image bytes whatever its declared type
+  // (curl --data-binary declares a form) and a chunked body is held to the same size limit. A
+  // multipart form must carry exactly one part, the file.
+  auto read_upload = [&cfg, reply](
+                         const httplib::Request& req, httplib::Response& res,
+                         const httplib::ContentReader& content_reader) -> std::optional<std::string> {
+    std::string body;
+    if (req.has_header("Content-Length")) {  // no doubling reallocations for a large upload
+      body.reserve(std::min<std::size_t>(
+          std::strtoull(req.get_header_value("Content-Length").c_str(), nullptr, 10), cfg.max_body_bytes));
+    }
+    size_t parts = 0;
+    bool too_large = false;
+    const auto append = [&](const char* data, size_t n) {
+      if (body.size() + n > cfg.max_body_bytes) {
+        too_large = true;
+        return false;
       }
-      size_t parts = 0;
-      bool too_large = false;
-      const auto append = [&](const char* data, size_t n) {
-        if (body.size() + n > cfg.max_body_bytes) {
-          too_large = true;
-          return false;
-        }
-        body.append(data, n);
-        return true;
-      };
-      const bool read =
-          req.is_multipart_form_data()
-              ? content_reader([&](const httplib::MultipartFormData&) { return ++parts == 1; }, append)
-              : content_reader(append);
-      connection_working();
-      if (too_large || (!read && res.status == 413)) {
-        res.set_header("Connection", "close");
-        reply(res, 413,
-              error_body("too-large", "the request body is over the size limit of " +
-                                          std::to_string(cfg.max_body_bytes) + " bytes"));
-        return "";
-      }
-      if (req.is_multipart_form_data() && parts != 1) {
-        reply(res, 400, error_body("bad-request", "a multipart upload must carry exactly one file"));
-        return "";
-      }
-      if (!read) {
-        reply(res, 400, error_body("bad-request", "the request body could not be read"));
-        return "";
-      }
-      if (body.empty()) {
-        reply(res, 400, error_body("empty", "the request body is empty: send the image bytes"));
-        return "";
-      }
-      ScanSettings settings = cfg.scan;
-      if (req.has_param("prior")) {
-        try {
-          const double prior = std::stod(req.get_param_value("prior"));
-          if (!(prior > 0.0 && prior < 1.0)) throw std::invalid_argument("range");
-          settings.prior = prior;
-        } catch (const std::exception&) {
-          reply(res, 400, error_body("bad-request", "prior must be a number strictly between 0 and 1"));
-          return "";
-        }
-      }
-      if (!s.acquire()) {
-        res.set_header("Retry-After", "1");
-        reply(res, 503,
-              error_body("overloaded", "all scoring workers are busy and the queue is full; retry shortly"));
-        return "";
-      }
-      const auto model = s.current();  // this request finishes on this model even if another is loaded
-      Json record;
-      try {
-        record = scan_bytes(req.get_param_value("name").empty() ? "-" : req.get_param_value("name"),
-                            std::span(reinterpret_cast<const std::uint8_t*>(body.data()), body.size()),
-                            *model, settings);
-      } catch (...) {
-        s.release();
-        throw;
-      }
+      body.append(data, n);
+      return true;
+    };
+    const bool read =
+        req.is_multipart_form_data()
+            ? content_reader([&](const httplib::MultipartFormData&) { return ++parts == 1; }, append)
+            : content_reader(append);
+    connection_working();
+    if (too_large || (!read && res.status == 413)) {
+      res.set_header("Connection", "close");
+      reply(res, 413,
+            error_body("too-large", "the request body is over the size limit of " +
+                                        std::to_string(cfg.max_body_bytes) + " bytes"));
+      return std::nullopt;
+    }
+    if (req.is_multipart_form_data() && parts != 1) {
+      reply(res, 400, error_body("bad-request", "a multipart upload must carry exactly one file"));
+      return std::nullopt;
+    }
+    if (body.empty()) {  // also a body that never came (Content-Length: 0)
+      reply(res, 400, error_body("empty", "the request body is empty: send the image bytes"));
+      return std::nullopt;
+    }
+    if (!read) {
+      reply(res, 400, error_body("bad-request", "the request body could not be read"));
+      return std::nullopt;
+    }
+    return body;
+  };
+  // The scan settings of a request (its `prior`), or answers the error and gives nothing.
+  auto request_settings = [&cfg, reply](const httplib::Request& req,
+                                        httplib::Response& res) -> std::optional<ScanSettings> {
+    ScanSettings settings = cfg.scan;
+    if (!req.has_param("prior")) return settings;
+    try {
+      const double prior = std::stod(req.get_param_value("prior"));
+      if (!(prior > 0.0 && prior < 1.0)) throw std::invalid_argument("range");
+      settings.prior = prior;
+    } catch (const std::exception&) {
+      reply(res, 400, error_body("bad-request", "prior must be a number strictly between 0 and 1"));
+      return std::nullopt;
+    }
+    return settings;
+  };
+  // Runs `work` on a scoring slot with the model of the moment (the request finishes on it even if
+  // another is loaded), or answers 503 when every worker is busy and the queue is full.
+  auto on_a_worker = [&s, reply](httplib::Response& res, const std::function<void(const Model&)>& work) {
+    if (!s.acquire()) {
+      res.set_header("Retry-After", "1");
+      reply(res, 503,
+            error_body("overloaded", "all scoring workers are busy and the queue is full; retry shortly"));
+      return false;
+    }
+    const auto model = s.current();
+    try {
+      work(*model);
+    } catch (...) {
       s.release();
+      throw;
+    }
+    s.release();
+    return true;
+  };
+  auto upload_name = [](const httplib::Request& req) {
+    return req.get_param_value("name").empty() ? std::string("-") : req.get_param_value("name");
+  };
+
+  server.Post("/v1/score", [observed, reply, read_upload, request_settings, on_a_worker, upload_name](
+                               const httplib::Request& req, httplib::Response& res,
+                               const httplib::ContentReader& content_reader) {
+    observed("/v1/score", req, res, [&]() -> std::string {
+      const auto body = read_upload(req, res, content_reader);
+      const auto settings = body ? request_settings(req, res) : std::nullopt;
+      Json record;
+      if (!settings || !on_a_worker(res, [&](const Model& model) {
+            record = scan_bytes(upload_name(req), as_bytes(*body), model, *settings);
+          })) {
+        return "";
+      }
       if (record.contains("error")) {
         reply(res, status_for(record["error"]["code"]), record);
         return "";
       }
       reply(res, 200, record);
       return record["band"];
+    });
+  });
+  server.Post("/v1/explain", [observed, reply, read_upload, request_settings, on_a_worker, upload_name](
+                                 const httplib::Request& req, httplib::Response& res,
+                                 const httplib::ContentReader& content_reader) {
+    observed("/v1/explain", req, res, [&]() -> std::string {
+      const auto body = read_upload(req, res, content_reader);
+      const auto settings = body ? request_settings(req, res) : std::nullopt;
+      std::optional<Result<Explanation>> explained;
+      if (!settings || !on_a_worker(res, [&](const Model& model) {
+            explained = explain_bytes(upload_name(req), as_bytes(*body), model, *settings);
+          })) {
+        return "";
+      }
+      if (!explained->ok()) {
+        const Error& e = explained->error();
+        const std::string code(error_code_name(e.code));
+        reply(res, status_for(code), error_body(code, e.message));
+        return "";
+      }
+      const Explanation& x = **explained;
+      Json answer = x.summary;
+      answer["pictures"] = {{"preview", png_data_uri(x.pictures.preview)},
+                            {"noise_residual", png_data_uri(x.pictures.noise_residual)},
+                            {"residual_spectrum", png_data_uri(x.pictures.residual_spectrum)},
+                            {"resampling_pmap_spectrum", png_data_uri(x.pictures.pmap_spectrum)},
+                            {"contributions_svg", x.pictures.contributions_svg}};
+      reply(res, 200, answer);
+      return x.summary["band"];
+    });
+  });
+  server.Get("/", [observed](const httplib::Request& req, httplib::Response& res) {
+    observed("/", req, res, [&] {
+      // Everything the page needs is inline; it may talk only to this service.
+      res.set_header("Content-Security-Policy",
+                     "default-src 'none'; script-src 'unsafe-inline'; style-src 'unsafe-inline'; "
+                     "img-src data: blob:; connect-src 'self'; base-uri 'none'; form-action 'none'; "
+                     "frame-ancestors 'none'");
+      res.set_header("X-Content-Type-Options", "nosniff");
+      res.set_header("Referrer-Policy", "no-referrer");
+      res.set_header("Cache-Control", "no-store");
+      res.set_content(review_page(), "text/html; charset=utf-8");
+      return std::string();
     });
   });
   server.Get("/v1/health", [&s, reply, observed](const httplib::Request& req, httplib::Response& res) {
@@ -557,13 +643,14 @@ Result<bool> Service::prepare() {
   });
   server.set_post_routing_handler([](const httplib::Request&, httplib::Response&) { connection_answered(); });
   server.set_error_handler([reply](const httplib::Request&, httplib::Response& res) {
+    if (!res.body.empty()) return;  // our own answer
     if (res.status == 413) {
       reply(res, 413, error_body("too-large", "the request body is over the size limit"));
     } else if (res.status == 400) {
       reply(res, 400, error_body("bad-request", "the request could not be read"));
     } else if (res.status == 404) {
       reply(res, 404, error_body("not-found", "no such route; see docs/openapi.yaml"));
-    } else if (res.body.empty()) {
+    } else {
       reply(res, res.status, error_body("http-" + std::to_string(res.status), "request refused"));
     }
   });

@@ -1,23 +1,40 @@
 // Why one image scored as it did: pictures a person can look at and a short summary.
 #pragma once
 
+#include <cstdint>
 #include <filesystem>
 #include <nlohmann/json.hpp>
+#include <span>
 #include <string>
 
 #include "residue/detector/scoring/scan.hpp"
+#include "residue/features/image.hpp"
 
 namespace residue {
 
-struct Explanation {
-  nlohmann::ordered_json summary;  // the scan record plus strongest_evidence and pictures
-  std::string text;                // the same for a person, with the advisory notice
+// The pictures of an explanation, in memory.
+struct ExplanationPictures {
+  Image preview;                  // the image reduced to at most 512 px on its longer side
+  Image noise_residual;           // centre of the image, up to 1024 px
+  Image residual_spectrum;        // log power spectrum of the middle window's residual, N/8 grid marked
+  Image pmap_spectrum;            // Kirchner (2008) p-map spectrum of the middle window
+  std::string contributions_svg;  // per-family bar chart
 };
 
-// Writes into `output_dir`: noise_residual.png (centre of the image, up to 1024 px),
-// residual_spectrum.png (log power spectrum of the middle window's residual, N/8 grid marked),
-// resampling_pmap_spectrum.png (Kirchner p-map spectrum), contributions.svg (per-family bar
-// chart), summary.json and summary.txt.
+struct Explanation {
+  nlohmann::ordered_json summary;  // the scan record plus thresholds and strongest_evidence
+  std::string text;                // the same for a person, with the advisory notice
+  ExplanationPictures pictures;
+};
+
+// Explains bytes already in memory (the service's POST /v1/explain); `name` is only echoed. An
+// image that cannot be scored gives the scan record's error (code and message).
+Result<Explanation> explain_bytes(const std::string& name, std::span<const std::uint8_t> bytes,
+                                  const Model& model, const ScanSettings& settings);
+
+// Reads and explains a file, and writes into `output_dir`: noise_residual.png,
+// residual_spectrum.png, resampling_pmap_spectrum.png, contributions.svg, summary.json and
+// summary.txt (summary.json then also lists the pictures).
 Result<Explanation> explain_image(const std::string& image, const Model& model, const ScanSettings& settings,
                                   const std::filesystem::path& output_dir);
 
