@@ -14,8 +14,8 @@
 
 #include "commands.hpp"
 #include "options.hpp"
-#include "residue/detector/scoring/record.hpp"
 #include "residue/detector/queue/work_queue.hpp"
+#include "residue/detector/scoring/record.hpp"
 #include "residue/training/batch.hpp"
 #include "stop_signals.hpp"
 
@@ -27,11 +27,16 @@ constexpr const char* kDefaultRedis = "redis://127.0.0.1:6379";
 
 struct ConnectionArgs {
   std::string url = kDefaultRedis;
+  std::string password_file;
   double timeout_s = 5.0;
 };
 
 void add_connection_options(CLI::App& cmd, ConnectionArgs& args) {
   cmd.add_option("--redis", args.url, "redis://[:password@]host[:port][/db]")->capture_default_str();
+  cmd.add_option("--redis-password-file", args.password_file,
+                 "file whose first line is the Redis password, kept out of the process list (overrides "
+                 "one in --redis; an empty file: no password)")
+      ->check(CLI::ExistingFile);
   cmd.add_option("--timeout", args.timeout_s, "seconds to wait for Redis to connect or reply")
       ->check(CLI::Range(0.1, 600.0))
       ->capture_default_str();
@@ -43,6 +48,8 @@ std::optional<QueueConnection> connection_of(const ConnectionArgs& args, const c
     std::cerr << "residue " << command << ": " << address.error().message << "\n";
     return std::nullopt;
   }
+  // An empty file means no password (what a packaged unit is given when Redis has none).
+  if (!args.password_file.empty()) address->password = first_line_of(args.password_file);
   QueueConnection c;
   c.address = *address;
   c.timeout = std::chrono::milliseconds(static_cast<long>(args.timeout_s * 1000));

@@ -22,8 +22,7 @@ struct ServeArgs {
 
 int run_serve(ServeArgs& args) {
   if (!args.token_file.empty()) {
-    std::ifstream in(args.token_file);
-    std::getline(in, args.settings.token);
+    args.settings.token = first_line_of(args.token_file);
     if (args.settings.token.empty()) {
       std::cerr << "residue serve: no token in " << args.token_file << "\n";
       return static_cast<int>(ExitCode::kFailure);

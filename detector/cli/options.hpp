@@ -2,6 +2,9 @@
 #pragma once
 
 #include <CLI/CLI.hpp>
+#include <fstream>
+#include <optional>
+#include <string>
 
 #include "residue/features/extract.hpp"
 
@@ -19,13 +22,24 @@ inline void add_extract_options(CLI::App& command, ExtractOptions& options) {
           [&options](double mb) {
             options.limits.max_file_bytes = static_cast<std::uint64_t>(mb * 1048576.0);
           },
-          "refuse files larger than this many MiB (default 200: with the decoders reading window by window, peak memory is about 70 MB plus the file)")
+          "refuse files larger than this many MiB (default 200: with the decoders reading window by window, "
+          "peak memory is about 70 MB plus the file)")
       ->check(CLI::PositiveNumber);
   command
       .add_option("--min-window", options.windows.min_size,
                   "smallest analysis window in px (power of two, 32..256); smaller images are refused")
       ->check(CLI::IsMember({32, 64, 128, 256}))
       ->capture_default_str();
+}
+
+// The first line of a secret file (a bearer token, a Redis password), without a trailing CR; empty
+// when the file cannot be read or its first line is empty.
+inline std::string first_line_of(const std::string& path) {
+  std::ifstream in(path);
+  std::string line;
+  std::getline(in, line);
+  if (!line.empty() && line.back() == '\r') line.pop_back();
+  return line;
 }
 
 }  // namespace residue::cli

@@ -373,6 +373,7 @@ Result<EnqueueStats> enqueue_jobs(const std::vector<std::string>& paths, const E
   auto flush = [&]() -> Result<bool> {
     if (batch.empty()) return true;
     if (!link.ensure(deadline)) {
+      if (link.fatal()) return *link.fatal();
       return make_error(ErrorCode::kUnreadable, "cannot reach Redis; " + std::to_string(stats.enqueued) +
                                                     " jobs were enqueued before the connection was lost");
     }
@@ -448,6 +449,7 @@ Result<CollectStats> collect_results(const CollectSettings& s,
       break;
     }
     if (!link.ensure(deadline)) {
+      if (link.fatal()) return *link.fatal();
       if (!s.expect) return make_error(ErrorCode::kUnreadable, "cannot reach Redis");
       stats.complete = false;
       break;

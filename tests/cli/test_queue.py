@@ -221,6 +221,28 @@ with tempfile.TemporaryDirectory() as tmp:
         check(r.returncode == 2 and "redis://" in r.stderr, "a bad Redis URL is a usage error")
         r = run(["collect", "--redis", "redis://127.0.0.1:1", "--results", "x", "--timeout", "0.5"])
         check(r.returncode == 1 and "Redis" in r.stderr, "collect without Redis fails with a clear message")
+
+        stage("password file")
+        # The password from a file (what the packaged worker@ unit passes through LoadCredential=),
+        # never on the command line.
+        secret = os.path.join(tmp, "redis-password")
+        with open(secret, "w") as f:
+            f.write("queue-test-secret\n")
+        wrong = os.path.join(tmp, "wrong-password")
+        with open(wrong, "w") as f:
+            f.write("not-it\n")
+        redis.cli("CONFIG", "SET", "requirepass", "queue-test-secret")
+        r = run(["enqueue", "-", "--redis", redis.url, "--redis-password-file", secret, "--stream", "jobs6"],
+                stdin=os.path.join(images, "camera", sorted(os.listdir(os.path.join(images, "camera")))[0]) + "\n")
+        check(r.returncode == 0, f"enqueue authenticates with --redis-password-file: {r.stderr[-200:]}")
+        r = run(["collect", "--redis", redis.url, "--redis-password-file", wrong, "--results", "jobs6:results",
+                 "--timeout", "2"])
+        check(r.returncode == 1 and "password" in r.stderr, f"a wrong password file is refused clearly: {r.stderr[-200:]}")
+        r = run(["collect", "--redis", redis.url, "--redis-password-file", os.path.join(tmp, "none"),
+                 "--results", "jobs6:results"])
+        check(r.returncode == 2, "a missing password file is a usage error")
+        subprocess.run(["redis-cli", "-p", str(redis.port), "-a", "queue-test-secret", "--no-auth-warning",
+                        "CONFIG", "SET", "requirepass", ""], capture_output=True, timeout=10)
     finally:
         redis.stop()
 
