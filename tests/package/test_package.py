@@ -7,11 +7,15 @@ into a scratch root with dpkg -x, and its residue --version, residue demo and Py
 Usage: test_package.py BUILD_DIR VERSION
 """
 import glob
+import json
 import os
 import re
+import signal
 import subprocess
 import sys
 import tempfile
+import urllib.error
+import urllib.request
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "cli"))
 from harness import check, finish  # noqa: E402
@@ -116,6 +120,43 @@ with tempfile.TemporaryDirectory() as root:
     check(r.returncode == 0, f"the unpacked residue demo runs: {r.stderr[-300:]}")
     check(any(name.endswith(".html") for _, _, names in os.walk(demo_dir) for name in names),
           "the demo wrote its HTML report")
+    check(os.path.isfile(os.path.join(demo_dir, "model.json")), "the demo wrote its model")
+
+    # Each unit's command line, expanded as systemd would expand it (its Environment= defaults,
+    # %d the credentials folder, %H the host, %i the instance), runs. No systemd runs the units
+    # themselves here (the test machine has none as PID 1).
+    credentials = os.path.join(root, "credentials")
+    os.makedirs(credentials)
+    with open(os.path.join(credentials, "token"), "w") as f:
+        f.write("package-test-token\n")
+    open(os.path.join(credentials, "redis-password"), "w").close()  # empty: Redis without a password
+    overrides = {"RESIDUE_MODEL": os.path.join(demo_dir, "model.json"), "RESIDUE_PORT": "0",
+                 "RESIDUE_REDIS": "redis://127.0.0.1:9"}  # port 9 (discard): nothing listens
+    for unit in ("residue-serve.service", "residue-worker@.service"):
+        text = open(os.path.join(units, unit)).read()
+        values = dict(re.findall(r"(\w+)=(\S*)", re.search(r"^Environment=(.*)$", text, re.M)[1]))
+        values.update(overrides)
+        line = re.search(r"^ExecStart=(.*)$", text, re.M)[1]
+        line = line.replace("%d", credentials).replace("%H", "testhost").replace("%i", "1")
+        line = re.sub(r"\$\{(\w+)\}|\$(\w+)", lambda m: values[m[1] or m[2]], line)
+        process = subprocess.Popen(line.split(), stderr=subprocess.PIPE, text=True)
+        first = process.stderr.readline()
+        if unit.startswith("residue-serve"):
+            port = json.loads(first)["port"]
+            with urllib.request.urlopen(f"http://127.0.0.1:{port}/v1/health", timeout=10) as answer:
+                check(answer.status == 200, "the serve unit's command line serves the model")
+            try:
+                urllib.request.urlopen(f"http://127.0.0.1:{port}/v1/model", timeout=10)
+                check(False, "the serve unit's command line requires the credential token")
+            except urllib.error.HTTPError as e:
+                check(e.code == 401, "the serve unit's command line requires the credential token")
+        else:
+            second = process.stderr.readline()
+            check("jobs from residue-jobs" in first and "retrying" in second,
+                  f"the worker unit's command line starts and waits for Redis: {first.strip()} {second.strip()}")
+        process.send_signal(signal.SIGTERM)
+        check(process.wait(timeout=60) == 0, f"{unit}'s command line stops cleanly on SIGTERM")
+
     env = dict(os.environ, PYTHONPATH=os.path.join(root, "usr", "lib", "python3", "dist-packages"))
     r = sh("/usr/bin/python3", "-c", "import residue; print(residue.__file__); print(len(residue.feature_names()))",
            env=env)
