@@ -4,8 +4,8 @@ route it uses, POST /v1/explain.
 A server on loopback is started with a token file; Debian's chromium, headless, is driven through
 chromium-driver and python3-selenium. The page gets the token typed once, then a camera photo (a
 scikit-image crop) and a SIMULATED generated image (tests/cli/make_labelled.py), each uploaded
-through the page's file chooser; the band and probability it shows must be those /v1/score gives
-for the same bytes. A truncated file must show its error, an upload without the token must show
+through the page's file chooser, then both dropped at once; the band and probability it shows must
+be those /v1/score gives for the same bytes. A truncated file must show its error, an upload without the token must show
 the 401 and what to do. The page must load nothing from outside, keep the advisory in view, and
 give every control a label. Traffic goes only to 127.0.0.1.
 
@@ -185,6 +185,28 @@ def check_page(base, camera, generated, broken):
         check(card.find_element(By.CSS_SELECTOR, ".error-code").text == answer["error"]["code"],
               f"a broken upload shows its error code ({answer['error']['code']})")
         check(answer["error"]["message"] in alert.text, "and its message")
+
+        # Several images dropped at once (a drop event carrying two files, as a file manager sends).
+        dropped = [(f"dropped-{i}.png", base64.b64encode(open(p, "rb").read()).decode())
+                   for i, p in enumerate((camera, generated))]
+        browser.execute_script("""
+            const transfer = new DataTransfer();
+            for (const [name, b64] of arguments[0]) {
+              const bytes = Uint8Array.from(atob(b64), (c) => c.charCodeAt(0));
+              transfer.items.add(new File([bytes], name, { type: "image/png" }));
+            }
+            const zone = document.getElementById("drop");
+            zone.dispatchEvent(new DragEvent("dragover", { dataTransfer: transfer, bubbles: true, cancelable: true }));
+            zone.dispatchEvent(new DragEvent("drop", { dataTransfer: transfer, bubbles: true, cancelable: true }));
+        """, dropped)
+        done = 'article.result[data-file^="dropped-"][data-done="true"]'
+        WebDriverWait(browser, 60).until(lambda b: len(b.find_elements(By.CSS_SELECTOR, done)) == 2)
+        for (name, _), expected in zip(dropped, scored):
+            card = browser.find_element(By.CSS_SELECTOR, f'article.result[data-file="{name}"]')
+            check(card.find_element(By.CSS_SELECTOR, ".band").text == expected["band"] and
+                  float(card.find_element(By.CSS_SELECTOR, ".probability").get_attribute("data-p")) ==
+                  expected["p_generated"], f"a dropped image ({name}) gets the same result as when chosen")
+        check("2 images scored" in browser.find_element(By.ID, "status").text, "the status line counts both")
 
         # The token is typed once: it survives a reload of the tab, and is gone when forgotten.
         browser.refresh()
