@@ -52,6 +52,9 @@ Result<std::optional<WindowPixels>> decode_tiff_tiles(std::span<const std::uint8
 Result<Image> decode_with_opencv(std::span<const std::uint8_t> bytes, const ImageHeader& header,
                                  bool* alpha_dropped);
 
+// The whole image straight to 8-bit BGR (imdecode, IMREAD_COLOR): the plain-decoder reference.
+Result<std::size_t> decode_plain_8bit(std::span<const std::uint8_t> bytes);
+
 // Encodes with OpenCV's imgcodecs (libjpeg-turbo, libpng).
 Result<std::vector<std::uint8_t>> encode(const Image& image, ImageFormat format, int quality);
 

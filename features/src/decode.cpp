@@ -101,6 +101,10 @@ Result<Image> decode_image(std::span<const std::uint8_t> bytes, const DecodeLimi
   return detail::decode_with_opencv(bytes, *header, &alpha_dropped);
 }
 
+Result<std::size_t> decode_plain_8bit(std::span<const std::uint8_t> bytes) {
+  return detail::decode_plain_8bit(bytes);
+}
+
 Result<Image> decode_preview(std::span<const std::uint8_t> bytes, const DecodeLimits& limits) {
   auto header = checked_header(bytes, limits);
   if (!header) return header.error();

@@ -17,6 +17,18 @@ bool png_has_end(std::span<const std::uint8_t> b) {
 
 }  // namespace
 
+Result<std::size_t> decode_plain_8bit(std::span<const std::uint8_t> bytes) {
+  cv::Mat mat;
+  try {
+    const cv::Mat raw(1, static_cast<int>(bytes.size()), CV_8UC1, const_cast<std::uint8_t*>(bytes.data()));
+    mat = cv::imdecode(raw, cv::IMREAD_COLOR);
+  } catch (const cv::Exception& e) {
+    return make_error(ErrorCode::kCorrupt, std::string("decoder: ") + e.what());
+  }
+  if (mat.empty()) return make_error(ErrorCode::kCorrupt, "the decoder rejected the data");
+  return mat.total() * mat.elemSize();
+}
+
 Result<Image> decode_with_opencv(std::span<const std::uint8_t> bytes, const ImageHeader& header,
                                  bool* alpha_dropped) {
   cv::Mat mat;

@@ -234,3 +234,20 @@ TEST_CASE("a thumbnail smaller than the standard window gets the largest window 
   CHECK(r->layout.size == 64);
   CHECK(r->tiles.size() == 2);  // 150 px holds two 64 px windows side by side, 100 px one
 }
+
+TEST_CASE("the plain 8-bit reference decode (residue bench) decodes every pixel to 8-bit colour") {
+  // Pillow (Debian python3-pil) wrote these files: coffee is 600 x 400, camera 512 x 512 grey.
+  for (const auto& [name, bytes_decoded] : {std::pair<std::string, std::size_t>{"coffee.png", 600 * 400 * 3},
+                                            {"coffee_q90.jpg", 600 * 400 * 3},
+                                            {"camera_grey.png", 512 * 512 * 3}}) {
+    CAPTURE(name);
+    auto bytes = read_file(files() / name);
+    REQUIRE(bytes.ok());
+    auto decoded = decode_plain_8bit(*bytes);
+    REQUIRE(decoded.ok());
+    CHECK(*decoded == bytes_decoded);
+  }
+  auto garbage = read_file(files() / "random.png");
+  REQUIRE(garbage.ok());
+  CHECK_FALSE(decode_plain_8bit(*garbage).ok());
+}

@@ -69,6 +69,11 @@ Result<Image> decode_preview(std::span<const std::uint8_t> bytes, const DecodeLi
 Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const DecodeLimits& limits = {},
                                       const WindowPolicy& policy = {}, bool skip_unused_rows = true);
 
+// The whole image decoded straight to 8-bit interleaved colour by libjpeg-turbo or libpng (through
+// OpenCV's imdecode, IMREAD_COLOR), as a plain decoder such as Pillow does it: no float planes.
+// Returns the number of bytes decoded. The reference `residue bench` compares the analysis with.
+Result<std::size_t> decode_plain_8bit(std::span<const std::uint8_t> bytes);
+
 // Encodes an image (values rounded and clamped to 0..255, 8-bit) as JPEG at `quality` (IJG
 // scale, 4:2:0 chroma as libjpeg's default) or as PNG. For the demo, benchmarks and tests.
 Result<std::vector<std::uint8_t>> encode_image(const Image& image, ImageFormat format, int quality = 90);
