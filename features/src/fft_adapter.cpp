@@ -66,19 +66,65 @@ const std::vector<double>& hann(int n) {
 
 }  // namespace
 
+namespace {
+
+// FFTW's input and output arrays of one thread, kept between calls (one spectrum per window and
+// plane would otherwise allocate and fault in about 1 MB each time). fftw_malloc gives the
+// alignment the plans were made with, so any such array may be passed to them.
+struct Scratch {
+  size_t real_size = 0;
+  size_t complex_size = 0;
+  RealBuffer in;
+  ComplexBuffer out;
+  void reserve(size_t real, size_t complex) {
+    if (real > real_size) {
+      in = alloc_real(real);
+      real_size = real;
+    }
+    if (complex > complex_size) {
+      out = alloc_complex(complex);
+      complex_size = complex;
+    }
+  }
+};
+
+// The radial bin of every cell of an n x n spectrum (-1 beyond the Nyquist circle), by (n, bins).
+const std::vector<int>& radial_bins(int n, int bins) {
+  static std::mutex mutex;
+  static std::map<std::pair<int, int>, std::vector<int>> tables;
+  std::lock_guard lock(mutex);
+  auto [it, added] = tables.try_emplace({n, bins});
+  if (added) {
+    it->second.assign(static_cast<size_t>(n) * n, -1);
+    for (int v = 0; v < n; ++v) {
+      const double fv = dft_frequency(v, n);
+      for (int u = 0; u < n; ++u) {
+        const double fu = dft_frequency(u, n);
+        const double r = std::sqrt(fu * fu + fv * fv);
+        if (r < 0.5) it->second[static_cast<size_t>(v) * n + u] = static_cast<int>(r / 0.5 * bins);
+      }
+    }
+  }
+  return it->second;  // map nodes never move
+}
+
+}  // namespace
+
 std::vector<double> hann_power_spectrum(const float* image, int n) {
   const auto& w = hann(n);
   const size_t nn = static_cast<size_t>(n) * n;
   const int half = n / 2 + 1;
-  auto in = alloc_real(nn);
-  auto out = alloc_complex(static_cast<size_t>(n) * half);
+  thread_local Scratch scratch;
+  scratch.reserve(nn, static_cast<size_t>(n) * half);
+  double* in = scratch.in.get();
+  const fftw_complex* out = scratch.out.get();
   double w1 = 0.0;
   for (int k = 0; k < n; ++k) w1 += w[k] * w[k];
   const double norm = 1.0 / (w1 * w1);  // sum over the 2-D window of w(x)^2 w(y)^2
   for (int y = 0; y < n; ++y) {
     for (int x = 0; x < n; ++x) in[y * n + x] = w[y] * w[x] * image[y * n + x];
   }
-  fftw_execute_dft_r2c(plan_for(n), in.get(), out.get());
+  fftw_execute_dft_r2c(plan_for(n), in, scratch.out.get());
   std::vector<double> power(nn);
   for (int v = 0; v < n; ++v) {
     for (int u = 0; u < half; ++u) {
@@ -143,16 +189,12 @@ std::vector<double> flatten_axis_ridges(const std::vector<double>& power, int n)
 std::vector<double> azimuthal_average(const std::vector<double>& power, int n, int bins) {
   std::vector<double> sum(bins, 0.0);
   std::vector<int> count(bins, 0);
-  for (int v = 0; v < n; ++v) {
-    const double fv = dft_frequency(v, n);
-    for (int u = 0; u < n; ++u) {
-      const double fu = dft_frequency(u, n);
-      const double r = std::sqrt(fu * fu + fv * fv);
-      if (r >= 0.5) continue;
-      const int b = static_cast<int>(r / 0.5 * bins);
-      sum[b] += power[static_cast<size_t>(v) * n + u];
-      ++count[b];
-    }
+  const auto& bin_of = radial_bins(n, bins);
+  for (size_t i = 0; i < bin_of.size(); ++i) {
+    const int b = bin_of[i];
+    if (b < 0) continue;
+    sum[b] += power[i];  // in the same order as before the table: the sums are bit for bit the same
+    ++count[b];
   }
   for (int b = 0; b < bins; ++b) sum[b] = count[b] > 0 ? sum[b] / count[b] : 0.0;
   return sum;
