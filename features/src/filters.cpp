@@ -137,33 +137,99 @@ QuantisedPlane quantise(const Plane& residual, double step, int t) {
   return out;
 }
 
-long add_folded_tuples(const QuantisedPlane& q, int order, bool along_rows, std::vector<double>& histogram) {
-  const int t = q.t;
-  const auto& index = folded_index(t, order, true);
-  const size_t side = 2 * static_cast<size_t>(t) + 1;
+namespace {
+
+size_t tuple_cells(int t, int order) {
+  size_t cells = 1;
+  for (int k = 0; k < order; ++k) cells *= 2 * static_cast<size_t>(t) + 1;
+  return cells;
+}
+
+// Adds to `raw` (tuple_cells(t, order) counters, unfolded) the tuples of `order` neighbours along
+// rows (or columns) whose first element lies at position [first, last) along that direction, over
+// the whole other direction. Counted into four interleaved copies, so that a run of one tuple (a
+// smooth area) does not wait on the previous increment of the same counter.
+void count_raw_tuples(const QuantisedPlane& q, int order, bool along_rows, int first, int last,
+                      std::uint32_t* raw) {
+  const size_t side = 2 * static_cast<size_t>(q.t) + 1;
+  const size_t cells = tuple_cells(q.t, order);
   const int w = q.width;
-  const int h = q.height;
-  // Count raw tuples first, fold once at the end.
-  std::vector<std::uint32_t> raw(index.size(), 0);
-  long tuples = 0;
-  const int span = order - 1;
-  const int dx = along_rows ? 1 : 0;
-  const int dy = along_rows ? 0 : 1;
-  const size_t stride = static_cast<size_t>(dy) * w + dx;
-  for (int y = 0; y + dy * span < h; ++y) {
+  const size_t stride = along_rows ? 1 : static_cast<size_t>(w);
+  thread_local std::vector<std::uint32_t> lanes;
+  lanes.assign(4 * cells, 0);
+  std::uint32_t* lane[4] = {lanes.data(), lanes.data() + cells, lanes.data() + 2 * cells,
+                            lanes.data() + 3 * cells};
+  // Along rows: each row, starts x in [first, last). Along columns: rows y in [first, last), every x.
+  const int y_begin = along_rows ? 0 : first;
+  const int y_end = along_rows ? q.height : last;
+  const int x_begin = along_rows ? first : 0;
+  const int x_end = along_rows ? last : w;
+  for (int y = y_begin; y < y_end; ++y) {
     const std::uint8_t* row = q.q.data() + static_cast<size_t>(y) * w;
-    const int count = w - dx * span;
-    for (int x = 0; x < count; ++x) {
+    for (int x = x_begin; x < x_end; ++x) {
       const std::uint8_t* p = row + x;
       size_t cell = p[0];
       for (int k = 1; k < order; ++k) cell = cell * side + p[k * stride];
-      ++raw[cell];
+      ++lane[x & 3][cell];
     }
-    if (count > 0) tuples += count;
   }
+  for (size_t i = 0; i < cells; ++i) raw[i] += lane[0][i] + lane[1][i] + lane[2][i] + lane[3][i];
+}
+
+// Starts along the direction (positions where a tuple of `order` fits), times the other direction.
+long tuple_count(const QuantisedPlane& q, int order, bool along_rows) {
+  const int starts = (along_rows ? q.width : q.height) - order + 1;
+  return starts > 0 ? static_cast<long>(starts) * (along_rows ? q.height : q.width) : 0;
+}
+
+void add_folded_raw(const std::vector<std::uint32_t>& raw, const std::vector<int>& index,
+                    std::vector<double>& histogram) {
   for (size_t i = 0; i < raw.size(); ++i)
     histogram[static_cast<size_t>(index[i])] += static_cast<double>(raw[i]);
+}
+
+}  // namespace
+
+long add_folded_tuples(const QuantisedPlane& q, int order, bool along_rows, std::vector<double>& histogram) {
+  // Count raw tuples first, fold once at the end.
+  std::vector<std::uint32_t> raw(tuple_cells(q.t, order), 0);
+  const long tuples = tuple_count(q, order, along_rows);
+  if (tuples > 0) {
+    const int starts = (along_rows ? q.width : q.height) - order + 1;
+    count_raw_tuples(q, order, along_rows, 0, starts, raw.data());
+  }
+  add_folded_raw(raw, folded_index(q.t, order, true), histogram);
   return tuples;
+}
+
+std::vector<long> add_folded_tuple_orders(const QuantisedPlane& q, bool along_rows,
+                                          std::span<std::vector<double>> histograms) {
+  const int top = static_cast<int>(histograms.size()) + 1;
+  std::vector<long> counts(histograms.size(), 0);
+  const int length = along_rows ? q.width : q.height;
+  if (top < 2) return counts;
+  if (length < top) {  // too short for the highest order: each order on its own
+    for (int order = 2; order <= top; ++order)
+      counts[order - 2] = add_folded_tuples(q, order, along_rows, histograms[order - 2]);
+    return counts;
+  }
+  const size_t side = 2 * static_cast<size_t>(q.t) + 1;
+  std::vector<std::uint32_t> raw(tuple_cells(q.t, top), 0);
+  count_raw_tuples(q, top, along_rows, 0, length - top + 1, raw.data());
+  for (int order = top;; --order) {
+    add_folded_raw(raw, folded_index(q.t, order, true), histograms[order - 2]);
+    counts[order - 2] = tuple_count(q, order, along_rows);
+    if (order == 2) break;
+    // The tuples of order - 1 are those of `order` without their last element, plus the ones
+    // starting at the one position where a tuple of `order` no longer fits.
+    std::vector<std::uint32_t> lower(raw.size() / side, 0);
+    for (size_t i = 0; i < lower.size(); ++i) {
+      for (size_t e = 0; e < side; ++e) lower[i] += raw[i * side + e];
+    }
+    count_raw_tuples(q, order - 1, along_rows, length - order + 1, length - order + 2, lower.data());
+    raw = std::move(lower);
+  }
+  return counts;
 }
 
 long add_folded_pairs(const Plane& residual, double step, int t, bool along_rows,

@@ -125,14 +125,11 @@ std::vector<double> noise_window(const WindowInput& window) {
   values.reserve(noise_names().size());
   std::vector<Moments> kernel_moments;
 
-  const int classes = folded_pair_classes(kCoocT);
   std::vector<double> higher;  // 3rd- and 4th-order values, after SPAM in the vector
   auto normalised = [](const std::vector<double>& histogram, long count, std::vector<double>& out) {
     for (double c : histogram) out.push_back(count > 0 ? c / static_cast<double>(count) : 0.0);
   };
   for (const auto& k : rich_model_kernels()) {
-    std::vector<double> histogram(classes, 0.0);
-    long pairs = 0;
     MomentSums sums;
     const Plane h = correlate_valid(y, n, n, k);
     sums.add(h.values);
@@ -143,16 +140,17 @@ std::vector<double> noise_window(const WindowInput& window) {
     const QuantisedPlane qh = quantise(h, k.step, kCoocT);
     const QuantisedPlane qv = k.directional ? quantise(v, k.step, kCoocT) : QuantisedPlane{};
     const QuantisedPlane& second = k.directional ? qv : qh;
-    pairs += add_folded_tuples(qh, 2, true, histogram);
-    pairs += add_folded_tuples(second, 2, false, histogram);
-    normalised(histogram, pairs, values);
+    // Pairs, triples and (rich kernels) quadruples, each direction in one pass.
+    const int top = rich_kernel(k.name) ? 4 : 3;
+    std::vector<std::vector<double>> histograms;
+    for (int order = 2; order <= top; ++order)
+      histograms.emplace_back(static_cast<size_t>(folded_tuple_classes(kCoocT, order, true)), 0.0);
+    const auto along_rows = add_folded_tuple_orders(qh, true, histograms);
+    const auto along_columns = add_folded_tuple_orders(second, false, histograms);
+    normalised(histograms[0], along_rows[0] + along_columns[0], values);
     kernel_moments.push_back(sums.moments());
-    for (int order : {3, 4}) {
-      if (order == 4 && !rich_kernel(k.name)) continue;
-      std::vector<double> tuples(static_cast<size_t>(folded_tuple_classes(kCoocT, order, true)), 0.0);
-      long count = add_folded_tuples(qh, order, true, tuples);
-      count += add_folded_tuples(second, order, false, tuples);
-      normalised(tuples, count, higher);
+    for (int order = 3; order <= top; ++order) {
+      normalised(histograms[order - 2], along_rows[order - 2] + along_columns[order - 2], higher);
     }
   }
   const auto spam = spam_first_order(y, n, n, kSpamT);

@@ -183,6 +183,30 @@ TEST_CASE("higher-order co-occurrences equal a brute-force count (Fridrich & Kod
     REQUIRE(expected.size() == histogram.size());
     for (size_t i = 0; i < histogram.size(); ++i) CHECK(histogram[i] == expected[i]);
   }
+  // All orders in one pass (the lower ones as marginals of the highest), along rows and columns.
+  for (bool along_rows : {true, false}) {
+    CAPTURE(along_rows);
+    std::vector<std::vector<double>> histograms;
+    for (int order : {2, 3, 4})
+      histograms.emplace_back(static_cast<size_t>(folded_tuple_classes(2, order, true)), 0.0);
+    const auto counts = add_folded_tuple_orders(quantise(plane, 1.0, 2), along_rows, histograms);
+    for (int order : {2, 3, 4}) {
+      CAPTURE(order);
+      std::vector<std::string> args = {"tuples", path.string(), std::to_string(w), std::to_string(h),
+                                       std::to_string(order)};
+      if (!along_rows) args.emplace_back("columns");
+      const auto expected = test::numbers(test::python("traces_reference.py", args));
+      CHECK(counts[order - 2] == (along_rows ? h * (w - order + 1) : w * (h - order + 1)));
+      REQUIRE(expected.size() == histograms[order - 2].size());
+      for (size_t i = 0; i < expected.size(); ++i) CHECK(histograms[order - 2][i] == expected[i]);
+    }
+  }
+  // A plane shorter than the highest order: the orders that fit, counted on their own.
+  const QuantisedPlane narrow = quantise(Plane{3, 2, {1, -1, 2, 0, 0, 1}}, 1.0, 2);
+  std::vector<std::vector<double>> short_histograms = {
+      std::vector<double>(9, 0.0), std::vector<double>(39, 0.0), std::vector<double>(169, 0.0)};
+  CHECK(add_folded_tuple_orders(narrow, true, short_histograms) == std::vector<long>{4, 2, 0});
+  CHECK(add_folded_tuple_orders(narrow, false, short_histograms) == std::vector<long>{3, 0, 0});
   const Plane r = random_plane(), g = random_plane(), b = random_plane();
   std::vector<std::string> args = {"cross"};
   for (const auto* p : {&r, &g, &b}) {

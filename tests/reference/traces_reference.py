@@ -1,9 +1,11 @@
 """References for the camera-side trace families (numpy, scipy, Pillow from Debian).
 
 Usage:
-  traces_reference.py tuples Q.f32 W H ORDER       folded co-occurrence counts of a quantised plane
-                                                   (values -2..2) along rows, order 2, 3 or 4, with
-                                                   the sign and direction symmetry, classes numbered
+  traces_reference.py tuples Q.f32 W H ORDER [columns]
+                                                   folded co-occurrence counts of a quantised plane
+                                                   (values -2..2) along rows (or columns), order
+                                                   2, 3 or 4, with the sign and direction
+                                                   symmetry, classes numbered
                                                    in lexicographic order of their smallest member
                                                    (Fridrich & Kodovsky 2012), by brute force
   traces_reference.py cross R.f32 G.f32 B.f32      sign-folded (R, G, B) triple counts (Goljan,
@@ -35,6 +37,8 @@ mode = sys.argv[1]
 if mode == "tuples":
     w, h, order = int(sys.argv[3]), int(sys.argv[4]), int(sys.argv[5])
     q = np.fromfile(sys.argv[2], dtype=np.float32).reshape(h, w).astype(int)
+    if sys.argv[6:] == ["columns"]:
+        q, w, h = q.T, h, w
     index, n = classes(order, True)
     counts = np.zeros(n)
     for y in range(h):

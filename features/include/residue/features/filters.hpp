@@ -63,6 +63,13 @@ QuantisedPlane quantise(const Plane& residual, double step, int t);
 int folded_tuple_classes(int t, int order, bool reverse);
 long add_folded_tuples(const QuantisedPlane& q, int order, bool along_rows, std::vector<double>& histogram);
 
+// Every order from 2 to histograms.size() + 1 in one pass over the plane: histograms[k - 2] gets
+// the folded tuples of order k, as add_folded_tuples would count them (the lower orders are the
+// marginals of the highest plus the tuples at the end of each row or column). Returns the tuple
+// count of each order.
+std::vector<long> add_folded_tuple_orders(const QuantisedPlane& q, bool along_rows,
+                                          std::span<std::vector<double>> histograms);
+
 // Cross-colour co-occurrence (Goljan, Fridrich & Cogranne 2014, colour rich model): the triple of
 // quantised residuals (R, G, B) at one pixel, folded by sign only (the channels keep their order):
 // 63 classes for T = 2 (folded_tuple_classes(t, 3, false)). Planes of equal size; returns the count.
