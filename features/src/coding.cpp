@@ -2,11 +2,13 @@
 // Seroussi & Sapiro 2000; ISO/IEC 14495-1). See families.hpp and docs/features.md.
 #include <algorithm>
 #include <array>
+#include <bit>
 #include <cmath>
 #include <cstdint>
 #include <numbers>
 
 #include "residue/features/families.hpp"
+#include "residue/features/filters.hpp"
 
 namespace residue {
 
@@ -54,9 +56,18 @@ double coding_cost_bits(const std::vector<int>& samples, int n) {
   if (n < 3) return 0.0;
   // counts[context][residual + 128]; the context is (q1, q2, q3) with the sign merged so that the
   // first non-zero region is positive (the residual's sign flips with it), as the standard does.
-  std::vector<std::array<std::uint32_t, kSymbols>> counts(kContexts);
-  for (auto& c : counts) c.fill(0);
-  std::vector<std::uint32_t> totals(kContexts, 0);
+  // The table (729 x 256 counters) is kept per thread and only the counters used are read and
+  // cleared afterwards, found through a bit mask of the symbols seen in each context.
+  struct Scratch {
+    std::vector<std::array<std::uint32_t, kSymbols>> counts{kContexts, std::array<std::uint32_t, kSymbols>{}};
+    std::vector<std::uint32_t> totals = std::vector<std::uint32_t>(kContexts, 0);
+    std::vector<std::array<std::uint64_t, kSymbols / 64>> seen{kContexts,
+                                                               std::array<std::uint64_t, kSymbols / 64>{}};
+  };
+  thread_local Scratch scratch;
+  auto& counts = scratch.counts;
+  auto& totals = scratch.totals;
+  auto& seen_symbols = scratch.seen;
   auto at = [&](int y, int x) { return samples[static_cast<size_t>(y) * n + x]; };
   // jpegls_gradient_region for every difference of two 8-bit samples, looked up.
   static const std::array<int, 511> kRegion = [] {
@@ -67,40 +78,61 @@ double coding_cost_bits(const std::vector<int>& samples, int n) {
   auto region = [&](int d) {
     return d >= -255 && d <= 255 ? kRegion[static_cast<size_t>(d) + 255] : jpegls_gradient_region(d);
   };
+  // The context of every (q1, q2, q3) before the sign is merged, with the sign it was merged by.
+  struct Folded {
+    std::uint16_t context;
+    int sign;
+  };
+  static const std::array<Folded, kContexts> kFold = [] {
+    std::array<Folded, kContexts> t{};
+    for (int q1 = -4; q1 <= 4; ++q1) {
+      for (int q2 = -4; q2 <= 4; ++q2) {
+        for (int q3 = -4; q3 <= 4; ++q3) {
+          const bool flip = q1 < 0 || (q1 == 0 && (q2 < 0 || (q2 == 0 && q3 < 0)));
+          const int s = flip ? -1 : 1;
+          t[static_cast<size_t>(((q1 + 4) * 9 + (q2 + 4)) * 9 + (q3 + 4))] = {
+              static_cast<std::uint16_t>(((s * q1 + 4) * 9 + (s * q2 + 4)) * 9 + (s * q3 + 4)), s};
+        }
+      }
+    }
+    return t;
+  }();
   // Interior pixels with all four causal neighbours a (W), b (N), c (NW), d (NE).
   for (int y = 1; y < n; ++y) {
     for (int x = 1; x + 1 < n; ++x) {
       const int a = at(y, x - 1), b = at(y - 1, x), c = at(y - 1, x - 1), d = at(y - 1, x + 1);
-      int q1 = region(d - b), q2 = region(b - c), q3 = region(c - a);
-      int sign = 1;
-      if (q1 < 0 || (q1 == 0 && (q2 < 0 || (q2 == 0 && q3 < 0)))) {
-        q1 = -q1;
-        q2 = -q2;
-        q3 = -q3;
-        sign = -1;
-      }
-      int e = sign * (at(y, x) - med_predict(a, b, c));
-      e = ((e + 128) % 256 + 256) % 256 - 128;  // modulo reduction to [-128, 127]
-      const int context = ((q1 + 4) * 9 + (q2 + 4)) * 9 + (q3 + 4);
-      ++counts[static_cast<size_t>(context)][static_cast<size_t>(e) + 128];
-      ++totals[static_cast<size_t>(context)];
+      const Folded f = kFold[static_cast<size_t>(((region(d - b) + 4) * 9 + (region(b - c) + 4)) * 9 +
+                                                 (region(c - a) + 4))];
+      // modulo reduction to [-128, 127]: the low byte as a signed number (C++20 wraps it)
+      const int e = static_cast<std::int8_t>(f.sign * (at(y, x) - med_predict(a, b, c)));
+      const size_t context = f.context;
+      const auto symbol = static_cast<size_t>(e + 128);
+      ++counts[context][symbol];
+      ++totals[context];
+      seen_symbols[context][symbol / 64] |= std::uint64_t{1} << (symbol % 64);
     }
   }
   // Conditional empirical entropy with the Miller (1955) correction (K - 1) / (2 N ln 2) per
   // context, K the symbols seen: without it a few hundred samples per context look predictable.
+  // Symbols in increasing order, as a walk over the whole row would take them.
   double bits = 0.0;
   double pixels = 0.0;
-  for (int k = 0; k < kContexts; ++k) {
-    const double total = totals[static_cast<size_t>(k)];
+  for (size_t k = 0; k < static_cast<size_t>(kContexts); ++k) {
+    const double total = totals[k];
     if (total == 0) continue;
     double h = 0.0;
     int seen = 0;
-    for (std::uint32_t c : counts[static_cast<size_t>(k)]) {
-      if (c == 0) continue;
-      const double p = c / total;
-      h -= p * std::log2(p);
-      ++seen;
+    for (size_t word = 0; word < seen_symbols[k].size(); ++word) {
+      for (std::uint64_t mask = seen_symbols[k][word]; mask != 0; mask &= mask - 1) {
+        const size_t symbol = word * 64 + static_cast<size_t>(std::countr_zero(mask));
+        const double p = counts[k][symbol] / total;
+        h -= p * std::log2(p);
+        ++seen;
+        counts[k][symbol] = 0;
+      }
+      seen_symbols[k][word] = 0;
     }
+    totals[k] = 0;
     h += (seen - 1) / (2.0 * total * std::numbers::ln2);
     bits += h * total;
     pixels += total;
@@ -119,7 +151,7 @@ const std::vector<std::string>& coding_names() {
 std::vector<double> coding_window(const WindowInput& window) {
   const int n = window.tile.size;
   std::vector<int> full(window.luma.size());
-  for (size_t i = 0; i < full.size(); ++i) full[i] = static_cast<int>(std::lround(window.luma[i]));
+  for (size_t i = 0; i < full.size(); ++i) full[i] = round_half_away(window.luma[i]);
   const auto half = halve(full, n);
   const auto quarter = halve(half, n / 2);
   const double b1 = coding_cost_bits(full, n);

@@ -8,6 +8,7 @@
 #include <numbers>
 
 #include "residue/features/families.hpp"
+#include "residue/features/filters.hpp"
 #include "residue/features/spectrum.hpp"
 
 namespace residue {
@@ -27,7 +28,10 @@ constexpr double kScreenshotFlatShare = 0.25;         // share of exactly flat 4
 constexpr std::uint32_t kPaletteColours = 256;
 constexpr std::uint32_t kScreenshotColours = 4096;
 
-std::uint8_t level(float v) { return static_cast<std::uint8_t>(std::clamp(std::lround(v), 0L, 255L)); }
+// std::clamp(std::lround(v), 0, 255), with the clamp first so that the rounding stays in int range.
+std::uint8_t level(float v) {
+  return static_cast<std::uint8_t>(round_half_away(std::clamp(v, 0.0F, 255.0F)));
+}
 
 void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
   std::vector<std::uint64_t> seen((1U << 24) / 64, 0);

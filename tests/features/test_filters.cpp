@@ -39,6 +39,21 @@ double max_abs(const Plane& p) {
 
 }  // namespace
 
+TEST_CASE("round_half_away equals C's lround (ISO C 7.12.9.7: halves away from zero)") {
+  for (float v : {0.0F, 0.5F, -0.5F, 1.5F, -1.5F, 2.5F, 254.5F, 255.49998F, 0.49999997F, -0.49999997F,
+                  std::nextafter(0.5F, 0.0F), std::nextafter(0.5F, 1.0F), 8388607.5F, -8388607.5F,
+                  16777216.0F, 1e9F, -1e9F}) {
+    CAPTURE(v);
+    CHECK(round_half_away(v) == std::lround(v));
+  }
+  std::mt19937 rng(5);
+  std::uniform_real_distribution<float> any(-300.0F, 300.0F);
+  for (int i = 0; i < 100000; ++i) {
+    const float v = any(rng);
+    REQUIRE(round_half_away(v) == std::lround(v));
+  }
+}
+
 TEST_CASE("rich-model kernels have the published coefficients") {
   // Fridrich & Kodovsky (2012), "Rich models for steganalysis of digital images", Fig. 2:
   // 1st order [-1 1], 2nd [1 -2 1], 3rd [1 -3 3 -1], SQUARE 3x3 and SQUARE 5x5 ("KV"), with

@@ -12,6 +12,14 @@
 
 namespace residue {
 
+// std::lround of a float with |v| < 2^31, without the library call: truncate, then step away from
+// zero when the dropped fraction (exact in float arithmetic) is at least one half.
+inline int round_half_away(float v) {
+  const int i = static_cast<int>(v);
+  const float fraction = v - static_cast<float>(i);
+  return i + static_cast<int>(fraction >= 0.5F) - static_cast<int>(fraction <= -0.5F);
+}
+
 struct Kernel {
   std::string_view name;
   int width = 0;
