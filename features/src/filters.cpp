@@ -9,6 +9,8 @@
 #include <tuple>
 #include <utility>
 
+#include "vector_clones.hpp"
+
 namespace residue {
 
 Kernel Kernel::transposed() const {
@@ -41,7 +43,7 @@ const std::vector<Kernel>& rich_model_kernels() {
   return kernels;
 }
 
-Plane correlate_valid(const float* image, int width, int height, const Kernel& kernel) {
+RESIDUE_VECTOR_CLONES Plane correlate_valid(const float* image, int width, int height, const Kernel& kernel) {
   Plane out{width - kernel.width + 1, height - kernel.height + 1, {}};
   if (out.width <= 0 || out.height <= 0) return Plane{};
   out.values.assign(static_cast<size_t>(out.width) * out.height, 0.0F);
@@ -120,7 +122,7 @@ int folded_tuple_classes(int t, int order, bool reverse) {
 
 int folded_pair_classes(int t) { return folded_tuple_classes(t, 2, true); }
 
-QuantisedPlane quantise(const Plane& residual, double step, int t) {
+RESIDUE_VECTOR_CLONES QuantisedPlane quantise(const Plane& residual, double step, int t) {
   QuantisedPlane out{residual.width, residual.height, t, std::vector<std::uint8_t>(residual.values.size())};
   const auto inverse = static_cast<float>(1.0 / step);
   // round_clamped(v, t) + t, written without branches so that the compiler vectorises it.
