@@ -9,6 +9,7 @@
 #include <numbers>
 
 #include "residue/features/spectrum.hpp"
+#include "vector_clones.hpp"
 
 namespace residue {
 
@@ -110,7 +111,7 @@ const std::vector<int>& radial_bins(int n, int bins) {
 
 }  // namespace
 
-std::vector<double> hann_power_spectrum(const float* image, int n) {
+RESIDUE_VECTOR_CLONES std::vector<double> hann_power_spectrum(const float* image, int n) {
   const auto& w = hann(n);
   const size_t nn = static_cast<size_t>(n) * n;
   const int half = n / 2 + 1;
@@ -127,13 +128,14 @@ std::vector<double> hann_power_spectrum(const float* image, int n) {
   fftw_execute_dft_r2c(plan_for(n), in, scratch.out.get());
   std::vector<double> power(nn);
   for (int v = 0; v < n; ++v) {
-    for (int u = 0; u < half; ++u) {
-      const auto& z = out[static_cast<size_t>(v) * half + u];
-      const double p = (z[0] * z[0] + z[1] * z[1]) * norm;
-      power[static_cast<size_t>(v) * n + u] = p;
-      // Hermitian symmetry of a real input: P(-u, -v) = P(u, v).
-      power[static_cast<size_t>((n - v) % n) * n + (n - u) % n] = p;
-    }
+    const int mirror_v = v == 0 ? 0 : n - v;  // (n - v) mod n
+    double* row = power.data() + static_cast<size_t>(v) * n;
+    double* mirror_row = power.data() + static_cast<size_t>(mirror_v) * n;
+    const fftw_complex* z = out + static_cast<size_t>(v) * half;
+    for (int u = 0; u < half; ++u) row[u] = (z[u][0] * z[u][0] + z[u][1] * z[u][1]) * norm;
+    // Hermitian symmetry of a real input: P(-u, -v) = P(u, v).
+    mirror_row[0] = row[0];
+    for (int u = 1; u < half; ++u) mirror_row[n - u] = row[u];
   }
   return power;
 }
