@@ -261,7 +261,6 @@ std::vector<double> spam_first_order(const float* image, int width, int height, 
   const size_t cells = static_cast<size_t>(side) * side;
   std::vector<int> px(static_cast<size_t>(width) * height);
   for (size_t i = 0; i < px.size(); ++i) px[i] = round_clamped(image[i], 1 << 20);
-  auto at = [&](int y, int x) { return px[static_cast<size_t>(y) * width + x]; };
   // Each of the four axes (rows, columns, two diagonals) is walked once, forwards: J(a, b) counts
   // consecutive truncated differences a = D(k), b = D(k+1), D(k) = I(k) - I(k+1). The backward
   // direction on the same axis sees the differences negated and in reverse order, so its
@@ -271,19 +270,22 @@ std::vector<double> spam_first_order(const float* image, int width, int height, 
   for (int a = 0; a < 4; ++a) {
     const int dy = kAxes[a][0];
     const int dx = kAxes[a][1];
-    std::vector<double> joint(cells, 0.0);
+    // Counted as integers (exact, as the doubles they become), into two interleaved copies.
+    std::vector<std::uint32_t> counts(2 * cells, 0);
     const int x_lo = dx < 0 ? 2 : 0;
     const int x_hi = dx > 0 ? width - 2 : width;
     for (int y = 0; y + 2 * dy < height; ++y) {
+      const int* r0 = px.data() + static_cast<size_t>(y) * width;
+      const int* r1 = r0 + static_cast<ptrdiff_t>(dy) * width + dx;
+      const int* r2 = r1 + static_cast<ptrdiff_t>(dy) * width + dx;
       for (int x = x_lo; x < x_hi; ++x) {
-        const int p0 = at(y, x);
-        const int p1 = at(y + dy, x + dx);
-        const int p2 = at(y + 2 * dy, x + 2 * dx);
-        const int d0 = std::clamp(p0 - p1, -t, t);
-        const int d1 = std::clamp(p1 - p2, -t, t);
-        joint[(d0 + t) * side + (d1 + t)] += 1.0;
+        const int d0 = std::clamp(r0[x] - r1[x], -t, t);
+        const int d1 = std::clamp(r1[x] - r2[x], -t, t);
+        ++counts[static_cast<size_t>(x & 1) * cells + static_cast<size_t>((d0 + t) * side + (d1 + t))];
       }
     }
+    std::vector<double> joint(cells);
+    for (size_t i = 0; i < cells; ++i) joint[i] = static_cast<double>(counts[i] + counts[cells + i]);
     const size_t offset = a < 2 ? 0 : cells;
     for (int backward = 0; backward < 2; ++backward) {
       // M(u | v) = J(v, u) / sum_u J(v, u) forwards; J(-u, -v) / sum_u J(-u, -v) backwards.

@@ -40,15 +40,28 @@ CfaTraces cfa_traces(const Tile& tile) {
   CfaTraces out;
   for (int c = 0; c < channels; ++c) {
     const float* x = tile.plane(c);
-    e[c].reserve(static_cast<size_t>(n - 2) * (n - 2));
+    const size_t inner = static_cast<size_t>(n - 2);
+    e[c].resize(inner * inner);
     double energy[4] = {0, 0, 0, 0};
     for (int y = 1; y < n - 1; ++y) {
-      for (int i = 1; i < n - 1; ++i) {
-        const size_t k = static_cast<size_t>(y) * n + i;
-        const float r = x[k] - 0.25F * (x[k - 1] + x[k + 1] + x[k - n] + x[k + n]);
-        e[c].push_back(r);
-        energy[(y % 2) * 2 + (i % 2)] += static_cast<double>(r) * r;
+      float* out = e[c].data() + static_cast<size_t>(y - 1) * inner;
+      const float* row = x + static_cast<size_t>(y) * n;
+      for (size_t i = 1; i + 1 < static_cast<size_t>(n); ++i) {
+        out[i - 1] = row[i] - 0.25F * (row[i - 1] + row[i + 1] + row[i - n] + row[i + n]);
       }
+      // Each lattice position's energy summed in the same order as before (along the row).
+      double even = energy[(y % 2) * 2];
+      double odd = energy[(y % 2) * 2 + 1];
+      for (size_t i = 1; i + 1 < static_cast<size_t>(n); ++i) {
+        const double r = out[i - 1];
+        if (i % 2 == 0) {
+          even += r * r;
+        } else {
+          odd += r * r;
+        }
+      }
+      energy[(y % 2) * 2] = even;
+      energy[(y % 2) * 2 + 1] = odd;
     }
     const auto [lo, hi] = std::minmax_element(energy, energy + 4);
     out.lattice_contrast[c] = std::log10((*hi + 1e-9) / (*lo + 1e-9));
