@@ -10,6 +10,7 @@
 #include "residue/features/families.hpp"
 #include "residue/features/filters.hpp"
 #include "residue/features/spectrum.hpp"
+#include "vector_clones.hpp"
 
 namespace residue {
 
@@ -33,25 +34,39 @@ std::uint8_t level(float v) {
   return static_cast<std::uint8_t>(round_half_away(std::clamp(v, 0.0F, 255.0F)));
 }
 
+// The 8-bit levels of each channel of a tile, as level() gives them.
+RESIDUE_VECTOR_CLONES void tile_levels(const Tile& t, std::vector<std::uint8_t>& out) {
+  const size_t count = static_cast<size_t>(t.channels) * t.size * t.size;
+  out.resize(count);
+  const float* v = t.samples.data();
+  for (size_t i = 0; i < count; ++i) out[i] = level(v[i]);
+}
+
 void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
   std::vector<std::uint64_t> seen((1U << 24) / 64, 0);
   std::array<std::array<std::uint64_t, 256>, 3> histogram{};
   std::uint64_t flat = 0, blocks = 0;
   bool channels_equal = true;  // a grey picture stored as RGB
+  std::vector<std::uint8_t> levels;
   for (const auto& t : tiles) {
     const size_t plane = static_cast<size_t>(t.size) * t.size;
+    tile_levels(t, levels);
+    const std::uint8_t* l[3] = {levels.data(), levels.data() + (t.channels > 1 ? plane : 0),
+                                levels.data() + (t.channels > 2 ? 2 * plane : 0)};
     for (size_t i = 0; i < plane && channels_equal && t.channels == 3; ++i) {
-      channels_equal =
-          level(t.plane(0)[i]) == level(t.plane(1)[i]) && level(t.plane(1)[i]) == level(t.plane(2)[i]);
+      channels_equal = l[0][i] == l[1][i] && l[1][i] == l[2][i];
     }
     for (size_t i = 0; i < plane; ++i) {
       std::uint32_t colour = 0;
       for (int c = 0; c < t.channels; ++c) {
-        const std::uint8_t v = level(t.plane(c)[i]);
+        const std::uint8_t v = l[c][i];
         histogram[static_cast<size_t>(c)][v] += 1;
         colour = (colour << 8) | v;
       }
-      seen[colour >> 6] |= std::uint64_t{1} << (colour & 63);
+      std::uint64_t& word = seen[colour >> 6];
+      const std::uint64_t bit = std::uint64_t{1} << (colour & 63);
+      e.distinct_colours += (word & bit) == 0 ? 1U : 0U;
+      word |= bit;
     }
     e.analysed_pixels += plane;
     // Exact-colour flat 4 x 4 blocks: rare in photographs and generator output (noise and
@@ -74,7 +89,6 @@ void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
     }
   }
   e.grey_in_colour = channels_equal && !tiles.empty() && tiles.front().channels == 3;
-  for (auto word : seen) e.distinct_colours += static_cast<std::uint32_t>(std::popcount(word));
   e.flat_share = blocks > 0 ? static_cast<double>(flat) / static_cast<double>(blocks) : 0.0;
   const int channels = tiles.empty() ? 0 : tiles.front().channels;
   for (int c = 0; c < channels; ++c) {

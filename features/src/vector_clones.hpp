@@ -1,7 +1,7 @@
 // Hot loops compiled twice, for AVX2 and for the x86-64 baseline (SSE2); the loader picks the one
 // the CPU runs (GCC/Clang function multi-versioning through an ifunc), so no build needs a
-// particular CPU. The build is ISO C++ (-std=c++20, not gnu++20), which keeps -ffp-contract=off:
-// no multiply-add is fused, and both versions give bit for bit the same floats.
+// particular CPU. AVX2 alone brings no fused multiply-add, and the library is built with
+// -ffp-contract=off besides: both versions give bit for bit the same floats (cli.features_golden).
 #pragma once
 
 #if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__)) && !defined(RESIDUE_NO_VECTOR_CLONES)
