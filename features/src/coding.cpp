@@ -9,6 +9,7 @@
 
 #include "residue/features/families.hpp"
 #include "residue/features/filters.hpp"
+#include "vector_clones.hpp"
 
 namespace residue {
 
@@ -31,13 +32,17 @@ std::vector<int> halve(const std::vector<int>& x, int n) {
   return out;
 }
 
+// The MED predictor written as selections, so that the coding loop keeps it inline and branch-free.
+inline int med(int a, int b, int c) {
+  const int lo = std::min(a, b);
+  const int hi = std::max(a, b);
+  const int inside = a + b - c;
+  return c >= hi ? lo : (c <= lo ? hi : inside);
+}
+
 }  // namespace
 
-int med_predict(int a, int b, int c) {
-  if (c >= std::max(a, b)) return std::min(a, b);
-  if (c <= std::min(a, b)) return std::max(a, b);
-  return a + b - c;
-}
+int med_predict(int a, int b, int c) { return med(a, b, c); }
 
 int jpegls_gradient_region(int d) {
   constexpr int kT1 = 3, kT2 = 7, kT3 = 21;  // default thresholds for 8-bit samples, NEAR = 0
@@ -52,7 +57,7 @@ int jpegls_gradient_region(int d) {
   return 4;
 }
 
-double coding_cost_bits(const std::vector<int>& samples, int n) {
+RESIDUE_VECTOR_CLONES double coding_cost_bits(const std::vector<int>& samples, int n) {
   if (n < 3) return 0.0;
   // counts[context][residual + 128]; the context is (q1, q2, q3) with the sign merged so that the
   // first non-zero region is positive (the residual's sign flips with it), as the standard does.
@@ -104,7 +109,7 @@ double coding_cost_bits(const std::vector<int>& samples, int n) {
       const Folded f = kFold[static_cast<size_t>(((region(d - b) + 4) * 9 + (region(b - c) + 4)) * 9 +
                                                  (region(c - a) + 4))];
       // modulo reduction to [-128, 127]: the low byte as a signed number (C++20 wraps it)
-      const int e = static_cast<std::int8_t>(f.sign * (at(y, x) - med_predict(a, b, c)));
+      const int e = static_cast<std::int8_t>(f.sign * (at(y, x) - med(a, b, c)));
       const size_t context = f.context;
       const auto symbol = static_cast<size_t>(e + 128);
       ++counts[context][symbol];

@@ -256,7 +256,7 @@ long add_cross_channel_triples(const QuantisedPlane& r, const QuantisedPlane& g,
   return static_cast<long>(r.q.size());
 }
 
-std::vector<double> spam_first_order(const float* image, int width, int height, int t) {
+RESIDUE_VECTOR_CLONES std::vector<double> spam_first_order(const float* image, int width, int height, int t) {
   const int side = 2 * t + 1;
   const size_t cells = static_cast<size_t>(side) * side;
   std::vector<int> px(static_cast<size_t>(width) * height);
