@@ -161,6 +161,37 @@ TEST_CASE("p-map spectrum peaks where Kirchner's relation predicts for upscaling
   CHECK(none.ratio < 10.0);
 }
 
+TEST_CASE(
+    "the p-map is exp(-e^2) of Kirchner's (2008) preset-predictor residual, also where expf underflows") {
+  // IEEE 754 round-to-nearest: e^-104 = 6.8e-46 is under half the smallest denormal, so 0.
+  CHECK(std::exp(-104.0F) == 0.0F);
+  CHECK(std::exp(-103.0F) > 0.0F);
+  for (float x = 104.0F; x < 1e7F; x *= 1.37F) CHECK(std::exp(-x) == 0.0F);
+  // Coffee with a hard checkerboard laid over half of it: residuals from 0 to over 100.
+  const int n = 64;
+  Image image = coffee_crop(n);
+  for (int y = 0; y < n; ++y) {
+    for (int x = n / 2; x < n; ++x)
+      image.plane(0)[y * n + x] = static_cast<float>((x / 2 + y / 3) % 2) * 255.0F;
+  }
+  const auto p = kirchner_pmap(image.plane(0), n);
+  auto at = [&](int y, int x) {
+    return image.plane(0)[std::clamp(y, 0, n - 1) * n + std::clamp(x, 0, n - 1)];
+  };
+  int underflowed = 0;
+  for (int y = 0; y < n; ++y) {
+    for (int x = 0; x < n; ++x) {
+      const float predicted =
+          0.5F * (at(y - 1, x) + at(y + 1, x) + at(y, x - 1) + at(y, x + 1)) -
+          0.25F * (at(y - 1, x - 1) + at(y - 1, x + 1) + at(y + 1, x - 1) + at(y + 1, x + 1));
+      const float e = at(y, x) - predicted;
+      underflowed += e * e >= 104.0F ? 1 : 0;
+      REQUIRE(p[static_cast<size_t>(y) * n + x] == std::exp(-e * e));
+    }
+  }
+  CHECK(underflowed > 100);
+}
+
 TEST_CASE("Bayer mosaic + bilinear demosaicing raises the green lattice contrast; none without") {
   // Popescu & Farid (2005): CFA interpolation makes interpolated samples exact linear
   // combinations of their neighbours. With bilinear demosaicing of an RGGB mosaic, green at red
