@@ -270,22 +270,28 @@ RESIDUE_VECTOR_CLONES std::vector<double> spam_first_order(const float* image, i
   for (int a = 0; a < 4; ++a) {
     const int dy = kAxes[a][0];
     const int dx = kAxes[a][1];
-    // Counted as integers (exact, as the doubles they become), into two interleaved copies.
-    std::vector<std::uint32_t> counts(2 * cells, 0);
+    // Counted as integers (exact, as the doubles they become): the cells of a row first (a loop
+    // the compiler vectorises), then counted into four interleaved copies.
+    std::vector<std::uint32_t> counts(4 * cells, 0);
     const int x_lo = dx < 0 ? 2 : 0;
     const int x_hi = dx > 0 ? width - 2 : width;
+    std::vector<int> cell(static_cast<size_t>(std::max(0, x_hi - x_lo)));
     for (int y = 0; y + 2 * dy < height; ++y) {
-      const int* r0 = px.data() + static_cast<size_t>(y) * width;
+      const int* r0 = px.data() + static_cast<size_t>(y) * width + x_lo;
       const int* r1 = r0 + static_cast<ptrdiff_t>(dy) * width + dx;
       const int* r2 = r1 + static_cast<ptrdiff_t>(dy) * width + dx;
-      for (int x = x_lo; x < x_hi; ++x) {
+      for (size_t x = 0; x < cell.size(); ++x) {
         const int d0 = std::clamp(r0[x] - r1[x], -t, t);
         const int d1 = std::clamp(r1[x] - r2[x], -t, t);
-        ++counts[static_cast<size_t>(x & 1) * cells + static_cast<size_t>((d0 + t) * side + (d1 + t))];
+        cell[x] = (d0 + t) * side + (d1 + t);
       }
+      for (size_t x = 0; x < cell.size(); ++x) ++counts[(x & 3) * cells + static_cast<size_t>(cell[x])];
     }
     std::vector<double> joint(cells);
-    for (size_t i = 0; i < cells; ++i) joint[i] = static_cast<double>(counts[i] + counts[cells + i]);
+    for (size_t i = 0; i < cells; ++i) {
+      joint[i] =
+          static_cast<double>(counts[i] + counts[cells + i] + counts[2 * cells + i] + counts[3 * cells + i]);
+    }
     const size_t offset = a < 2 ? 0 : cells;
     for (int backward = 0; backward < 2; ++backward) {
       // M(u | v) = J(v, u) / sum_u J(v, u) forwards; J(-u, -v) / sum_u J(-u, -v) backwards.
