@@ -25,6 +25,8 @@ packages=(
   chromium chromium-driver python3-selenium
   # the Debian package: man pages from --help, lintian, and systemd-analyze for the units
   help2man lintian systemd dpkg-dev file
+  # the service load benchmark (bench/service_load.sh)
+  wrk
 )
 
 scripts/install_packages.sh "${packages[@]}"
