@@ -95,8 +95,9 @@ RESIDUE_VECTOR_CLONES double coding_cost_bits(const std::vector<int>& samples, i
         for (int q3 = -4; q3 <= 4; ++q3) {
           const bool flip = q1 < 0 || (q1 == 0 && (q2 < 0 || (q2 == 0 && q3 < 0)));
           const int s = flip ? -1 : 1;
-          t[static_cast<size_t>(((q1 + 4) * 9 + (q2 + 4)) * 9 + (q3 + 4))] = {
-              static_cast<std::uint16_t>(((s * q1 + 4) * 9 + (s * q2 + 4)) * 9 + (s * q3 + 4)), s};
+          const int raw = ((q1 + 4) * 9 + (q2 + 4)) * 9 + (q3 + 4);
+          const int folded = ((s * q1 + 4) * 9 + (s * q2 + 4)) * 9 + (s * q3 + 4);
+          t[static_cast<size_t>(raw)] = {static_cast<std::uint16_t>(folded), s};
         }
       }
     }
@@ -106,12 +107,13 @@ RESIDUE_VECTOR_CLONES double coding_cost_bits(const std::vector<int>& samples, i
   for (int y = 1; y < n; ++y) {
     for (int x = 1; x + 1 < n; ++x) {
       const int a = at(y, x - 1), b = at(y - 1, x), c = at(y - 1, x - 1), d = at(y - 1, x + 1);
-      const Folded f = kFold[static_cast<size_t>(((region(d - b) + 4) * 9 + (region(b - c) + 4)) * 9 +
-                                                 (region(c - a) + 4))];
-      // modulo reduction to [-128, 127]: the low byte as a signed number (C++20 wraps it)
-      const int e = static_cast<std::int8_t>(f.sign * (at(y, x) - med(a, b, c)));
+      const int raw = ((region(d - b) + 4) * 9 + (region(b - c) + 4)) * 9 + (region(c - a) + 4);
+      const Folded f = kFold[static_cast<size_t>(raw)];
+      // The residual reduced modulo 256 to [-128, 127], stored at residual + 128 (the & of a
+      // negative int is two's complement in C++20).
+      const int shifted = f.sign * (at(y, x) - med(a, b, c)) + 128;
+      const auto symbol = static_cast<size_t>(shifted & 255);
       const size_t context = f.context;
-      const auto symbol = static_cast<size_t>(e + 128);
       ++counts[context][symbol];
       ++totals[context];
       seen_symbols[context][symbol / 64] |= std::uint64_t{1} << (symbol % 64);

@@ -40,19 +40,23 @@ CfaTraces cfa_traces(const Tile& tile) {
   CfaTraces out;
   for (int c = 0; c < channels; ++c) {
     const float* x = tile.plane(c);
-    const size_t inner = static_cast<size_t>(n - 2);
+    const auto width = static_cast<size_t>(n);
+    const size_t inner = width - 2;
     e[c].resize(inner * inner);
     double energy[4] = {0, 0, 0, 0};
     for (int y = 1; y < n - 1; ++y) {
       float* out = e[c].data() + static_cast<size_t>(y - 1) * inner;
-      const float* row = x + static_cast<size_t>(y) * n;
-      for (size_t i = 1; i + 1 < static_cast<size_t>(n); ++i) {
-        out[i - 1] = row[i] - 0.25F * (row[i - 1] + row[i + 1] + row[i - n] + row[i + n]);
+      const float* row = x + static_cast<size_t>(y) * width;
+      const float* above = row - width;
+      const float* below = row + width;
+      for (size_t i = 1; i + 1 < width; ++i) {
+        out[i - 1] = row[i] - 0.25F * (row[i - 1] + row[i + 1] + above[i] + below[i]);
       }
       // Each lattice position's energy summed in the same order as before (along the row).
-      double even = energy[(y % 2) * 2];
-      double odd = energy[(y % 2) * 2 + 1];
-      for (size_t i = 1; i + 1 < static_cast<size_t>(n); ++i) {
+      const size_t lattice = y % 2 == 0 ? 0 : 2;
+      double even = energy[lattice];
+      double odd = energy[lattice + 1];
+      for (size_t i = 1; i + 1 < width; ++i) {
         const double r = out[i - 1];
         if (i % 2 == 0) {
           even += r * r;
@@ -60,8 +64,8 @@ CfaTraces cfa_traces(const Tile& tile) {
           odd += r * r;
         }
       }
-      energy[(y % 2) * 2] = even;
-      energy[(y % 2) * 2 + 1] = odd;
+      energy[lattice] = even;
+      energy[lattice + 1] = odd;
     }
     const auto [lo, hi] = std::minmax_element(energy, energy + 4);
     out.lattice_contrast[c] = std::log10((*hi + 1e-9) / (*lo + 1e-9));

@@ -56,9 +56,10 @@ void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
     for (size_t i = 0; i < plane && channels_equal && t.channels == 3; ++i) {
       channels_equal = l[0][i] == l[1][i] && l[1][i] == l[2][i];
     }
+    const int channels = std::min(t.channels, 3);
     for (size_t i = 0; i < plane; ++i) {
       std::uint32_t colour = 0;
-      for (int c = 0; c < t.channels; ++c) {
+      for (int c = 0; c < channels; ++c) {
         const std::uint8_t v = l[c][i];
         histogram[static_cast<size_t>(c)][v] += 1;
         colour = (colour << 8) | v;
