@@ -35,6 +35,8 @@ struct ServiceSettings {
   ScanSettings scan;                       // limits, prior and threshold overrides
 };
 
+struct ServiceState;  // what a running service holds (detector/service/service_state.hpp)
+
 class Service {
  public:
   Service(ServiceSettings settings, std::string model_path);
@@ -57,8 +59,7 @@ class Service {
  private:
   // Checks the settings, opens the access log, loads the model and sets up the routes, once.
   Result<bool> prepare();
-  struct State;
-  std::unique_ptr<State> state_;
+  std::unique_ptr<ServiceState> state_;
 };
 
 // Whether `host` is a loopback address (127.0.0.0/8, ::1, localhost).
