@@ -68,6 +68,8 @@ PY
       printf '*1\r\n*2\r\n$6\r\njobs-1\r\n*1\r\n*2\r\n$15\r\n1700000000000-0\r\n*4\r\n$3\r\njob\r\n$1\r\n7\r\n$4\r\npath\r\n$6\r\n/a.png\r\n' > "$dir/xreadgroup" ;;
     service)
       local image
+      # the sample files the header target's seeds come from, when that target has not run yet
+      [ -d "$corpus/.files" ] || /usr/bin/python3 tests/reference/make_files.py "$corpus/.files" > /dev/null
       image=$(find "$corpus/.files" -name 'thumb_150x100.png' | head -1)
       printf 'GET /v1/health HTTP/1.1\r\nHost: x\r\n\r\n' > "$dir/health"
       printf 'GET /metrics HTTP/1.1\r\nHost: x\r\n\r\n' > "$dir/metrics"
