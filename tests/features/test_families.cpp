@@ -175,15 +175,23 @@ TEST_CASE(
       image.plane(0)[y * n + x] = static_cast<float>((x / 2 + y / 3) % 2) * 255.0F;
   }
   const auto p = kirchner_pmap(image.plane(0), n);
+  // Kirchner's preset predictor as its two groups of taps, the four neighbours (weight 1/2) and the
+  // four diagonals (weight -1/4), borders replicated; each group summed in the listed order, the
+  // order the float result depends on.
+  constexpr int kNeighbours[4][2] = {{-1, 0}, {1, 0}, {0, -1}, {0, 1}};
+  constexpr int kDiagonals[4][2] = {{-1, -1}, {-1, 1}, {1, -1}, {1, 1}};
   auto at = [&](int y, int x) {
     return image.plane(0)[std::clamp(y, 0, n - 1) * n + std::clamp(x, 0, n - 1)];
+  };
+  auto group = [&](const int(&taps)[4][2], int y, int x) {
+    float sum = at(y + taps[0][0], x + taps[0][1]);
+    for (int k = 1; k < 4; ++k) sum += at(y + taps[k][0], x + taps[k][1]);
+    return sum;
   };
   int underflowed = 0;
   for (int y = 0; y < n; ++y) {
     for (int x = 0; x < n; ++x) {
-      const float predicted =
-          0.5F * (at(y - 1, x) + at(y + 1, x) + at(y, x - 1) + at(y, x + 1)) -
-          0.25F * (at(y - 1, x - 1) + at(y - 1, x + 1) + at(y + 1, x - 1) + at(y + 1, x + 1));
+      const float predicted = 0.5F * group(kNeighbours, y, x) - 0.25F * group(kDiagonals, y, x);
       const float e = at(y, x) - predicted;
       underflowed += e * e >= 104.0F ? 1 : 0;
       REQUIRE(p[static_cast<size_t>(y) * n + x] == std::exp(-e * e));
