@@ -78,6 +78,7 @@ int run_training_bench(int n, int copies, int windows) {
   TrainSettings settings;
   settings.augment = Augment::kNone;  // the copies are simulated here, not made from files
   settings.window_instances = windows > 0;
+  settings.jobs = static_cast<int>(std::max(1U, std::thread::hardware_concurrency()));
   auto outcome = train_model(items, settings, audit, copy_items);
   const double train_s = std::chrono::duration<double>(Clock::now() - audited).count();
   rusage usage{};
@@ -92,8 +93,13 @@ int run_training_bench(int n, int copies, int windows) {
       "memory "
       "%.0f MiB, chosen C %g, out-of-fold AUC %.3f\n",
       n, d, copies, windows, outcome->model.instances.c_str(),
-      std::chrono::duration<double>(audited - start).count(), TrainSettings{}.c_grid.size(), train_s,
+      std::chrono::duration<double>(audited - start).count(), outcome->cv.auc_by_c.size(), train_s,
       usage.ru_maxrss / 1024.0, outcome->cv.chosen_c, outcome->cv.report.overall.roc_auc);
+  std::printf("solver passes (most over the folds) per C:");
+  for (size_t ci = 0; ci < outcome->cv.auc_by_c.size(); ++ci)
+    std::printf(" %g: %d%s", outcome->cv.auc_by_c[ci].first, outcome->cv.solver_by_c[ci].passes,
+                outcome->cv.solver_by_c[ci].converged ? "" : " (limit)");
+  std::printf("; final fit %d\n", outcome->cv.final_solver.passes);
   return 0;
 }
 

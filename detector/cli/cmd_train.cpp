@@ -126,6 +126,7 @@ int run_train(TrainArgs& args) {
     std::cerr << "residue train: refused because of the audit warnings above (--strict)\n";
     return static_cast<int>(ExitCode::kFailure);
   }
+  settings->jobs = prepared->jobs;
   auto outcome = train_model(prepared->report.items, *settings, audit, prepared->report.copies);
   if (!outcome) {
     std::cerr << "residue train: " << outcome.error().message << "\n";
@@ -148,8 +149,17 @@ int run_train(TrainArgs& args) {
   std::cout << "Grouped " << model.provenance["cross_validation"]["folds"].get<int>()
             << "-fold cross-validation (" << cv.groups << " groups by " << args.group_by
             << "; a group never straddles a split)\n";
-  for (const auto& [c, auc] : cv.auc_by_c) {
-    std::printf("  C = %-7g out-of-fold ROC AUC %.3f%s\n", c, auc, c == cv.chosen_c ? "   <- chosen" : "");
+  for (size_t ci = 0; ci < cv.auc_by_c.size(); ++ci) {
+    const auto& [c, auc] = cv.auc_by_c[ci];
+    const SolverUse& solver = cv.solver_by_c[ci];
+    std::printf("  C = %-7g out-of-fold ROC AUC %.3f  (solver: %d passes at most%s)%s\n", c, auc,
+                solver.passes, solver.converged ? "" : ", stopped at the pass limit",
+                c == cv.chosen_c ? "   <- chosen" : "");
+  }
+  if (!cv.final_solver.converged) {
+    std::cout
+        << "  The final fit stopped at the solver's pass limit before meeting its tolerance: the model is "
+           "usable but not fully converged.\n";
   }
   if (model.instances == "windows") {
     std::cout << "Learned from every analysis window; an image's margin is the " << model.pooling

@@ -28,7 +28,7 @@ void add_dataset_options(CLI::App& command, DatasetArgs& args, const std::string
   command.add_option("--cache", args.cache_path,
                      "feature cache file (SQLite; default " + default_cache_path() + ")");
   command.add_flag("--no-cache", args.no_cache, "extract every file again and store nothing");
-  command.add_option("-j,--jobs", args.jobs, "parallel extraction threads (default: cores)")
+  command.add_option("-j,--jobs", args.jobs, "threads for extraction, and for the cross-validation folds of training (default: cores)")
       ->check(CLI::Range(1, 256));
   add_extract_options(command, args.extract);
 }

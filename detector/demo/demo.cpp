@@ -5,10 +5,10 @@
 #include <map>
 #include <random>
 
+#include "residue/detector/demo/sample_images.hpp"
+#include "residue/detector/pages/report_page.hpp"
 #include "residue/detector/scoring/explain.hpp"
 #include "residue/detector/scoring/record.hpp"
-#include "residue/detector/pages/report_page.hpp"
-#include "residue/detector/demo/sample_images.hpp"
 #include "residue/detector/scoring/scan.hpp"
 #include "residue/training/atomic_file.hpp"
 #include "residue/training/batch.hpp"
@@ -116,7 +116,8 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
   auto dataset = scan_labelled_folders(out / "training");
   if (!dataset) return dataset.error();
   auto cache = FeatureCache::open(out / "feature-cache.sqlite");
-  const TrainSettings settings;  // defaults, augmentation included
+  TrainSettings settings;  // defaults, augmentation included
+  settings.jobs = jobs;
   auto prepared = prepare_dataset(*dataset, {}, cache ? cache->get() : nullptr, jobs, {}, settings.augment);
   const AuditReport audit = audit_dataset(prepared.items, prepared.failed.size());
   log << audit_to_text(audit);

@@ -9,7 +9,7 @@
 
 #include "residue/features/families.hpp"
 #include "residue/features/filters.hpp"
-#include "vector_clones.hpp"
+#include "residue/features/vector_clones.hpp"
 
 namespace residue {
 

@@ -9,7 +9,7 @@
 #include <numbers>
 
 #include "residue/features/spectrum.hpp"
-#include "vector_clones.hpp"
+#include "residue/features/vector_clones.hpp"
 
 namespace residue {
 

@@ -9,7 +9,7 @@
 #include <tuple>
 #include <utility>
 
-#include "vector_clones.hpp"
+#include "residue/features/vector_clones.hpp"
 
 namespace residue {
 

@@ -10,7 +10,7 @@
 #include "residue/features/families.hpp"
 #include "residue/features/filters.hpp"
 #include "residue/features/spectrum.hpp"
-#include "vector_clones.hpp"
+#include "residue/features/vector_clones.hpp"
 
 namespace residue {
 

@@ -77,6 +77,71 @@ TEST_CASE("the PPCA distance equals numpy's on a worked example") {
   CHECK(ref.distance(points[3].data()) > 2.0);
 }
 
+TEST_CASE("family moments of two halves combine to those of the whole (Chan, Golub & LeVeque 1979)") {
+  // Columns with offsets far from zero, where a naive sum of squares would lose digits.
+  std::mt19937 rng(8);
+  std::normal_distribution<double> g(0.0, 1.0);
+  Matrix z{101, 4, std::vector<double>(101 * 4)};
+  for (size_t i = 0; i < z.rows; ++i) {
+    const double a = g(rng);
+    z.row(i)[0] = 1e6 + a;
+    z.row(i)[1] = 3.0 * a + g(rng);
+    z.row(i)[2] = -50.0 + 0.1 * g(rng);
+    z.row(i)[3] = g(rng);
+  }
+  const std::vector<size_t> columns = {0, 1, 2, 3};
+  std::vector<size_t> all(z.rows), first, second;
+  for (size_t i = 0; i < z.rows; ++i) {
+    all[i] = i;
+    (i % 3 == 0 ? first : second).push_back(i);
+  }
+  FamilyMoments combined = FamilyMoments::of(z, columns, first);
+  combined += FamilyMoments::of(z, columns, second);
+  const FamilyMoments whole = FamilyMoments::of(z, columns, all);
+  CHECK(combined.count == whole.count);
+  for (size_t j = 0; j < columns.size(); ++j)
+    CHECK(combined.mean[j] == doctest::Approx(whole.mean[j]).epsilon(1e-12));
+  for (size_t j = 0; j < whole.scatter.size(); ++j)
+    CHECK(combined.scatter[j] == doctest::Approx(whole.scatter[j]).epsilon(1e-9).scale(1.0));
+  // The scatter is n - 1 times numpy's covariance: check one diagonal entry by its definition.
+  double mean3 = 0.0, m33 = 0.0;
+  for (size_t i = 0; i < z.rows; ++i) mean3 += z.row(i)[3] / static_cast<double>(z.rows);
+  for (size_t i = 0; i < z.rows; ++i) m33 += (z.row(i)[3] - mean3) * (z.row(i)[3] - mean3);
+  CHECK(whole.scatter[3 * 4 + 3] == doctest::Approx(m33).epsilon(1e-12));
+  // Adding nothing changes nothing; adding to nothing copies.
+  FamilyMoments empty;
+  FamilyMoments copy = whole;
+  copy += empty;
+  CHECK(copy.scatter == whole.scatter);
+  empty += whole;
+  CHECK(empty.mean == whole.mean);
+}
+
+TEST_CASE("batched PPCA distances equal the distance of each row") {
+  std::mt19937 rng(9);
+  std::normal_distribution<double> g(0.0, 1.0);
+  Matrix z{200, 7, std::vector<double>(200 * 7)};
+  for (size_t i = 0; i < z.rows; ++i) {
+    const double a = g(rng), b = g(rng);
+    double* r = z.row(i);
+    r[0] = g(rng);
+    r[1] = a;
+    r[2] = a + 0.1 * g(rng);
+    r[3] = b;
+    r[4] = a - b + 0.2 * g(rng);
+    r[5] = 0.3 * g(rng);
+    r[6] = 5.0;
+  }
+  const std::vector<size_t> columns = {1, 2, 3, 4, 5};
+  std::vector<size_t> rows;
+  for (size_t i = 0; i < z.rows; i += 3) rows.push_back(i);
+  const FamilyReference ref = fit_family_reference("noise", columns, z, 0.9);
+  const auto batched = ref.distances(z, rows);
+  REQUIRE(batched.size() == rows.size());
+  for (size_t r = 0; r < rows.size(); ++r)
+    CHECK(batched[r] == doctest::Approx(ref.distance(z.row(rows[r]))).epsilon(1e-12));
+}
+
 TEST_CASE("joint limits let the requested share of images pass every family, and no more than needed") {
   std::mt19937 rng(3);
   std::exponential_distribution<double> e(1.0);

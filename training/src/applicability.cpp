@@ -173,6 +173,35 @@ std::pair<double, FprPromise> promised_threshold(const std::vector<double>& p, c
   return {threshold, promise};
 }
 
+namespace {
+
+// The PPCA distance from a row's centred values c and their projections p on the basis.
+double ppca_distance(const FamilyReference& r, double centred_norm, const double* p) {
+  double explained = 0.0, whitened = 0.0;
+  for (size_t i = 0; i < r.variances.size(); ++i) {
+    explained += p[i] * p[i];
+    whitened += p[i] * p[i] / r.variances[i];
+  }
+  const double residual = std::max(0.0, centred_norm - explained);
+  return std::sqrt((whitened + residual / r.residual_variance) / static_cast<double>(r.columns.size()));
+}
+
+using RowMajor = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
+
+// Rows `rows` of z, values `columns`, minus `mean` (none when empty).
+RowMajor gather(const Matrix& z, const std::vector<size_t>& columns, const std::vector<size_t>& rows,
+                const std::vector<double>& mean) {
+  RowMajor x(static_cast<Eigen::Index>(rows.size()), static_cast<Eigen::Index>(columns.size()));
+  for (size_t i = 0; i < rows.size(); ++i) {
+    const double* r = z.row(rows[i]);
+    double* out = x.row(static_cast<Eigen::Index>(i)).data();
+    for (size_t j = 0; j < columns.size(); ++j) out[j] = r[columns[j]] - (mean.empty() ? 0.0 : mean[j]);
+  }
+  return x;
+}
+
+}  // namespace
+
 double FamilyReference::distance(const double* z) const {
   const size_t d = columns.size();
   std::vector<double> c(d);
@@ -181,32 +210,85 @@ double FamilyReference::distance(const double* z) const {
     c[j] = z[columns[j]] - mean[j];
     norm += c[j] * c[j];
   }
-  double explained = 0.0, whitened = 0.0;
+  std::vector<double> p(variances.size());
   for (size_t i = 0; i < variances.size(); ++i) {
-    double p = 0.0;
-    for (size_t j = 0; j < d; ++j) p += basis[i * d + j] * c[j];
-    explained += p * p;
-    whitened += p * p / variances[i];
+    for (size_t j = 0; j < d; ++j) p[i] += basis[i * d + j] * c[j];
   }
-  const double residual = std::max(0.0, norm - explained);
-  return std::sqrt((whitened + residual / residual_variance) / static_cast<double>(d));
+  return ppca_distance(*this, norm, p.data());
+}
+
+std::vector<double> FamilyReference::distances(const Matrix& z, const std::vector<size_t>& rows) const {
+  const auto k = static_cast<Eigen::Index>(variances.size());
+  const auto d = static_cast<Eigen::Index>(columns.size());
+  const RowMajor c = gather(z, columns, rows, mean);
+  const RowMajor p = c * Eigen::Map<const RowMajor>(basis.data(), k, d).transpose();
+  std::vector<double> out(rows.size());
+  for (size_t i = 0; i < rows.size(); ++i) {
+    const auto row = static_cast<Eigen::Index>(i);
+    out[i] = ppca_distance(*this, c.row(row).squaredNorm(), p.row(row).data());
+  }
+  return out;
+}
+
+FamilyMoments FamilyMoments::of(const Matrix& z, const std::vector<size_t>& columns,
+                                const std::vector<size_t>& rows) {
+  FamilyMoments m;
+  const auto d = static_cast<Eigen::Index>(columns.size());
+  m.count = rows.size();
+  m.mean.assign(columns.size(), 0.0);
+  m.scatter.assign(columns.size() * columns.size(), 0.0);
+  if (rows.empty()) return m;
+  RowMajor x = gather(z, columns, rows, {});
+  const Eigen::RowVectorXd mu = x.colwise().mean();
+  x.rowwise() -= mu;
+  // The lower triangle by a rank update (half the products of x'x), then mirrored.
+  Eigen::MatrixXd s = Eigen::MatrixXd::Zero(d, d);
+  s.selfadjointView<Eigen::Lower>().rankUpdate(x.transpose());
+  s.triangularView<Eigen::StrictlyUpper>() = s.transpose();
+  std::copy_n(mu.data(), d, m.mean.begin());
+  Eigen::Map<Eigen::MatrixXd>(m.scatter.data(), d, d) = s;  // symmetric: either order
+  return m;
+}
+
+FamilyMoments& FamilyMoments::operator+=(const FamilyMoments& other) {
+  if (other.count == 0) return *this;
+  if (count == 0) {
+    *this = other;
+    return *this;
+  }
+  // Chan, Golub & LeVeque (1979): with delta = mean_b - mean_a and n = n_a + n_b,
+  // mean = mean_a + delta n_b / n and M = M_a + M_b + delta delta' n_a n_b / n.
+  const auto na = static_cast<double>(count);
+  const auto nb = static_cast<double>(other.count);
+  const double n = na + nb;
+  const size_t d = mean.size();
+  std::vector<double> delta(d);
+  for (size_t j = 0; j < d; ++j) delta[j] = other.mean[j] - mean[j];
+  for (size_t a = 0; a < d; ++a) {
+    for (size_t b = 0; b < d; ++b)
+      scatter[a * d + b] += other.scatter[a * d + b] + delta[a] * delta[b] * na * nb / n;
+  }
+  for (size_t j = 0; j < d; ++j) mean[j] += delta[j] * nb / n;
+  count += other.count;
+  return *this;
 }
 
 FamilyReference fit_family_reference(const std::string& family, const std::vector<size_t>& columns,
                                      const Matrix& z, double explained) {
+  std::vector<size_t> rows(z.rows);
+  for (size_t i = 0; i < rows.size(); ++i) rows[i] = i;
+  return fit_family_reference(family, columns, FamilyMoments::of(z, columns, rows), explained);
+}
+
+FamilyReference fit_family_reference(const std::string& family, const std::vector<size_t>& columns,
+                                     const FamilyMoments& moments, double explained) {
   FamilyReference r;
   r.family = family;
   r.columns = columns;
   const auto d = static_cast<Eigen::Index>(columns.size());
-  const auto n = static_cast<Eigen::Index>(z.rows);
-  Eigen::MatrixXd x(n, d);
-  for (Eigen::Index i = 0; i < n; ++i) {
-    for (Eigen::Index j = 0; j < d; ++j)
-      x(i, j) = z.row(static_cast<size_t>(i))[columns[static_cast<size_t>(j)]];
-  }
-  const Eigen::RowVectorXd mu = x.colwise().mean();
-  x.rowwise() -= mu;
-  const Eigen::MatrixXd covariance = (x.transpose() * x) / std::max<double>(1.0, static_cast<double>(n - 1));
+  const auto n = static_cast<Eigen::Index>(moments.count);
+  const Eigen::MatrixXd covariance = Eigen::Map<const Eigen::MatrixXd>(moments.scatter.data(), d, d) /
+                                     std::max<double>(1.0, static_cast<double>(n - 1));
   const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> eig(covariance);
   // Eigen sorts ascending; we want descending.
   std::vector<double> values(eig.eigenvalues().data(), eig.eigenvalues().data() + d);
@@ -220,7 +302,7 @@ FamilyReference fit_family_reference(const std::string& family, const std::vecto
   const size_t k_max = static_cast<size_t>(std::max<Eigen::Index>(1, std::min(d - 1, n - 2)));
   while (k < k_max && cumulative < explained * total) cumulative += values[k++];
   k = std::max<size_t>(k, 1);
-  r.mean.assign(mu.data(), mu.data() + d);
+  r.mean = moments.mean;
   for (size_t i = 0; i < k; ++i) {
     r.variances.push_back(std::max(values[i], floor));
     const auto col = eig.eigenvectors().col(d - 1 - static_cast<Eigen::Index>(i));

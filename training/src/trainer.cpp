@@ -5,9 +5,13 @@
 #include <chrono>
 #include <cmath>
 #include <ctime>
+#include <exception>
+#include <numeric>
+#include <optional>
 #include <set>
 
 #include "residue/features/fingerprint.hpp"
+#include "residue/training/batch.hpp"
 
 namespace residue {
 
@@ -36,45 +40,42 @@ std::vector<const std::vector<double>*> training_rows(const PreparedItem& item, 
   return rows;
 }
 
-struct Fitted {
+// The training rows of the instances `rows`, standardised by a scaler fitted on them, as the
+// solver's float rows.
+struct Standardised {
   Scaler scaler;
-  LinearModel linear;
+  FloatRows z;
+  std::vector<int> y;
 };
 
-// Scaler + SVM on the instances `rows` (each giving its training rows).
-Result<Fitted> fit_rows(const Instances& items, const std::vector<size_t>& columns,
-                        const std::vector<size_t>& rows, double c, const TrainSettings& settings) {
-  std::vector<const std::vector<double>*> vectors;
-  std::vector<int> y;
+Standardised standardise(const Instances& items, const std::vector<size_t>& columns,
+                         const std::vector<size_t>& rows, const TrainSettings& settings) {
+  std::vector<const double*> vectors;
+  Standardised s;
   for (size_t r : rows) {
     for (const auto* v : training_rows(*items[r], settings.window_instances, settings.windows_per_image)) {
-      vectors.push_back(v);
-      y.push_back(label_of(*items[r]));
+      vectors.push_back(v->data());
+      s.y.push_back(label_of(*items[r]));
     }
   }
-  Matrix x{vectors.size(), columns.size(), std::vector<double>(vectors.size() * columns.size())};
-  for (size_t r = 0; r < vectors.size(); ++r) {
-    for (size_t k = 0; k < columns.size(); ++k) x.row(r)[k] = (*vectors[r])[columns[k]];
-  }
-  Fitted f;
-  f.scaler = Scaler::fit(x);
-  auto model = train_linear_svm(f.scaler.apply(x), y, balanced_settings(y, c));
-  if (!model) return model.error();
-  f.linear = std::move(*model);
-  return f;
+  s.scaler = Scaler::fit(vectors, columns);
+  s.z = FloatRows{vectors.size(), columns.size(), std::vector<float>(vectors.size() * columns.size())};
+  for (size_t i = 0; i < vectors.size(); ++i) s.scaler.apply_columns(vectors[i], columns, s.z.row(i));
+  return s;
 }
 
 // An instance's margin under each pooling of kPoolings (image-level: its vector's margin, twice).
 const char* const kPoolings[] = {"mean", "top-third"};
 
-std::array<double, 2> pooled_margins(const Fitted& f, const PreparedItem& item,
-                                     const std::vector<size_t>& columns, bool windows) {
+std::array<double, 2> pooled_margins(const Scaler& scaler, const LinearModel& linear,
+                                     const PreparedItem& item, const std::vector<size_t>& columns,
+                                     bool windows) {
   std::vector<double> raw(columns.size());
   std::vector<double> z(columns.size());
   auto margin = [&](const std::vector<double>& v) {
     for (size_t k = 0; k < columns.size(); ++k) raw[k] = v[columns[k]];
-    f.scaler.apply_row(raw.data(), z.data());
-    return f.linear.margin(z.data());
+    scaler.apply_row(raw.data(), z.data());
+    return linear.margin(z.data());
   };
   if (!windows || item.features.windows.empty()) {
     const double m = margin(item.features.values);
@@ -91,8 +92,8 @@ const char* const kGroupNames[] = {"duplicates", "folder", "manifest"};
 // values; limits from out-of-fold distances (the reference refitted without each fold), so that
 // `coverage` of the training images pass every family; the processing profile per class.
 Applicability fit_applicability(const Instances& items, const std::vector<int>& labels,
-                                const std::vector<int>& fold, int folds, const Model& model,
-                                double coverage) {
+                                const std::vector<int>& fold, int folds, const Model& model, double coverage,
+                                int jobs) {
   Matrix z{items.size(), model.feature_index.size(),
            std::vector<double>(items.size() * model.feature_index.size())};
   std::vector<double> raw(model.feature_index.size());
@@ -102,31 +103,57 @@ Applicability fit_applicability(const Instances& items, const std::vector<int>& 
   }
   std::map<std::string, std::vector<size_t>> columns;
   for (size_t c = 0; c < model.families.size(); ++c) columns[model.families[c]].push_back(c);
-  auto rows_of = [&](const std::vector<size_t>& rows) {
-    Matrix m{rows.size(), z.cols, std::vector<double>(rows.size() * z.cols)};
-    for (size_t r = 0; r < rows.size(); ++r) std::copy_n(z.row(rows[r]), z.cols, m.row(r));
-    return m;
-  };
-  std::vector<std::vector<double>> oof(columns.size(), std::vector<double>(items.size(), 0.0));
-  for (int f = 0; f < folds; ++f) {
-    std::vector<size_t> train, test;
-    for (size_t i = 0; i < items.size(); ++i) (fold[i] == f ? test : train).push_back(i);
-    if (test.empty() || train.size() < 3) continue;
-    const Matrix zt = rows_of(train);
-    size_t k = 0;
-    for (const auto& [family, cols] : columns) {
-      const FamilyReference r = fit_family_reference(family, cols, zt);
-      for (size_t i : test) oof[k][i] = r.distance(z.row(i));
-      ++k;
-    }
+  // Per family and fold, the moments of the fold's rows once; a fold's reference is fitted on the
+  // sum of the other folds' moments and measures the fold's rows, the final one on all of them.
+  std::vector<std::vector<size_t>> fold_rows(static_cast<size_t>(folds));
+  for (size_t i = 0; i < items.size(); ++i) {
+    if (fold[i] >= 0 && fold[i] < folds) fold_rows[static_cast<size_t>(fold[i])].push_back(i);
   }
+  std::vector<std::vector<double>> oof(columns.size(), std::vector<double>(items.size(), 0.0));
+  std::vector<FamilyReference> references(columns.size());
+  std::vector<std::pair<const std::string*, const std::vector<size_t>*>> families;
+  for (const auto& [family, cols] : columns) families.emplace_back(&family, &cols);
+  auto fit_family = [&](size_t k) {
+    const auto& [family, cols] = families[k];
+    std::vector<FamilyMoments> moments;
+    moments.reserve(fold_rows.size());
+    for (const auto& rows : fold_rows) moments.push_back(FamilyMoments::of(z, *cols, rows));
+    FamilyMoments all;
+    for (const auto& m : moments) all += m;
+    for (size_t f = 0; f < fold_rows.size(); ++f) {
+      if (fold_rows[f].empty() || all.count - moments[f].count < 3) continue;
+      FamilyMoments train;
+      for (size_t g = 0; g < moments.size(); ++g) {
+        if (g != f) train += moments[g];
+      }
+      const auto d = fit_family_reference(*family, *cols, train).distances(z, fold_rows[f]);
+      for (size_t r = 0; r < d.size(); ++r) oof[k][fold_rows[f][r]] = d[r];
+    }
+    references[k] = fit_family_reference(*family, *cols, all);
+  };
+  // Families are independent: spread over `jobs` threads; an exception (out of memory) is thrown
+  // again here, in the caller's thread.
+  std::exception_ptr failure;
+  ordered_parallel<std::exception_ptr>(
+      families.size(), jobs,
+      [&](size_t k) -> std::exception_ptr {
+        try {
+          fit_family(k);
+          return nullptr;
+        } catch (...) {
+          return std::current_exception();
+        }
+      },
+      [&](size_t, std::exception_ptr& e) {
+        if (e && !failure) failure = e;
+      });
+  if (failure) std::rethrow_exception(failure);
   const auto limits = joint_limits(oof, coverage);
   Applicability a;
   a.coverage = coverage;
-  size_t k = 0;
-  for (const auto& [family, cols] : columns) {
-    a.families.push_back(fit_family_reference(family, cols, z));
-    a.families.back().limit = limits[k++];
+  for (size_t k = 0; k < references.size(); ++k) {
+    a.families.push_back(std::move(references[k]));
+    a.families.back().limit = limits[k];
   }
   // The processing profile is the originals': processing that only augmented copies showed does
   // not count as seen, so the guards of check_domain stay (false positives are the worse error).
@@ -165,6 +192,64 @@ TrainingReference training_reference(const Model& model, const std::vector<Prepa
     bands[band_of(model.thresholds, cv.probabilities[i])] += 1.0 / totals[static_cast<size_t>(labels[i])];
   }
   return r;
+}
+
+// Grouped k-fold cross-validation over the C grid: per fold, the training rows are standardised
+// once and the SVM solved at each C; the test instances' margins go to
+// `margins[c][pooling][instance]` (each fold writes only its own instances, so folds run on
+// `settings.jobs` threads and the result does not depend on it). `solver[c]` gathers the solver's
+// work over the folds.
+std::optional<Error> cross_validate(const Instances& instances, const std::vector<size_t>& columns,
+                                    const std::vector<int>& fold, int k, const std::vector<double>& c_grid,
+                                    const TrainSettings& settings,
+                                    std::vector<std::array<std::vector<double>, 2>>& margins,
+                                    std::vector<SolverUse>& solver) {
+  std::vector<std::optional<Error>> errors(static_cast<size_t>(k));
+  std::vector<std::vector<SolverUse>> work(static_cast<size_t>(k), std::vector<SolverUse>(c_grid.size()));
+  auto run_fold = [&](int f) -> std::optional<Error> {
+    std::vector<size_t> train, test;
+    for (size_t i = 0; i < instances.size(); ++i) (fold[i] == f ? test : train).push_back(i);
+    if (test.empty()) return std::nullopt;
+    const Standardised data = standardise(instances, columns, train, settings);
+    for (size_t ci = 0; ci < c_grid.size(); ++ci) {
+      SolverReport report;
+      auto linear = solve_linear_svm(data.z, data.y, balanced_settings(data.y, c_grid[ci]), &report);
+      if (!linear) {
+        return Error{linear.error().code, "fold " + std::to_string(f + 1) + " of " + std::to_string(k) +
+                                              ": " + linear.error().message +
+                                              " (too few images of one class in the other folds)"};
+      }
+      work[static_cast<size_t>(f)][ci].add(report);
+      for (size_t i : test) {
+        const auto m =
+            pooled_margins(data.scaler, *linear, *instances[i], columns, settings.window_instances);
+        margins[ci][0][i] = m[0];
+        margins[ci][1][i] = m[1];
+      }
+    }
+    return std::nullopt;
+  };
+  ordered_parallel<std::optional<Error>>(
+      static_cast<size_t>(k), settings.jobs,
+      [&](size_t f) -> std::optional<Error> {
+        try {
+          return run_fold(static_cast<int>(f));
+        } catch (const std::exception& e) {  // out of memory, most likely
+          return Error{ErrorCode::kInternal, "fold " + std::to_string(f + 1) + ": " + e.what()};
+        }
+      },
+      [&](size_t f, std::optional<Error>& e) { errors[f] = std::move(e); });
+  for (auto& e : errors) {
+    if (e) return e;
+  }
+  solver.assign(c_grid.size(), SolverUse{});
+  for (const auto& per_fold : work) {
+    for (size_t ci = 0; ci < c_grid.size(); ++ci) {
+      solver[ci].passes = std::max(solver[ci].passes, per_fold[ci].passes);
+      solver[ci].converged = solver[ci].converged && per_fold[ci].converged;
+    }
+  }
+  return std::nullopt;
 }
 
 std::string utc_now() {
@@ -305,27 +390,19 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
     std::erase_if(c_grid, [](double c) { return c > 1.0; });
     if (c_grid.empty()) c_grid = {1.0};
   }
+  // Out-of-fold margins of every instance, per C of the grid and per pooling.
+  const bool windows = settings.window_instances;
+  std::vector<std::array<std::vector<double>, 2>> margins_by_c(c_grid.size());
+  for (auto& m : margins_by_c) m.fill(std::vector<double>(instances.size(), 0.0));
+  const auto fold_error =
+      cross_validate(instances, *columns, fold_all, k, c_grid, settings, margins_by_c, cv.solver_by_c);
+  if (fold_error) return *fold_error;
+
   double best_auc = -1.0;
   std::vector<double> margins_all;  // out of fold, every instance, at the chosen C and pooling
-  const bool windows = settings.window_instances;
-  for (double c : c_grid) {
-    std::vector<std::vector<double>> margins(2, std::vector<double>(instances.size(), 0.0));
-    for (int f = 0; f < k; ++f) {
-      std::vector<size_t> train, test;
-      for (size_t i = 0; i < instances.size(); ++i) (fold_all[i] == f ? test : train).push_back(i);
-      if (test.empty()) continue;
-      auto fitted = fit_rows(instances, *columns, train, c, settings);
-      if (!fitted) {
-        return make_error(fitted.error().code, "fold " + std::to_string(f + 1) + " of " + std::to_string(k) +
-                                                   ": " + fitted.error().message +
-                                                   " (too few images of one class in the other folds)");
-      }
-      for (size_t i : test) {
-        const auto m = pooled_margins(*fitted, *instances[i], *columns, windows);
-        margins[0][i] = m[0];
-        margins[1][i] = m[1];
-      }
-    }
+  for (size_t ci = 0; ci < c_grid.size(); ++ci) {
+    const double c = c_grid[ci];
+    const auto& margins = margins_by_c[ci];
     // C and the pooling are chosen on the images as they are; the copies only add training
     // instances. Image-level learning has one margin (both entries equal): "mean" is kept.
     double auc_c = -1.0;
@@ -378,10 +455,14 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   cv.report = evaluate_scores(cv.probabilities, labels, generators, model.thresholds.likely_generated);
 
   // Final model on everything.
-  auto fitted = fit_rows(instances, *columns, all, cv.chosen_c, settings);
+  Standardised everything = standardise(instances, *columns, all, settings);
+  SolverReport final_report;
+  auto fitted = solve_linear_svm(everything.z, everything.y, balanced_settings(everything.y, cv.chosen_c),
+                                 &final_report);
+  cv.final_solver.add(final_report);
   if (!fitted) return fitted.error();
-  model.scaler = std::move(fitted->scaler);
-  model.linear = std::move(fitted->linear);
+  model.scaler = std::move(everything.scaler);
+  model.linear = std::move(*fitted);
   model.instances = windows ? "windows" : "image";
 
   model.extractor_version = std::string(kExtractorVersion);
@@ -399,27 +480,35 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   counts["per_generator"] = per_generator;
   counts["augmented_copies"] = copies.size();
   nlohmann::ordered_json grid = nlohmann::ordered_json::array();
-  for (const auto& [c, auc] : cv.auc_by_c) grid.push_back({{"c", c}, {"oof_roc_auc", auc}});
+  for (size_t ci = 0; ci < cv.auc_by_c.size(); ++ci) {
+    grid.push_back({{"c", cv.auc_by_c[ci].first},
+                    {"oof_roc_auc", cv.auc_by_c[ci].second},
+                    {"solver_passes", cv.solver_by_c[ci].passes},
+                    {"solver_converged", cv.solver_by_c[ci].converged}});
+  }
   std::vector<std::string> files;
   files.reserve(items.size());
   for (const auto& it : items) files.push_back(training_file_key(it.sha256));
   std::sort(files.begin(), files.end());
-  model.provenance = {{"counts", counts},
-                      {"settings", settings_to_json(settings)},
-                      {"audit_warnings", audit.warnings},
-                      {"cross_validation",
-                       {{"folds", k},
-                        {"groups", cv.groups},
-                        {"group_by", kGroupNames[static_cast<int>(settings.group_by)]},
-                        {"c_grid", grid},
-                        {"chosen_c", cv.chosen_c},
-                        {"instances", model.instances},
-                        {"pooling", model.pooling},
-                        {"metrics", report_to_json(cv.report)}}},
-                      {"training_files", files}};
+  model.provenance = {
+      {"counts", counts},
+      {"settings", settings_to_json(settings)},
+      {"audit_warnings", audit.warnings},
+      {"cross_validation",
+       {{"folds", k},
+        {"groups", cv.groups},
+        {"group_by", kGroupNames[static_cast<int>(settings.group_by)]},
+        {"c_grid", grid},
+        {"chosen_c", cv.chosen_c},
+        {"final_fit",
+         {{"solver_passes", cv.final_solver.passes}, {"solver_converged", cv.final_solver.converged}}},
+        {"instances", model.instances},
+        {"pooling", model.pooling},
+        {"metrics", report_to_json(cv.report)}}},
+      {"training_files", files}};
   model.reference = training_reference(model, items, labels, cv);
   model.applicability =
-      fit_applicability(instances, labels_all, fold_all, k, model, settings.domain_coverage);
+      fit_applicability(instances, labels_all, fold_all, k, model, settings.domain_coverage, settings.jobs);
   stamp_model_id(model);
   return out;
 }

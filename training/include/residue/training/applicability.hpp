@@ -74,12 +74,32 @@ struct FamilyReference {
   double residual_variance = 1.0;  // sigma^2
   double limit = 0.0;              // distance above which the image is outside the domain
   [[nodiscard]] double distance(const double* z_model) const;  // z over the model's features
+  // The distances of rows `rows` of z (over the model's features) at once, as one matrix product;
+  // equal to distance() row by row up to rounding.
+  [[nodiscard]] std::vector<double> distances(const Matrix& z, const std::vector<size_t>& rows) const;
+};
+
+// Count, mean and centred scatter sum((x - mean)(x - mean)') of a family's values over some rows.
+// Those of disjoint row sets combine exactly (Chan, Golub & LeVeque 1979, the pairwise update), so
+// cross-validation computes each fold's once and adds them up instead of recomputing k - 1 folds
+// for every fit.
+struct FamilyMoments {
+  size_t count = 0;
+  std::vector<double> mean;     // D
+  std::vector<double> scatter;  // D x D, row-major
+  // Rows `rows` of z, values `columns`.
+  static FamilyMoments of(const Matrix& z, const std::vector<size_t>& columns,
+                          const std::vector<size_t>& rows);
+  FamilyMoments& operator+=(const FamilyMoments& other);
 };
 
 // Fits mean, basis and variances on rows of standardised values (all the model's features);
 // `columns` picks the family's. The limit is left at 0.
 FamilyReference fit_family_reference(const std::string& family, const std::vector<size_t>& columns,
                                      const Matrix& z, double explained = 0.95);
+// The same from the moments of the rows.
+FamilyReference fit_family_reference(const std::string& family, const std::vector<size_t>& columns,
+                                     const FamilyMoments& moments, double explained = 0.95);
 
 // The common quantile level q at which per-family limits (the q-quantile of each family's
 // out-of-fold distances, linear interpolation as numpy.quantile) let `coverage` of the images

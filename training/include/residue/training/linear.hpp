@@ -1,5 +1,6 @@
-// Linear scoring pieces: standardisation and a linear C-SVC trained with liblinear (Fan et al.
-// 2008; the dual coordinate descent of Hsieh et al. 2008), with libsvm kept as the reference.
+// Linear scoring pieces: standardisation and a linear C-SVC trained by dual coordinate descent
+// (Hsieh et al. 2008) on dense float rows, with liblinear (Fan et al. 2008, the same method on
+// sparse rows) and libsvm kept as references.
 //
 // Conventions: samples are rows of a dense row-major matrix; labels are 0 (camera) and 1
 // (generated); the margin m(x) = w . z(x) + b with z the standardised vector is positive towards
@@ -25,8 +26,24 @@ struct Scaler {
   std::vector<double> mean;
   std::vector<double> scale;
   static Scaler fit(const Matrix& x);
+  // Fitted on the values `columns` of each row (rows: whole feature vectors).
+  static Scaler fit(const std::vector<const double*>& rows, const std::vector<size_t>& columns);
   [[nodiscard]] Matrix apply(const Matrix& x) const;
   void apply_row(const double* in, double* out) const;
+  // The values `columns` of a whole vector, standardised, as floats.
+  void apply_columns(const double* in, const std::vector<size_t>& columns, float* out) const;
+};
+
+// Standardised training rows as float32, row-major: what the solver reads. Four bytes a value
+// (liblinear's sparse nodes take sixteen, and the solver's passes are bound by memory traffic);
+// standardised values are of order 1, where float's 24-bit mantissa loses nothing the tolerance
+// of the solver would notice.
+struct FloatRows {
+  size_t rows = 0;
+  size_t cols = 0;
+  std::vector<float> values;
+  [[nodiscard]] const float* row(size_t i) const { return values.data() + i * cols; }
+  float* row(size_t i) { return values.data() + i * cols; }
 };
 
 struct LinearModel {
@@ -47,13 +64,40 @@ struct SvmSettings {
   // regularised as (b / bias_scale)^2 (scikit-learn's LinearSVC intercept_scaling). libsvm does
   // not regularise it; a larger scale comes closer to libsvm and converges more slowly.
   double bias_scale = 1.0;
+  // Passes over the active rows before giving up (liblinear's limit for its dual solvers).
+  int max_passes = 1000;
 };
 
-// Trains a linear SVM with hinge loss (liblinear's L2R_L1LOSS_SVC_DUAL: the primal of libsvm's
-// C-SVC with a linear kernel, solved by dual coordinate descent) on already standardised rows.
-// Needs both classes. Scales to 10^5 rows: the cost is linear in rows x values per pass.
+// What a solve did: passes, whether the projected-gradient gap fell below the tolerance, and the
+// dual objective 1/2 |w|^2 - sum(alpha) at the end (w including the bias feature's weight).
+struct SolverReport {
+  int passes = 0;
+  bool converged = false;
+  double dual_objective = 0.0;
+};
+
+// Trains a linear SVM with hinge loss on standardised rows: the primal of libsvm's C-SVC with a
+// linear kernel, with the bias learnt as the weight of a constant feature `bias_scale`
+// (liblinear's L2R_L1LOSS_SVC_DUAL), solved by the dual coordinate descent of Hsieh, Chang, Lin,
+// Keerthi & Sundararajan (2008), Algorithm 1: rows in a fresh random order each pass (a fixed
+// seed, so the same rows give the same model), with the shrinking of their Section 3.2. Needs both
+// classes. The cost is linear in rows x values per pass; the number of passes grows with C and
+// with the overlap of the classes (docs/performance.md).
+//
+// No warm start across C: started from the solution of the next smaller C of our grid, the dual
+// needed as many passes as from zero or more (measured on overlapping simulated clouds; Chu, Ho,
+// Lin & Lin 2015 report the same of dual warm starts).
+Result<LinearModel> solve_linear_svm(const FloatRows& z, const std::vector<int>& labels,
+                                     const SvmSettings& settings, SolverReport* report = nullptr);
+
+// solve_linear_svm on double rows (rounded to float first).
 Result<LinearModel> train_linear_svm(const Matrix& x, const std::vector<int>& labels,
                                      const SvmSettings& settings);
+
+// The same problem solved by liblinear itself (a reference for the tests: same method, its own
+// random order, so the solutions agree to the tolerance, not bit for bit).
+Result<LinearModel> train_linear_svm_liblinear(const Matrix& x, const std::vector<int>& labels,
+                                               const SvmSettings& settings);
 
 // The same problem solved by libsvm's C-SVC with a linear kernel (the reference the tests compare
 // against; quadratic in rows, so not for large sets).

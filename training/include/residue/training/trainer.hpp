@@ -3,6 +3,7 @@
 // final linear SVM is trained on every example with the chosen C.
 #pragma once
 
+#include <algorithm>
 #include <string>
 #include <vector>
 
@@ -36,11 +37,27 @@ struct TrainSettings {
   // the 1 % operating point than image-level learning, for 5x the training cost (docs/quality.md).
   bool window_instances = false;
   size_t windows_per_image = 4;
+  // Threads for the cross-validation folds (one fold each; at most `folds`). The model does not
+  // depend on it; memory does: each fold in flight holds its standardised training rows as floats.
+  int jobs = 1;
+};
+
+// How hard the SVM's solver worked: the most passes any of its solves took, and whether every one
+// met the tolerance before the pass limit.
+struct SolverUse {
+  int passes = 0;
+  bool converged = true;
+  void add(const SolverReport& r) {
+    passes = std::max(passes, r.passes);
+    converged = converged && r.converged;
+  }
 };
 
 struct CrossValidation {
   double chosen_c = 1.0;
   std::vector<std::pair<double, double>> auc_by_c;  // (C, out-of-fold ROC AUC, the better pooling)
+  std::vector<SolverUse> solver_by_c;               // over the folds, per entry of auc_by_c
+  SolverUse final_solver;                           // the fit on every instance
   std::vector<int> fold;                            // fold of each example
   size_t groups = 0;
   std::vector<double> margins;        // out-of-fold, at the chosen C
