@@ -77,32 +77,39 @@ const std::vector<std::string>& feature_names() { return schema().names; }
 const std::vector<std::string>& feature_families() { return schema().families; }
 const std::string& feature_schema_id() { return schema().id; }
 
-FeatureVector extract_tiles(const std::vector<Tile>& tiles, FamilyTimings* timings, double* grid_strength) {
-  FamilyTimings local;
-  FamilyTimings& t = timings != nullptr ? *timings : local;
+std::vector<WindowInput> window_inputs(const std::vector<Tile>& tiles) {
   std::vector<WindowInput> inputs;
   inputs.reserve(tiles.size());
+  for (const auto& tile : tiles) inputs.emplace_back(tile, tile.luma());
+  return inputs;
+}
+
+FeatureVector extract_tiles(const std::vector<Tile>& tiles, FamilyTimings* timings, double* grid_strength) {
+  return extract_windows(window_inputs(tiles), timings, grid_strength);
+}
+
+FeatureVector extract_windows(const std::vector<WindowInput>& windows, FamilyTimings* timings,
+                              double* grid_strength) {
+  FamilyTimings local;
+  FamilyTimings& t = timings != nullptr ? *timings : local;
   double grid = 0.0;
-  for (const auto& tile : tiles) {
-    inputs.push_back({tile, tile.luma()});
-    grid += block_grid_strength(inputs.back().luma.data(), tile.size);
-  }
+  for (const auto& input : windows) grid += block_grid_strength(input.luma.data(), input.tile.size);
   if (grid_strength != nullptr)
-    *grid_strength = tiles.empty() ? 1.0 : grid / static_cast<double>(tiles.size());
+    *grid_strength = windows.empty() ? 1.0 : grid / static_cast<double>(windows.size());
 
   FeatureVector out;
   out.values.reserve(feature_names().size());
-  out.windows.assign(inputs.size(), {});
+  out.windows.assign(windows.size(), {});
   for (auto& w : out.windows) w.reserve(feature_names().size());
   for (const auto& family : kFamilies) {
     const auto start = Clock::now();
     const auto& names = family.names();
     std::vector<double> mean(names.size(), 0.0);
     std::vector<double> max(names.size(), -1e300);
-    for (size_t w = 0; w < inputs.size(); ++w) {
-      const auto values = family.window(inputs[w]);
+    for (size_t w = 0; w < windows.size(); ++w) {
+      const auto values = family.window(windows[w]);
       for (size_t i = 0; i < values.size(); ++i) {
-        mean[i] += values[i] / static_cast<double>(inputs.size());
+        mean[i] += values[i] / static_cast<double>(windows.size());
         max[i] = std::max(max[i], values[i]);
         out.windows[w].push_back(values[i]);
         if (is_peak(names[i])) out.windows[w].push_back(values[i]);  // a window's mean and max are its value
@@ -130,9 +137,10 @@ Result<Extraction> extract_bytes(std::span<const std::uint8_t> bytes, const Extr
   out.decoded_rows = decoded->decoded_rows;
   out.decoder_warnings = decoded->decoder_warnings;
   if (decoded->jpeg_tables) out.compression.jpeg = estimate_jpeg_quality(*decoded->jpeg_tables);
-  out.features = extract_tiles(decoded->tiles, &out.timings, &out.compression.block_grid_strength);
+  const auto windows = window_inputs(decoded->tiles);
+  out.features = extract_windows(windows, &out.timings, &out.compression.block_grid_strength);
   const auto processing_start = Clock::now();
-  out.processing = assess_processing(*decoded, out.compression.jpeg);
+  out.processing = assess_processing(*decoded, out.compression.jpeg, &windows);
   out.timings.processing_ms = ms_since(processing_start);
   out.timings.total_ms = ms_since(start);
   return out;
@@ -157,9 +165,10 @@ Result<Extraction> extract_image(const Image& image, const ExtractOptions& optio
   decoded.channels = image.channels;
   decoded.layout = *layout;
   decoded.tiles = cut_tiles(image, *layout);
-  out.features = extract_tiles(decoded.tiles, &out.timings, &out.compression.block_grid_strength);
+  const auto windows = window_inputs(decoded.tiles);
+  out.features = extract_windows(windows, &out.timings, &out.compression.block_grid_strength);
   const auto processing_start = Clock::now();
-  out.processing = assess_processing(decoded, std::nullopt);
+  out.processing = assess_processing(decoded, std::nullopt, &windows);
   out.timings.processing_ms = ms_since(processing_start);
   out.timings.total_ms = out.timings.spectral_ms + out.timings.noise_ms + out.timings.resampling_ms +
                          out.timings.sensor_ms + out.timings.texture_ms + out.timings.coding_ms +

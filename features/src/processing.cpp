@@ -113,9 +113,9 @@ void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
 
 // The strongest p-map peak of one window, leaving out the multiples of 1/8 cycles/pixel where
 // JPEG's block grid puts its own periodicity.
-SpectralPeak window_resampling_peak(const float* luma, int n, bool skip_block_grid) {
-  const auto p = centred_kirchner_pmap(luma, n);
-  const auto power = hann_power_spectrum(p.data(), n);
+SpectralPeak window_resampling_peak(const WindowInput& window, bool skip_block_grid) {
+  const int n = window.tile.size;
+  const auto& power = window.pmap_power();
   const int k_min = std::max(1, static_cast<int>(std::ceil(kMinResamplingFrequency * n)));
   std::vector<double> profile;
   std::vector<int> bins;
@@ -143,16 +143,14 @@ SpectralPeak window_resampling_peak(const float* luma, int n, bool skip_block_gr
   return best;
 }
 
-ResamplingTrace assess_resampling(const std::vector<Tile>& tiles, bool skip_block_grid) {
+ResamplingTrace assess_resampling(const std::vector<WindowInput>& windows, bool skip_block_grid) {
   ResamplingTrace r;
   std::vector<SpectralPeak> peaks;
-  for (const auto& t : tiles) {
-    const auto luma = t.luma();
-    peaks.push_back(window_resampling_peak(luma.data(), t.size, skip_block_grid));
-  }
+  peaks.reserve(windows.size());
+  for (const auto& w : windows) peaks.push_back(window_resampling_peak(w, skip_block_grid));
   r.windows = static_cast<int>(peaks.size());
   if (peaks.empty()) return r;
-  const double tolerance = 1.5 / tiles.front().size;  // bins
+  const double tolerance = 1.5 / windows.front().tile.size;  // bins
   for (const auto& candidate : peaks) {
     std::vector<double> strengths;
     for (const auto& p : peaks) {
@@ -174,20 +172,20 @@ ResamplingTrace assess_resampling(const std::vector<Tile>& tiles, bool skip_bloc
   return r;
 }
 
-DoubleJpegTrace assess_double_jpeg(const std::vector<Tile>& tiles, const JpegQuantTables& tables) {
+DoubleJpegTrace assess_double_jpeg(const std::vector<WindowInput>& windows, const JpegQuantTables& tables) {
   // Low-frequency AC modes (row, column), where most coefficients are non-zero.
   constexpr int kModes[][2] = {{0, 1}, {1, 0}, {1, 1}, {0, 2}, {2, 0}, {1, 2}, {2, 1}, {2, 2}};
   constexpr int kRange = 24;
   std::vector<std::vector<double>> histograms(std::size(kModes), std::vector<double>(kRange + 1, 0.0));
-  for (const auto& t : tiles) {
-    const auto luma = t.luma();
+  for (const auto& w : windows) {
+    const Tile& t = w.tile;
+    const auto& luma = w.luma;
     for (int by = 0; by + 8 <= t.size; by += 8) {
       for (int bx = 0; bx + 8 <= t.size; bx += 8) {
         std::array<double, 64> block{};
-        for (int y = 0; y < 8; ++y) {
-          for (int x = 0; x < 8; ++x)
-            block[static_cast<size_t>(y * 8 + x)] =
-                luma[static_cast<size_t>(by + y) * t.size + bx + x] - 128.0;
+        for (size_t y = 0; y < 8; ++y) {
+          const float* row = luma.data() + (static_cast<size_t>(by) + y) * static_cast<size_t>(t.size) + bx;
+          for (size_t x = 0; x < 8; ++x) block[y * 8 + x] = row[x] - 128.0;
         }
         const auto d = dct8x8(block);
         for (size_t m = 0; m < std::size(kModes); ++m) {
@@ -234,28 +232,26 @@ std::vector<double> resampling_factor_candidates(double f) {
 std::array<double, 64> dct8x8(const std::array<double, 64>& block) {
   static const std::array<double, 64> basis = [] {
     std::array<double, 64> c{};
-    for (int u = 0; u < 8; ++u) {
+    for (size_t u = 0; u < 8; ++u) {
       const double scale = u == 0 ? std::sqrt(1.0 / 8.0) : std::sqrt(2.0 / 8.0);
-      for (int x = 0; x < 8; ++x)
-        c[static_cast<size_t>(u * 8 + x)] = scale * std::cos((2 * x + 1) * u * std::numbers::pi / 16.0);
+      for (size_t x = 0; x < 8; ++x)
+        c[u * 8 + x] = scale * std::cos(static_cast<double>((2 * x + 1) * u) * std::numbers::pi / 16.0);
     }
     return c;
   }();
   std::array<double, 64> rows{}, out{};
-  for (int y = 0; y < 8; ++y) {
-    for (int u = 0; u < 8; ++u) {
+  for (size_t y = 0; y < 8; ++y) {
+    for (size_t u = 0; u < 8; ++u) {
       double s = 0.0;
-      for (int x = 0; x < 8; ++x)
-        s += basis[static_cast<size_t>(u * 8 + x)] * block[static_cast<size_t>(y * 8 + x)];
-      rows[static_cast<size_t>(y * 8 + u)] = s;
+      for (size_t x = 0; x < 8; ++x) s += basis[u * 8 + x] * block[y * 8 + x];
+      rows[y * 8 + u] = s;
     }
   }
-  for (int v = 0; v < 8; ++v) {
-    for (int u = 0; u < 8; ++u) {
+  for (size_t v = 0; v < 8; ++v) {
+    for (size_t u = 0; u < 8; ++u) {
       double s = 0.0;
-      for (int y = 0; y < 8; ++y)
-        s += basis[static_cast<size_t>(v * 8 + y)] * rows[static_cast<size_t>(y * 8 + u)];
-      out[static_cast<size_t>(v * 8 + u)] = s;
+      for (size_t y = 0; y < 8; ++y) s += basis[v * 8 + y] * rows[y * 8 + u];
+      out[v * 8 + u] = s;
     }
   }
   return out;
@@ -278,7 +274,13 @@ double histogram_dips(const std::vector<double>& h) {
 }
 
 ProcessingEvidence assess_processing(const DecodedWindows& decoded,
-                                     const std::optional<QualityEstimate>& jpeg) {
+                                     const std::optional<QualityEstimate>& jpeg,
+                                     const std::vector<WindowInput>* windows) {
+  std::vector<WindowInput> made;
+  if (windows == nullptr) {
+    made = window_inputs(decoded.tiles);
+    windows = &made;
+  }
   ProcessingEvidence e;
   e.palette_file = decoded.header.palette;
   assess_colours(decoded.tiles, e);
@@ -298,7 +300,7 @@ ProcessingEvidence assess_processing(const DecodedWindows& decoded,
                       " % of levels empty): levels stretched or bit depth reduced");
   }
   const bool jpeg_file = decoded.header.format == ImageFormat::kJpeg;
-  e.resampling = assess_resampling(decoded.tiles, jpeg_file);
+  e.resampling = assess_resampling(*windows, jpeg_file);
   if (e.resampling.detected) {
     const auto f = resampling_factor_candidates(e.resampling.frequency);
     e.notes.push_back("resampled: periodic interpolation trace at " + fixed(e.resampling.frequency, 3) +
@@ -312,12 +314,12 @@ ProcessingEvidence assess_processing(const DecodedWindows& decoded,
                       (jpeg->exact ? " (standard tables)" : " (non-standard tables)"));
   }
   if (decoded.jpeg_tables && jpeg_file) {
-    e.double_jpeg = assess_double_jpeg(decoded.tiles, *decoded.jpeg_tables);
+    e.double_jpeg = assess_double_jpeg(*windows, *decoded.jpeg_tables);
     if (e.double_jpeg.detected)
-      e.notes.push_back("compressed as JPEG at least twice (periodic DCT histograms)");
+      e.notes.emplace_back("compressed as JPEG at least twice (periodic DCT histograms)");
   }
   e.lossy_webp = decoded.header.format == ImageFormat::kWebp && decoded.header.lossy;
-  if (e.lossy_webp) e.notes.push_back("lossy WebP");
+  if (e.lossy_webp) e.notes.emplace_back("lossy WebP");
   // Flat colour alone is not enough: JPEG turns smooth studio backgrounds into exactly flat blocks
   // too. User-interface pixels are flat, losslessly stored and made of few colours.
   e.screenshot_like = e.flat_share >= kScreenshotFlatShare && !decoded.header.lossy &&

@@ -70,10 +70,15 @@ const std::vector<std::string>& resampling_names() {
   return names;
 }
 
+const std::vector<double>& WindowInput::pmap_power() const {
+  if (pmap_power_kept.empty())
+    pmap_power_kept = hann_power_spectrum(centred_kirchner_pmap(luma.data(), tile.size).data(), tile.size);
+  return pmap_power_kept;
+}
+
 std::vector<double> resampling_window(const WindowInput& window) {
   const int n = window.tile.size;
-  const auto p = centred_kirchner_pmap(window.luma.data(), n);
-  const auto power = hann_power_spectrum(p.data(), n);
+  const auto& power = window.pmap_power();
   const SpectralPeak peak = projected_peak(power, n, kMinFrequency);
   // JPEG's 8 x 8 blocks and 8x upsampling leave p-map periodicity at multiples of 1/8.
   const GridPeaks grid = grid_peaks(power, n, 8);

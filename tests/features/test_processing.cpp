@@ -40,11 +40,10 @@ TEST_CASE("dct8x8 equals scipy.fft.dctn(norm='ortho') on a block of a photograph
   std::array<double, 64> block{};
   const auto csv = test::scratch() / "block.csv";
   std::ofstream out(csv);
-  for (int y = 0; y < 8; ++y) {
-    for (int x = 0; x < 8; ++x) {
-      block[static_cast<size_t>(y * 8 + x)] =
-          camera.plane(0)[static_cast<size_t>(200 + y) * camera.width + 240 + x];
-      out << (x ? "," : "") << block[static_cast<size_t>(y * 8 + x)];
+  for (size_t y = 0; y < 8; ++y) {
+    for (size_t x = 0; x < 8; ++x) {
+      block[y * 8 + x] = camera.plane(0)[(200 + y) * static_cast<size_t>(camera.width) + 240 + x];
+      out << (x ? "," : "") << block[y * 8 + x];
     }
     out << "\n";
   }
@@ -78,6 +77,7 @@ TEST_CASE("histogram_dips counts levels emptied by double quantisation (hand-wor
   CHECK(histogram_dips(h) == doctest::Approx(0.5));
   // A smooth geometric histogram has no dips.
   std::vector<double> smooth;
+  smooth.reserve(20);
   for (int v = 0; v < 20; ++v) smooth.push_back(1000.0 * std::pow(0.85, v));
   CHECK(histogram_dips(smooth) == 0.0);
   // Too few populated levels to judge.
@@ -135,6 +135,29 @@ TEST_CASE("processing evidence: palette PNG, lossy WebP, upscaling, JPEG quality
   CHECK(twice.double_jpeg.detected);
   CHECK(twice.double_jpeg.strength > 0.25);
   CHECK(*twice.jpeg_quality == 80);
+}
+
+TEST_CASE("processing evidence reusing the families' windows equals the evidence computed alone") {
+  // extract_bytes hands the windows whose p-map spectra the resampling family made to the
+  // processing evidence; the families must leave them as the evidence would make them.
+  const auto original = file_bytes(test::sample("astronaut.png"));
+  for (const auto& bytes : {transformed(original, "upscale-1.5"), transformed(original, "jpeg-q75")}) {
+    auto decoded = decode_windows(bytes);
+    REQUIRE(decoded);
+    const std::optional<QualityEstimate> quality =
+        decoded->jpeg_tables ? std::optional(estimate_jpeg_quality(*decoded->jpeg_tables)) : std::nullopt;
+    const auto windows = window_inputs(decoded->tiles);
+    (void)extract_windows(windows, nullptr);
+    for (const auto& w : windows) CHECK_FALSE(w.pmap_power_kept.empty());  // made by the resampling family
+    const auto shared = assess_processing(*decoded, quality, &windows);
+    const auto alone = assess_processing(*decoded, quality);
+    CHECK(shared.resampling.strength == alone.resampling.strength);
+    CHECK(shared.resampling.frequency == alone.resampling.frequency);
+    CHECK(shared.resampling.windows_agreeing == alone.resampling.windows_agreeing);
+    CHECK(shared.resampling.detected == alone.resampling.detected);
+    CHECK(shared.double_jpeg.strength == alone.double_jpeg.strength);
+    CHECK(shared.notes == alone.notes);
+  }
 }
 
 TEST_CASE("median cut keeps an image of four colours exact and caps the palette") {

@@ -92,7 +92,7 @@ TEST_CASE("texture contrast: moments of the poorest and richest thirds equal num
   const Image astronaut = test::load(test::sample("astronaut.png"));
   const Image part = crop(astronaut, 120, 40, 256, 256);
   Tile tile{0, 0, 256, 3, part.samples};
-  const WindowInput input{tile, tile.luma()};
+  const WindowInput input(tile, tile.luma());
   const auto path = test::scratch() / "texture_luma.f32";
   test::write_floats(path, input.luma);
   const auto expected = test::numbers(test::python("traces_reference.py", {"texture", path.string(), "256"}));

@@ -73,6 +73,9 @@ struct Extraction {
 // Features of tiles already in memory (all the same size), with per-family timings.
 FeatureVector extract_tiles(const std::vector<Tile>& tiles, FamilyTimings* timings = nullptr,
                             double* grid_strength = nullptr);
+// The same for windows made by window_inputs(), which keep what the processing evidence reuses.
+FeatureVector extract_windows(const std::vector<WindowInput>& windows, FamilyTimings* timings = nullptr,
+                              double* grid_strength = nullptr);
 
 Result<Extraction> extract_bytes(std::span<const std::uint8_t> bytes, const ExtractOptions& options = {});
 Result<Extraction> extract_file(const std::filesystem::path& path, const ExtractOptions& options = {});

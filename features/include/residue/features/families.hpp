@@ -37,11 +37,20 @@
 
 namespace residue {
 
-// What every family sees of one window: the tile and its BT.601 luma.
+// What every family sees of one window: the tile, its BT.601 luma, and what two users share.
+// A window belongs to one thread at a time.
 struct WindowInput {
+  WindowInput(const Tile& t, std::vector<float> l) : tile(t), luma(std::move(l)) {}
   const Tile& tile;
   std::vector<float> luma;
+  // The Hann-windowed power spectrum of the centred Kirchner p-map, made on first use and kept:
+  // the resampling family and the processing evidence's resampling trace both read it.
+  [[nodiscard]] const std::vector<double>& pmap_power() const;
+  mutable std::vector<double> pmap_power_kept;  // empty until pmap_power() fills it
 };
+
+// One WindowInput per tile (the tiles must outlive them).
+std::vector<WindowInput> window_inputs(const std::vector<Tile>& tiles);
 
 const std::vector<std::string>& spectral_names();
 std::vector<double> spectral_window(const WindowInput& window);

@@ -16,6 +16,7 @@
 
 #include "residue/features/compression.hpp"
 #include "residue/features/decode.hpp"
+#include "residue/features/families.hpp"
 
 namespace residue {
 
@@ -73,7 +74,10 @@ std::array<double, 64> dct8x8(const std::array<double, 64>& block);
 double histogram_dips(const std::vector<double>& histogram);
 
 // Everything above for one decoded file (`jpeg`: the quality estimated from its tables).
+// `windows`: the decoded tiles' WindowInputs when the features were extracted from them (their
+// luma and p-map spectrum are reused); made here when null.
 ProcessingEvidence assess_processing(const DecodedWindows& decoded,
-                                     const std::optional<QualityEstimate>& jpeg);
+                                     const std::optional<QualityEstimate>& jpeg,
+                                     const std::vector<WindowInput>* windows = nullptr);
 
 }  // namespace residue
