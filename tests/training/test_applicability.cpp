@@ -38,7 +38,7 @@ TEST_CASE("the PPCA distance equals numpy's on a worked example") {
   // Training rows: 60 draws of a correlated 5-D Gaussian (the test's own), test rows: 4 points.
   std::mt19937 rng(7);
   std::normal_distribution<double> g(0.0, 1.0);
-  Matrix z{60, 6, std::vector<double>(60 * 6)};
+  Matrix z{60, 6, std::vector<double>(size_t{60} * 6)};
   for (size_t i = 0; i < z.rows; ++i) {
     const double a = g(rng), b = g(rng);
     double* r = z.row(i);
@@ -81,7 +81,7 @@ TEST_CASE("family moments of two halves combine to those of the whole (Chan, Gol
   // Columns with offsets far from zero, where a naive sum of squares would lose digits.
   std::mt19937 rng(8);
   std::normal_distribution<double> g(0.0, 1.0);
-  Matrix z{101, 4, std::vector<double>(101 * 4)};
+  Matrix z{101, 4, std::vector<double>(size_t{101} * 4)};
   for (size_t i = 0; i < z.rows; ++i) {
     const double a = g(rng);
     z.row(i)[0] = 1e6 + a;
@@ -120,7 +120,7 @@ TEST_CASE("family moments of two halves combine to those of the whole (Chan, Gol
 TEST_CASE("batched PPCA distances equal the distance of each row") {
   std::mt19937 rng(9);
   std::normal_distribution<double> g(0.0, 1.0);
-  Matrix z{200, 7, std::vector<double>(200 * 7)};
+  Matrix z{200, 7, std::vector<double>(size_t{200} * 7)};
   for (size_t i = 0; i < z.rows; ++i) {
     const double a = g(rng), b = g(rng);
     double* r = z.row(i);

@@ -112,6 +112,7 @@ Applicability fit_applicability(const Instances& items, const std::vector<int>& 
   std::vector<std::vector<double>> oof(columns.size(), std::vector<double>(items.size(), 0.0));
   std::vector<FamilyReference> references(columns.size());
   std::vector<std::pair<const std::string*, const std::vector<size_t>*>> families;
+  families.reserve(columns.size());
   for (const auto& [family, cols] : columns) families.emplace_back(&family, &cols);
   auto fit_family = [&](size_t k) {
     const auto& [family, cols] = families[k];
@@ -428,6 +429,7 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   Model& model = out.model;
   model.calibration = fit_platt(margins_all, labels_all);
   std::vector<double> probabilities_all;
+  probabilities_all.reserve(margins_all.size());
   for (double m : margins_all) probabilities_all.push_back(model.calibration.probability(m));
   cv.probabilities.assign(probabilities_all.begin(),
                           probabilities_all.begin() + static_cast<std::ptrdiff_t>(n));
