@@ -6,6 +6,7 @@
 #include <bit>
 #include <cmath>
 #include <numbers>
+#include <numeric>
 
 #include "residue/features/families.hpp"
 #include "residue/features/filters.hpp"
@@ -115,17 +116,11 @@ void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
 // JPEG's block grid puts its own periodicity.
 SpectralPeak window_resampling_peak(const WindowInput& window, bool skip_block_grid) {
   const int n = window.tile.size;
-  const auto& power = window.pmap_power();
+  const auto& whole = window.pmap_profile();
   const int k_min = std::max(1, static_cast<int>(std::ceil(kMinResamplingFrequency * n)));
-  std::vector<double> profile;
-  std::vector<int> bins;
-  for (int k = k_min; k <= n / 2; ++k) {
-    double s = 0.0;
-    for (int j = 0; j < n; ++j)
-      s += power[static_cast<size_t>(j) * n + k] + power[static_cast<size_t>(k) * n + j];
-    profile.push_back(s / (2.0 * n));
-    bins.push_back(k);
-  }
+  const std::vector<double> profile(whole.begin() + k_min, whole.end());
+  std::vector<int> bins(profile.size());
+  std::iota(bins.begin(), bins.end(), k_min);
   std::vector<double> sorted = profile;
   std::nth_element(sorted.begin(), sorted.begin() + static_cast<std::ptrdiff_t>(sorted.size() / 2),
                    sorted.end());

@@ -46,22 +46,31 @@ std::vector<float> centred_kirchner_pmap(const float* luma, int n) {
   return p;
 }
 
-SpectralPeak projected_peak(const std::vector<double>& power, int n, double min_frequency) {
-  const int k_min = std::max(1, static_cast<int>(std::ceil(min_frequency * n)));
-  std::vector<double> profile;
-  for (int k = k_min; k <= n / 2; ++k) {
+std::vector<double> axis_profile(const std::vector<double>& power, int n) {
+  std::vector<double> profile(static_cast<size_t>(n / 2) + 1);
+  for (int k = 0; k <= n / 2; ++k) {
     double s = 0.0;
     for (int j = 0; j < n; ++j) {
       s += power[static_cast<size_t>(j) * n + k] + power[static_cast<size_t>(k) * n + j];
     }
-    profile.push_back(s / (2.0 * n));
+    profile[static_cast<size_t>(k)] = s / (2.0 * n);
   }
-  const auto peak = std::max_element(profile.begin(), profile.end());
-  std::vector<double> sorted = profile;
+  return profile;
+}
+
+SpectralPeak profile_peak(const std::vector<double>& profile, int n, double min_frequency) {
+  const int k_min = std::max(1, static_cast<int>(std::ceil(min_frequency * n)));
+  const auto band = profile.begin() + k_min;
+  const auto peak = std::max_element(band, profile.end());
+  std::vector<double> sorted(band, profile.end());
   std::nth_element(sorted.begin(), sorted.begin() + static_cast<std::ptrdiff_t>(sorted.size() / 2),
                    sorted.end());
   const double median = sorted[sorted.size() / 2];
-  return {(*peak + 1e-12) / (median + 1e-12), static_cast<double>(k_min + (peak - profile.begin())) / n};
+  return {(*peak + 1e-12) / (median + 1e-12), static_cast<double>(peak - profile.begin()) / n};
+}
+
+SpectralPeak projected_peak(const std::vector<double>& power, int n, double min_frequency) {
+  return profile_peak(axis_profile(power, n), n, min_frequency);
 }
 
 const std::vector<std::string>& resampling_names() {
@@ -70,16 +79,21 @@ const std::vector<std::string>& resampling_names() {
   return names;
 }
 
-const std::vector<double>& WindowInput::pmap_power() const {
-  if (pmap_power_kept.empty())
-    pmap_power_kept = hann_power_spectrum(centred_kirchner_pmap(luma.data(), tile.size).data(), tile.size);
-  return pmap_power_kept;
+std::vector<double> pmap_power(const WindowInput& window) {
+  return hann_power_spectrum(centred_kirchner_pmap(window.luma.data(), window.tile.size).data(),
+                             window.tile.size);
+}
+
+const std::vector<double>& WindowInput::pmap_profile() const {
+  if (pmap_profile_kept.empty()) pmap_profile_kept = axis_profile(pmap_power(*this), tile.size);
+  return pmap_profile_kept;
 }
 
 std::vector<double> resampling_window(const WindowInput& window) {
   const int n = window.tile.size;
-  const auto& power = window.pmap_power();
-  const SpectralPeak peak = projected_peak(power, n, kMinFrequency);
+  const auto power = pmap_power(window);
+  window.pmap_profile_kept = axis_profile(power, n);
+  const SpectralPeak peak = profile_peak(window.pmap_profile_kept, n, kMinFrequency);
   // JPEG's 8 x 8 blocks and 8x upsampling leave p-map periodicity at multiples of 1/8.
   const GridPeaks grid = grid_peaks(power, n, 8);
   return {std::log10(peak.ratio), std::log10(0.5 * (grid.axis + grid.diagonal))};

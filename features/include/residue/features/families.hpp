@@ -43,11 +43,15 @@ struct WindowInput {
   WindowInput(const Tile& t, std::vector<float> l) : tile(t), luma(std::move(l)) {}
   const Tile& tile;
   std::vector<float> luma;
-  // The Hann-windowed power spectrum of the centred Kirchner p-map, made on first use and kept:
-  // the resampling family and the processing evidence's resampling trace both read it.
-  [[nodiscard]] const std::vector<double>& pmap_power() const;
-  mutable std::vector<double> pmap_power_kept;  // empty until pmap_power() fills it
+  // axis_profile() of the window's p-map spectrum (pmap_power()): made by the resampling family,
+  // or on first use, and kept for the processing evidence's resampling trace (N/2 + 1 values, not
+  // the N x N spectrum: a request keeps every window's).
+  [[nodiscard]] const std::vector<double>& pmap_profile() const;
+  mutable std::vector<double> pmap_profile_kept;  // empty until made
 };
+
+// The Hann-windowed power spectrum of a window's centred Kirchner p-map.
+std::vector<double> pmap_power(const WindowInput& window);
 
 // One WindowInput per tile (the tiles must outlive them).
 std::vector<WindowInput> window_inputs(const std::vector<Tile>& tiles);
@@ -99,6 +103,10 @@ struct SpectralPeak {
   double frequency = 0.0;  // cycles per pixel
 };
 SpectralPeak projected_peak(const std::vector<double>& power, int n, double min_frequency);
+// The projection itself: for k = 0 .. N/2, the mean of row k and column k of the N x N spectrum.
+std::vector<double> axis_profile(const std::vector<double>& power, int n);
+// projected_peak from the projection.
+SpectralPeak profile_peak(const std::vector<double>& profile, int n, double min_frequency);
 
 // Colour-filter-array traces of one window, from the residual e = x - (N + S + E + W) / 4 of
 // each channel: log10(max/min) of the residual energy over the four 2 x 2 lattice positions, and
