@@ -165,7 +165,7 @@ double primal_objective(const LinearModel& m, const Labelled& d, const SvmSettin
 
 FloatRows as_float(const Matrix& x) {
   FloatRows z{x.rows, x.cols, std::vector<float>(x.data.size())};
-  for (size_t i = 0; i < x.data.size(); ++i) z.values[i] = static_cast<float>(x.data[i]);
+  for (size_t i = 0; i < x.data.size(); ++i) z.data[i] = static_cast<float>(x.data[i]);
   return z;
 }
 

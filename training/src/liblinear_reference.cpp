@@ -10,11 +10,7 @@ namespace residue {
 
 Result<LinearModel> train_linear_svm_liblinear(const Matrix& x, const std::vector<int>& labels,
                                                const SvmSettings& settings) {
-  bool seen[2] = {false, false};
-  for (int y : labels) seen[y != 0] = true;
-  if (!seen[0] || !seen[1]) {
-    return make_error(ErrorCode::kInternal, "training needs both camera and generated examples");
-  }
+  if (auto missing = missing_class(labels)) return *missing;
   // Dense rows as liblinear nodes: index 1..d, the bias node d+1 (liblinear appends the constant
   // `bias` as one more feature), then the terminator -1.
   const size_t stride = x.cols + 2;

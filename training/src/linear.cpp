@@ -71,6 +71,13 @@ SvmSettings balanced_settings(const std::vector<int>& labels, double c) {
   return s;
 }
 
+std::optional<Error> missing_class(const std::vector<int>& labels) {
+  bool seen[2] = {false, false};
+  for (int y : labels) seen[y != 0] = true;
+  if (seen[0] && seen[1]) return std::nullopt;
+  return make_error(ErrorCode::kInternal, "training needs both camera and generated examples");
+}
+
 namespace {
 
 // w . x in double over a float row. Eight partial sums, added in a fixed order at the end: the
@@ -98,19 +105,11 @@ void prefetch_row(const float* x, size_t n) {
   for (size_t j = 0; j < n; j += kLine) __builtin_prefetch(x + j);
 }
 
-bool has_both_classes(const std::vector<int>& labels) {
-  bool seen[2] = {false, false};
-  for (int y : labels) seen[y != 0] = true;
-  return seen[0] && seen[1];
-}
-
 }  // namespace
 
 Result<LinearModel> solve_linear_svm(const FloatRows& z, const std::vector<int>& labels,
                                      const SvmSettings& settings, SolverReport* report) {
-  if (!has_both_classes(labels)) {
-    return make_error(ErrorCode::kInternal, "training needs both camera and generated examples");
-  }
+  if (auto missing = missing_class(labels)) return *missing;
   const size_t l = z.rows;
   const size_t d = z.cols;
   const double bias = settings.bias_scale;
@@ -211,7 +210,7 @@ Result<LinearModel> solve_linear_svm(const FloatRows& z, const std::vector<int>&
 Result<LinearModel> train_linear_svm(const Matrix& x, const std::vector<int>& labels,
                                      const SvmSettings& settings) {
   FloatRows z{x.rows, x.cols, std::vector<float>(x.data.size())};
-  std::transform(x.data.begin(), x.data.end(), z.values.begin(),
+  std::transform(x.data.begin(), x.data.end(), z.data.begin(),
                  [](double v) { return static_cast<float>(v); });
   return solve_linear_svm(z, labels, settings);
 }

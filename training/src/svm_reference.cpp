@@ -10,11 +10,7 @@ namespace residue {
 
 Result<LinearModel> train_linear_svm_libsvm(const Matrix& x, const std::vector<int>& labels,
                                             const SvmSettings& settings) {
-  bool seen[2] = {false, false};
-  for (int y : labels) seen[y != 0] = true;
-  if (!seen[0] || !seen[1]) {
-    return make_error(ErrorCode::kInternal, "training needs both camera and generated examples");
-  }
+  if (auto missing = missing_class(labels)) return *missing;
   // Dense rows as libsvm nodes: index 1..d, then the terminator -1.
   std::vector<svm_node> nodes(x.rows * (x.cols + 1));
   std::vector<svm_node*> rows(x.rows);

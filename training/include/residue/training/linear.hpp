@@ -7,19 +7,24 @@
 // "generated".
 #pragma once
 
+#include <optional>
 #include <vector>
 
 #include "residue/features/status.hpp"
 
 namespace residue {
 
-struct Matrix {
+// Row-major rows of values: Matrix for the doubles of feature vectors, FloatRows for what the
+// solver reads.
+template <typename T>
+struct Rows {
   size_t rows = 0;
   size_t cols = 0;
-  std::vector<double> data;
-  [[nodiscard]] const double* row(size_t i) const { return data.data() + i * cols; }
-  double* row(size_t i) { return data.data() + i * cols; }
+  std::vector<T> data;
+  [[nodiscard]] const T* row(size_t i) const { return data.data() + i * cols; }
+  T* row(size_t i) { return data.data() + i * cols; }
 };
+using Matrix = Rows<double>;
 
 // Per-column mean and standard deviation (population); a constant column gets scale 1.
 struct Scaler {
@@ -34,17 +39,11 @@ struct Scaler {
   void apply_columns(const double* in, const std::vector<size_t>& columns, float* out) const;
 };
 
-// Standardised training rows as float32, row-major: what the solver reads. Four bytes a value
-// (liblinear's sparse nodes take sixteen, and the solver's passes are bound by memory traffic);
-// standardised values are of order 1, where float's 24-bit mantissa loses nothing the tolerance
-// of the solver would notice.
-struct FloatRows {
-  size_t rows = 0;
-  size_t cols = 0;
-  std::vector<float> values;
-  [[nodiscard]] const float* row(size_t i) const { return values.data() + i * cols; }
-  float* row(size_t i) { return values.data() + i * cols; }
-};
+// Standardised training rows as float32: what the solver reads. Four bytes a value (liblinear's
+// sparse nodes take sixteen, and the solver's passes are bound by memory traffic); standardised
+// values are of order 1, where float's 24-bit mantissa loses nothing the tolerance of the solver
+// would notice.
+using FloatRows = Rows<float>;
 
 struct LinearModel {
   std::vector<double> weights;
@@ -107,5 +106,8 @@ Result<LinearModel> train_linear_svm_libsvm(const Matrix& x, const std::vector<i
 // Class weights inversely proportional to class frequency: n / (2 n_class), as scikit-learn's
 // class_weight="balanced".
 SvmSettings balanced_settings(const std::vector<int>& labels, double c);
+
+// The error every solver gives when `labels` lack a class; nullopt when both are there.
+std::optional<Error> missing_class(const std::vector<int>& labels);
 
 }  // namespace residue
