@@ -81,7 +81,7 @@ std::optional<Error> missing_class(const std::vector<int>& labels) {
 namespace {
 
 // w . x in double over a float row. Eight partial sums, added in a fixed order at the end: the
-// compiler vectorises them, and the AVX2 and baseline versions give the same bits.
+// compiler vectorises them, and the AVX-512, AVX2 and baseline versions give the same bits.
 RESIDUE_WIDE_VECTOR_CLONES double dot_row(const double* w, const float* x, size_t n) {
   std::array<double, 8> s{};
   size_t j = 0;
@@ -195,11 +195,11 @@ Result<LinearModel> solve_linear_svm(const FloatRows& z, const std::vector<int>&
   }
 
   if (report != nullptr) {
-    double half_norm = w_bias * w_bias;
-    for (double v : w) half_norm += v * v;
+    double squared_norm = w_bias * w_bias;
+    for (double v : w) squared_norm += v * v;
     report->passes = pass;
     report->converged = converged;
-    report->dual_objective = 0.5 * half_norm - std::accumulate(alpha.begin(), alpha.end(), 0.0);
+    report->dual_objective = 0.5 * squared_norm - std::accumulate(alpha.begin(), alpha.end(), 0.0);
   }
   LinearModel out;
   out.weights = std::move(w);
