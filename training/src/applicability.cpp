@@ -135,19 +135,22 @@ size_t trials_needed(double target, double confidence) {
 
 std::pair<double, FprPromise> promised_threshold(const std::vector<double>& p, const std::vector<int>& labels,
                                                  const std::vector<int>& groups, double target,
-                                                 double confidence) {
+                                                 double confidence, const std::vector<bool>& guarded) {
+  // Every camera image and group is in the denominators; only unguarded ones can be flagged.
   std::vector<size_t> camera;
   std::set<int> camera_groups;
+  size_t camera_images = 0;
   for (size_t i = 0; i < p.size(); ++i) {
     if (labels[i] == 0) {
-      camera.push_back(i);
+      ++camera_images;
       camera_groups.insert(groups[i]);
+      if (guarded.empty() || !guarded[i]) camera.push_back(i);
     }
   }
   std::sort(camera.begin(), camera.end(), [&](size_t a, size_t b) { return p[a] > p[b]; });
   FprPromise promise;
   promise.confidence = confidence;
-  promise.camera_images = camera.size();
+  promise.camera_images = camera_images;
   promise.camera_groups = camera_groups.size();
   auto bound = [&](size_t k_images, size_t k_groups) {
     return std::max(clopper_pearson_upper(k_images, promise.camera_images, confidence),

@@ -40,9 +40,30 @@ std::string promise_text(const Thresholds& t) {
   if (p.met)
     return "camera false-positive rate at most " + percent(p.bound) + " with " + conf + " confidence, " +
            from;
-  return "the target of " + percent(t.target_fpr) + " cannot be promised " + from + ": at most " +
-         percent(p.bound) + " with " + conf + " confidence; " + std::to_string(p.groups_needed) +
-         " more independent camera groups (none scored as generated) are needed";
+  // Unmet: the threshold already sits where nothing is flagged, so the bound is the tightest these
+  // images support. Say that, what the target needs, and how to promise what is supported.
+  char threshold[32];
+  std::snprintf(threshold, sizeof threshold, "%.4f", t.likely_generated);
+  char supported[32];
+  std::snprintf(supported, sizeof supported, "%.3g", std::ceil(p.bound * 1000.0) / 1000.0);
+  return "the target of " + percent(t.target_fpr) + " cannot be promised " + from +
+         ". What they support: at most " + percent(p.bound) + " with " + conf +
+         " confidence, with likely-generated at p >= " + threshold + ". " + std::to_string(p.groups_needed) +
+         " more independent camera groups (none scored as generated) are needed for " +
+         percent(t.target_fpr) + "; or set --target-fpr " + supported +
+         " to promise what is supported (the target is never lowered silently)";
+}
+
+void apply_calibration(Model& model, const Calibrated& c, double target_fpr, double generated_miss) {
+  model.thresholds.target_fpr = target_fpr;
+  model.thresholds.generated_miss = generated_miss;
+  model.thresholds.likely_generated = c.likely_generated;
+  model.thresholds.promise = c.promise;
+  if (c.likely_camera) model.thresholds.likely_camera = *c.likely_camera;
+  model.thresholds.likely_camera =
+      std::min(model.thresholds.likely_camera, std::min(1.0, c.likely_generated));
+  model.calibration_set = c.record;
+  model.camera_tail = c.tail;
 }
 
 double pooled_margin(const std::vector<double>& window_margins, const std::string& pooling,
@@ -169,6 +190,8 @@ nlohmann::ordered_json model_to_json(const Model& m) {
   j["provenance"] = m.provenance;
   if (m.reference) j["training_reference"] = reference_to_json(*m.reference);
   if (m.applicability) j["applicability"] = applicability_to_json(*m.applicability);
+  if (m.calibration_set) j["calibration_set"] = calibration_record_to_json(*m.calibration_set);
+  if (m.camera_tail) j["camera_tail"] = camera_tail_to_json(*m.camera_tail);
   return j;
 }
 
@@ -190,7 +213,12 @@ bool counts_are_integers(const nlohmann::json& j, const std::string& key) {
                                                 "lossy_webp",
                                                 "screenshot_like",
                                                 "double_jpeg",
-                                                "format_version"};
+                                                "format_version",
+                                                "groups",
+                                                "camera_guarded",
+                                                "generated_images",
+                                                "copies",
+                                                "unreadable"};
   if (j.is_object()) {
     for (const auto& [k, v] : j.items()) {
       if (!counts_are_integers(v, k)) return false;
@@ -285,6 +313,8 @@ Result<Model> model_from_json(const nlohmann::json& j) {
         }
       }
     }
+    if (j.contains("calibration_set")) m.calibration_set = calibration_record_from_json(j["calibration_set"]);
+    if (j.contains("camera_tail")) m.camera_tail = camera_tail_from_json(j["camera_tail"]);
     if (m.scaler.mean.size() != d || m.scaler.scale.size() != d || m.linear.weights.size() != d) {
       return make_error(ErrorCode::kCorrupt, "model arrays do not match its feature list");
     }

@@ -253,6 +253,28 @@ std::optional<Error> cross_validate(const Instances& instances, const std::vecto
   return std::nullopt;
 }
 
+// The out-of-fold scores of every instance as calibration images (copies after the n images).
+std::vector<CalibrationImage> out_of_fold_calibration(const Instances& instances,
+                                                      const std::vector<double>& p,
+                                                      const std::vector<double>& margins,
+                                                      const std::vector<int>& labels,
+                                                      const std::vector<int>& groups, size_t n) {
+  std::vector<CalibrationImage> images(instances.size());
+  for (size_t i = 0; i < instances.size(); ++i) {
+    CalibrationImage& im = images[i];
+    im.p = p[i];
+    im.margin = margins[i];
+    im.label = labels[i];
+    im.group = groups[i];
+    im.copy = i >= n;
+    im.sha256 = instances[i]->sha256;
+    im.path = instances[i]->file.path;
+  }
+  return images;
+}
+
+}  // namespace
+
 std::string utc_now() {
   const std::time_t t = std::time(nullptr);
   std::tm tm{};
@@ -261,8 +283,6 @@ std::string utc_now() {
   std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm);
   return buf;
 }
-
-}  // namespace
 
 std::string training_file_key(const std::string& sha256) { return sha256.substr(0, 16); }
 
@@ -435,21 +455,16 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
                           probabilities_all.begin() + static_cast<std::ptrdiff_t>(n));
   model.training_prior = static_cast<double>(positives) / static_cast<double>(items.size());
 
-  std::vector<double> generated_p;
-  for (size_t i = 0; i < instances.size(); ++i) {
-    if (labels_all[i] == 1) generated_p.push_back(probabilities_all[i]);
-  }
-  model.thresholds.target_fpr = settings.target_fpr;
-  model.thresholds.generated_miss = settings.generated_miss;
-  const auto [threshold, promise] = promised_threshold(probabilities_all, labels_all, groups_all,
-                                                       settings.target_fpr, settings.fpr_confidence);
-  model.thresholds.likely_generated = threshold;
-  model.thresholds.promise = promise;
-  std::sort(generated_p.begin(), generated_p.end());
-  const auto miss =
-      static_cast<size_t>(std::floor(settings.generated_miss * static_cast<double>(generated_p.size())));
-  model.thresholds.likely_camera = std::min(generated_p[std::min(miss, generated_p.size() - 1)],
-                                            std::min(1.0, model.thresholds.likely_generated));
+  // Thresholds and camera tail through the same calibration as held-out camera photos
+  // (conformal.hpp), here on the out-of-fold scores with no guard applied; `calibrate` and
+  // `train --calibration` replace them.
+  const std::vector<CalibrationImage> oof =
+      out_of_fold_calibration(instances, probabilities_all, margins_all, labels_all, groups_all, n);
+  apply_calibration(
+      model,
+      calibrate_thresholds(oof, {settings.target_fpr, settings.fpr_confidence, settings.generated_miss},
+                           "out-of-fold"),
+      settings.target_fpr, settings.generated_miss);
 
   std::vector<std::string> generators;
   generators.reserve(items.size());
@@ -475,6 +490,7 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
     model.families.push_back(feature_families()[c]);
   }
   model.created = utc_now();
+  if (model.calibration_set) model.calibration_set->created = model.created;
 
   nlohmann::ordered_json counts = {{"camera", items.size() - positives}, {"generated", positives}};
   nlohmann::ordered_json per_generator = nlohmann::ordered_json::object();

@@ -59,10 +59,11 @@ struct FprPromise {
 // The lowest likely-generated threshold whose promise holds (bound <= target), from out-of-fold
 // probabilities `p`, labels (0 camera, 1 generated) and groups: camera scores are flagged from the
 // top, one more at a time (ties together). When even none flagged cannot keep the promise, the
-// threshold lies just above the highest camera score and `met` is false.
+// threshold lies just above the highest camera score and `met` is false. With `guarded` (one per
+// image), guarded camera images count in the denominators but are never flagged (conformal.hpp).
 std::pair<double, FprPromise> promised_threshold(const std::vector<double>& p, const std::vector<int>& labels,
                                                  const std::vector<int>& groups, double target,
-                                                 double confidence);
+                                                 double confidence, const std::vector<bool>& guarded = {});
 
 // --- the PPCA reference of one family ---
 struct FamilyReference {

@@ -19,6 +19,7 @@
 #include "residue/features/extract.hpp"
 #include "residue/training/applicability.hpp"
 #include "residue/training/calibration.hpp"
+#include "residue/training/conformal.hpp"
 #include "residue/training/drift.hpp"
 #include "residue/training/linear.hpp"
 
@@ -58,7 +59,16 @@ struct Model {
   nlohmann::ordered_json provenance;           // counts, audit warnings, CV metrics, settings, lineage
   std::optional<TrainingReference> reference;  // for drift; absent in models from before it existed
   std::optional<Applicability> applicability;  // absent in models from before it existed
+  // What the thresholds were set on, and the calibration camera scores behind every record's
+  // camera tail (conformal.hpp); absent in models from before calibration was recorded.
+  std::optional<CalibrationRecord> calibration_set;
+  std::optional<CameraTail> camera_tail;
 };
+
+// Sets the model's thresholds, promise, calibration record and camera tail from `calibrated`
+// (the likely-camera threshold only when generated images were given; it never exceeds the
+// likely-generated one).
+void apply_calibration(Model& model, const Calibrated& calibrated, double target_fpr, double generated_miss);
 
 struct Score {
   double margin = 0.0;

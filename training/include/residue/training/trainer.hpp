@@ -75,6 +75,9 @@ struct TrainOutcome {
 nlohmann::ordered_json settings_to_json(const TrainSettings& settings);
 TrainSettings settings_from_model(const Model& model);
 
+// The time now, UTC, ISO 8601 ("2026-12-04T22:37:07Z").
+std::string utc_now();
+
 // How a model's provenance lists a training file ("training_files"): the first 16 hex digits of
 // its SHA-256 (64 bits; a chance collision among 10^7 files is about 3 in a million).
 std::string training_file_key(const std::string& sha256);
