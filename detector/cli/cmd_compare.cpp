@@ -5,6 +5,7 @@
 #include <optional>
 #include <set>
 
+#include "calibration_run.hpp"
 #include "commands.hpp"
 #include "dataset_options.hpp"
 #include "residue/detector/pages/comparison_page.hpp"
@@ -111,10 +112,17 @@ int run_compare(const CompareArgs& args) {
     j["data"] = args.data.root;
     j["noise_margin"]["grouped_by"] = args.group_by;
     j["notes"] = notes;
+    for (const auto& [key, m] : {std::pair{"old", &*old_model}, std::pair{"new", &*new_model}}) {
+      j["calibration"][key] = m->calibration_set
+                                  ? nlohmann::ordered_json(calibration_record_to_json(*m->calibration_set))
+                                  : nlohmann::ordered_json(nullptr);
+      j["calibration"][key]["promise"] = promise_text(m->thresholds);
+    }
     j["advisory"] = kAdvisoryNotice;
     std::cout << j.dump(2) << "\n";
   } else {
     std::cout << comparison_to_text(c);
+    std::cout << "\nOLD " << calibration_summary(*old_model) << "NEW " << calibration_summary(*new_model);
     for (const auto& n : notes) std::cout << "Note: " << n << "\n";
     std::cout << "\n" << kAdvisoryNotice << "\n";
   }

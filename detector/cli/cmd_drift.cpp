@@ -7,6 +7,7 @@
 #include <optional>
 #include <set>
 
+#include "calibration_run.hpp"
 #include "commands.hpp"
 #include "residue/detector/scoring/record.hpp"
 #include "residue/training/drift.hpp"
@@ -130,12 +131,16 @@ int run_drift(const DriftArgs& args) {
     j["prior_source"] = prior_source;
     j["records_left_out"] = {
         {"errors", batch.errors}, {"other_model", batch.other_model}, {"malformed", batch.malformed}};
+    j["calibration"] = model->calibration_set
+                           ? nlohmann::ordered_json(calibration_record_to_json(*model->calibration_set))
+                           : nlohmann::ordered_json(nullptr);
     j["advisory"] = kAdvisoryNotice;
     std::cout << j.dump(2) << "\n";
   } else {
     std::cout << "Model " << model->id << "; error records left out: " << batch.errors << "; base rate from "
               << prior_source << ".\n"
               << drift_to_text(report) << "\n"
+              << calibration_summary(*model) << "\n"
               << kAdvisoryNotice << "\n";
   }
   return report.verdict == "retrain" ? static_cast<int>(ExitCode::kCheckFailed) : 0;

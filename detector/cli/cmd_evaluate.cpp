@@ -1,5 +1,7 @@
 // `residue evaluate MODEL ROOT`: metrics of a model on labelled folders it did not see.
 #include <algorithm>
+#include <cstdio>
+#include <map>
 #include <iostream>
 #include <memory>
 #include <optional>
@@ -56,8 +58,12 @@ int run_evaluate(const EvaluateArgs& args) {
   std::vector<double> p;
   std::vector<int> labels;
   std::vector<std::string> generators;
+  // Bands as a scan gives them (the guards see each file's processing evidence), per class.
+  std::map<std::string, std::map<std::string, size_t>> bands;
   for (const auto& item : prepared->report.items) {
-    p.push_back(score(*model, item.features, args.prior).p_generated);
+    const Score s = score(*model, item.features, args.prior, &item.facts.processing);
+    ++bands[item.file.label == Label::kGenerated ? "generated" : "camera"][s.band];
+    p.push_back(s.p_generated);
     labels.push_back(item.file.label == Label::kGenerated ? 1 : 0);
     generators.push_back(item.file.generator);
   }
@@ -73,6 +79,7 @@ int run_evaluate(const EvaluateArgs& args) {
     nlohmann::ordered_json j = {{"model", model->id}, {"data", args.data.root}};
     j["metrics"] = report_to_json(report);
     j["threshold_promise"] = promise_text(model->thresholds);
+    j["bands"] = bands;
     if (args.processing) j["processing"] = processing_rows_to_json(processing);
     j["advisory"] = kAdvisoryNotice;
     std::cout << j.dump(2) << "\n";
@@ -80,7 +87,14 @@ int run_evaluate(const EvaluateArgs& args) {
     std::cout << "Model " << model->id << " on " << args.data.root << "\n"
               << report_to_text(report) << "\n"
               << "Likely-generated threshold " << model->thresholds.likely_generated << ": "
-              << promise_text(model->thresholds) << " (training data, out of fold).\n";
+              << promise_text(model->thresholds) << ".\n";
+    for (const char* cls : {"camera", "generated"}) {
+      auto& b = bands[cls];
+      const size_t total = b["likely-generated"] + b["inconclusive"] + b["likely-camera"];
+      if (total == 0) continue;
+      std::printf("Bands as scanned, %s images (%zu): %zu likely-generated, %zu inconclusive, %zu likely-camera.\n",
+                  cls, total, b["likely-generated"], b["inconclusive"], b["likely-camera"]);
+    }
     if (args.processing) {
       std::cout << "\nEveryday processing (each image processed, then scanned as an upload would be):\n"
                 << processing_rows_to_text(processing)

@@ -35,8 +35,25 @@ struct ScanArgs {
   std::vector<std::string> exclude;
   std::string resume;
   std::string shard;
+  std::string order = "input";
   ScanSettings settings;
 };
+
+// --order camera-tail: rarest among calibration camera photos first (smallest camera tail p-value,
+// then highest P(generated)); records without a tail (errors, old models) last, in input order.
+void sort_by_camera_tail(std::vector<nlohmann::ordered_json>& records) {
+  auto p_value = [](const nlohmann::ordered_json& r) {
+    return r.contains("camera_tail") && r["camera_tail"].is_object()
+               ? r["camera_tail"]["p_value"].get<double>()
+               : 2.0;
+  };
+  auto p = [](const nlohmann::ordered_json& r) {
+    return r.contains("p_generated") ? r["p_generated"].get<double>() : -1.0;
+  };
+  std::stable_sort(records.begin(), records.end(), [&](const auto& a, const auto& b) {
+    return p_value(a) != p_value(b) ? p_value(a) < p_value(b) : p(a) > p(b);
+  });
+}
 
 bool matches_any(const std::string& path, const std::vector<std::string>& patterns) {
   return std::any_of(patterns.begin(), patterns.end(),
@@ -93,9 +110,16 @@ std::string csv_line(const nlohmann::ordered_json& r) {
     error_code = r["error"]["code"];
     error_message = r["error"]["message"];
   }
+  std::string tail = ",,,";
+  if (r.contains("camera_tail") && r["camera_tail"].is_object()) {
+    const auto& t = r["camera_tail"];
+    tail = record_line(t["camera_photos_at_least"]) + "," + record_line(t["camera_photos"]) + "," +
+           record_line(t["p_value"]) + "," + record_line(t["upper_bound"]);
+  }
   return csv_field(str("path")) + "," + str("sha256") + "," + str("format") + "," + str("width") + "," +
          str("height") + "," + str("p_generated") + "," + str("band") + "," + str("margin") + "," +
-         error_code + "," + csv_field(valid_utf8(error_message)) + "," + str("path_bytes") + "\n";
+         error_code + "," + csv_field(valid_utf8(error_message)) + "," + str("path_bytes") + "," + tail +
+         "\n";
 }
 
 std::string table_line(const nlohmann::ordered_json& r) {
@@ -118,8 +142,14 @@ std::string table_line(const nlohmann::ordered_json& r) {
         r["declared"].is_null()
             ? ""
             : (r["declared"]["declares_generated"].get<bool>() ? "declares generated" : "");
-    std::snprintf(line, sizeof line, "%s  %6.3f  %-16s %s\n", shown.c_str(), r["p_generated"].get<double>(),
-                  r["band"].get<std::string>().c_str(), declared.c_str());
+    std::string tail = "-";
+    if (r.contains("camera_tail") && r["camera_tail"].is_object()) {
+      tail = std::to_string(r["camera_tail"]["camera_photos_at_least"].get<size_t>()) + " of " +
+             std::to_string(r["camera_tail"]["camera_photos"].get<size_t>()) + " camera";
+    }
+    std::snprintf(line, sizeof line, "%s  %6.3f  %-16s %-18s %s\n", shown.c_str(),
+                  r["p_generated"].get<double>(), r["band"].get<std::string>().c_str(), tail.c_str(),
+                  declared.c_str());
   }
   return line;
 }
@@ -153,6 +183,13 @@ int run_scan(ScanArgs& args) {
     std::cerr << "residue scan: --resume reads and appends JSON lines; use --format jsonl\n";
     return static_cast<int>(ExitCode::kUsage);
   }
+  const bool sorted = args.order == "camera-tail";
+  if (sorted && !args.resume.empty()) {
+    std::cerr << "residue scan: --order camera-tail writes every record at the end, which --resume cannot "
+                 "carry on from; scan with --resume first, then sort the records (residue report orders them "
+                 "too)\n";
+    return static_cast<int>(ExitCode::kUsage);
+  }
   if (!args.resume.empty()) {
     auto loaded = load_resume(args.resume);
     if (!loaded) {
@@ -173,7 +210,8 @@ int run_scan(ScanArgs& args) {
     out = &file;
   }
   if (args.format == "csv" && args.resume.empty()) {
-    *out << "path,sha256,format,width,height,p_generated,band,margin,error_code,error_message,path_bytes\n";
+    *out << "path,sha256,format,width,height,p_generated,band,margin,error_code,error_message,path_bytes,"
+            "camera_photos_at_least,camera_photos,camera_tail_p_value,camera_tail_upper_bound\n";
   }
   size_t failed = 0;
   size_t written = 0;
@@ -188,6 +226,25 @@ int run_scan(ScanArgs& args) {
   }
   const Progress bar("images");
   std::map<std::string, size_t> bands;
+  std::vector<nlohmann::ordered_json> held;  // --order camera-tail: written at the end
+  auto write = [&](const nlohmann::ordered_json& r) {
+    errno = 0;  // so that a failed write below leaves its reason
+    if (args.format == "csv") {
+      *out << csv_line(r);
+    } else if (args.format == "table") {
+      *out << table_line(r);
+    } else {
+      *out << record_line(r) << "\n";
+    }
+    out->flush();  // a killed scan loses at most the line being written
+    if (!*out) {
+      write_errno = errno;
+      write_failed = true;
+      return false;
+    }
+    ++written;
+    return true;
+  };
   ordered_parallel<nlohmann::ordered_json>(
       paths.size(), args.jobs,
       [&](size_t i) -> nlohmann::ordered_json {
@@ -215,24 +272,20 @@ int run_scan(ScanArgs& args) {
           } else {
             ++bands[r["band"].get<std::string>()];
           }
-          errno = 0;  // so that a failed write below leaves its reason
-          if (args.format == "csv") {
-            *out << csv_line(r);
-          } else if (args.format == "table") {
-            *out << table_line(r);
-          } else {
-            *out << record_line(r) << "\n";
-          }
-          out->flush();  // a killed scan loses at most the line being written
-          if (!*out) {
-            write_errno = errno;
-            write_failed = true;
+          if (sorted) {
+            held.push_back(std::move(r));
+          } else if (!write(r)) {
             return;
           }
-          ++written;
         }
         bar.update(i + 1, paths.size());
       });
+  if (sorted) {
+    sort_by_camera_tail(held);
+    for (const auto& r : held) {
+      if (!write(r)) break;
+    }
+  }
   if (args.format == "table" && !write_failed) {
     *out << "\n" << kAdvisoryNotice << "\n";
   }
@@ -273,6 +326,11 @@ void add_scan_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--resume", args->resume,
                   "append to this earlier output, skipping inputs it already holds (by content hash)");
   cmd->add_option("--shard", args->shard, "K/N: take only the K-th of N deterministic slices of the inputs");
+  cmd->add_option("--order", args->order,
+                  "input (records as inputs finish, in input order) or camera-tail (rarest among the model's "
+                  "calibration camera photos first; all records are written at the end)")
+      ->check(CLI::IsMember({"input", "camera-tail"}))
+      ->capture_default_str();
   cmd->add_option("--prior", args->settings.prior,
                   "deployment share of generated images (shifts P; docs/training.md)")
       ->check(CLI::Range(0.0001, 0.9999));

@@ -5,6 +5,7 @@
 #include <memory>
 #include <optional>
 
+#include "calibration_run.hpp"
 #include "commands.hpp"
 #include "dataset_options.hpp"
 #include "residue/detector/scoring/record.hpp"
@@ -25,7 +26,8 @@ struct TrainArgs {
   std::string instances = "image";
   std::string from;  // parent model whose settings are reused
   bool keep_c = false;
-  std::vector<std::string> given;  // options set on the command line (they win over --from)
+  std::vector<std::string> calibration;  // camera photos (and generated images) held out for the thresholds
+  std::vector<std::string> given;        // options set on the command line (they win over --from)
 };
 
 struct AuditArgs {
@@ -141,6 +143,17 @@ int run_train(TrainArgs& args) {
                                      {"augmented_copies", prepared->report.copies.size()},
                                      {"copies_extracted", prepared->report.copies_extracted},
                                      {"copies_failed", prepared->report.copies_failed}};
+  if (!args.calibration.empty()) {
+    CalibrationInputs in;
+    in.roots = args.calibration;
+    in.data = args.data;
+    in.data.augment = kCalibrationAugment;
+    in.group_by = settings->group_by;
+    in.settings = {settings->target_fpr, settings->fpr_confidence, settings->generated_miss};
+    std::cout << "Calibration on held-out images (" << args.calibration.size() << " root"
+              << (args.calibration.size() == 1 ? "" : "s") << "):\n";
+    if (!calibrate_from_roots(model, in, "train")) return static_cast<int>(ExitCode::kFailure);
+  }
   if (parent) {
     model.provenance["lineage"] = lineage_of(*parent, prepared->report.items);
     print_lineage(model.provenance["lineage"]);
@@ -167,16 +180,13 @@ int run_train(TrainArgs& args) {
   }
   std::cout << "\nOut-of-fold metrics (images scored by models that never saw them or their group):\n"
             << report_to_text(cv.report);
-  std::printf(
-      "\nCalibration: Platt sigmoid A = %.4f, B = %.4f; training base rate %.3f generated.\n"
-      "Bands: likely-generated at P >= %.3f, likely-camera below %.3f.\n",
-      model.calibration.a, model.calibration.b, model.training_prior, model.thresholds.likely_generated,
-      model.thresholds.likely_camera);
-  std::cout << "Promise of likely-generated: " << promise_text(model.thresholds) << ".\n";
+  std::printf("\nProbabilities: Platt sigmoid A = %.4f, B = %.4f; training base rate %.3f generated.\n",
+              model.calibration.a, model.calibration.b, model.training_prior);
+  std::cout << calibration_summary(model);
   if (model.thresholds.promise && !model.thresholds.promise->met) {
     std::cout
-        << "  Until then the threshold sits above every camera image's out-of-fold score, and the bound "
-           "above is all that can be promised.\n";
+        << "  Camera photos the model never trained on raise what can be promised cheaply: residue calibrate "
+           "MODEL ROOT -o NEW (docs/training.md, \"Calibration\").\n";
   }
   if (const auto& a = model.applicability) {
     size_t resampled = 0;
@@ -248,6 +258,9 @@ void add_train_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--from", args->from,
                   "retrain from this model: reuse its settings (options given here win) and record it as "
                   "the parent, with what was added");
+  cmd->add_option("--calibration", args->calibration,
+                  "set the thresholds and camera tail on these held-out folders or manifests (camera photos "
+                  "the training never sees; as `residue calibrate`) instead of the out-of-fold scores");
   cmd->add_flag("--keep-c", args->keep_c,
                 "with --from: keep the parent's chosen C instead of searching the grid again (faster)");
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");

@@ -10,6 +10,7 @@ void add_features_command(CLI::App& app, int& exit_code);
 void add_bench_command(CLI::App& app, int& exit_code);
 void add_demo_command(CLI::App& app, int& exit_code);
 void add_train_command(CLI::App& app, int& exit_code);
+void add_calibrate_command(CLI::App& app, int& exit_code);
 void add_audit_command(CLI::App& app, int& exit_code);
 void add_evaluate_command(CLI::App& app, int& exit_code);
 void add_compare_command(CLI::App& app, int& exit_code);

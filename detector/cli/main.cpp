@@ -24,6 +24,7 @@ int main(int argc, char** argv) try {
   app.set_version_flag("--version", "residue 0.1.0");
   int exit_code = 0;
   residue::cli::add_train_command(app, exit_code);
+  residue::cli::add_calibrate_command(app, exit_code);
   residue::cli::add_scan_command(app, exit_code);
   residue::cli::add_report_command(app, exit_code);
   residue::cli::add_explain_command(app, exit_code);

@@ -146,6 +146,40 @@ std::string why_inconclusive(const std::vector<nlohmann::json>& records) {
   return h + "</table>";
 }
 
+// The records whose scores are rarest among calibration camera photos first (smallest camera tail
+// p-value; ties by P(generated)): the order a review queue should take, whether or not the
+// model's threshold can promise anything.
+std::string review_first(const std::vector<const nlohmann::json*>& scored_records, int top) {
+  std::vector<const nlohmann::json*> tailed;
+  for (const auto* r : scored_records) {
+    if (r->contains("camera_tail") && (*r)["camera_tail"].is_object()) tailed.push_back(r);
+  }
+  std::string h = "<h2>Review first: rarest among camera photos</h2>";
+  if (tailed.empty()) {
+    return h +
+           "<p>No record carries a camera tail (the model records no calibration camera scores: retrain, or "
+           "run <code>residue calibrate</code>).</p>";
+  }
+  std::stable_sort(tailed.begin(), tailed.end(), [](const nlohmann::json* a, const nlohmann::json* b) {
+    const double pa = (*a)["camera_tail"]["p_value"].get<double>();
+    const double pb = (*b)["camera_tail"]["p_value"].get<double>();
+    return pa != pb ? pa < pb : (*a)["p_generated"].get<double>() > (*b)["p_generated"].get<double>();
+  });
+  h += "<p>How many of the model's calibration camera photos scored at least as high as each file. A file "
+       "that few camera photos match is worth a look first; this order holds even where no threshold can be "
+       "promised. It is not a finding about the file.</p><table><tr><th>#</th><th>file</th><th>among camera "
+       "photos</th><th>p-value</th><th>P(generated)</th><th>band</th></tr>";
+  for (size_t i = 0; i < tailed.size() && static_cast<int>(i) < top; ++i) {
+    const auto& r = *tailed[i];
+    const auto& t = r["camera_tail"];
+    h += "<tr><td class='n'>" + std::to_string(i + 1) + "</td><td><code>" + html_escape(r["path"]) +
+         "</code></td><td>" + html_escape(t.value("text", std::string())) + "</td><td class='n'>" +
+         fmt("%.4f", t["p_value"].get<double>()) + "</td><td class='n'>" +
+         fmt("%.3f", r["p_generated"].get<double>()) + "</td><td>" + html_escape(r["band"]) + "</td></tr>";
+  }
+  return h + "</table>";
+}
+
 }  // namespace
 
 std::string report_page(const ReportInput& in) {
@@ -225,6 +259,7 @@ std::string report_page(const ReportInput& in) {
   h += "<h2>Score distribution</h2>" + histogram_svg(in.records);
 
   h += why_inconclusive(in.records);
+  h += review_first(ranked, in.top);
   h += "<h2>Highest scores</h2><table><tr><th>#</th><th>file</th><th>P(generated)</th><th>band</th>"
        "<th>declared</th><th>picture</th><th>residual spectrum (red marks: N/8 grid)</th></tr>";
   for (size_t i = 0; i < ranked.size() && static_cast<int>(i) < in.top; ++i) {
@@ -294,6 +329,18 @@ std::string report_page(const ReportInput& in) {
          fmt("%.3f", in.model->thresholds.likely_generated) + ": " +
          html_escape(promise_text(in.model->thresholds)) + ".</p><pre>" +
          html_escape(p.value("counts", nlohmann::ordered_json::object()).dump(2)) + "</pre>";
+    if (const auto& c = in.model->calibration_set) {
+      h += "<p>Thresholds set on " +
+           std::string(c->source == "held-out" ? "camera photos the model never trained on"
+                                               : "the training's out-of-fold scores") +
+           ": " + std::to_string(c->camera_images) + " camera photos in " + std::to_string(c->camera_groups) +
+           " groups (" + std::to_string(c->camera_guarded) + " made inconclusive by a guard), " +
+           std::to_string(c->generated_images) + " generated images, " + std::to_string(c->copies) +
+           " processed copies; " + html_escape(c->created) + ".</p>";
+    } else {
+      h += "<p>The model does not record what its thresholds were set on (trained before residue recorded "
+           "it).</p>";
+    }
     const auto warnings = p.value("audit_warnings", nlohmann::ordered_json::array());
     h += "<p>Training-data warnings: " + std::string(warnings.empty() ? "none." : "") + "</p><ul>";
     for (const auto& w : warnings) h += "<li>" + html_escape(w.get<std::string>()) + "</li>";

@@ -38,6 +38,13 @@ std::string summary_text(const std::string& name, const Json& summary, const Mod
                 summary["thresholds"]["likely_generated"].get<double>(),
                 summary["thresholds"]["likely_camera"].get<double>());
   text += line;
+  if (summary.contains("camera_tail") && summary["camera_tail"].is_object()) {
+    text += "Among camera photos: " + summary["camera_tail"]["text"].get<std::string>() +
+            " (conformal p-value " +
+            std::to_string(summary["camera_tail"]["p_value"].get<double>()).substr(0, 6) + ")\n";
+  } else if (summary.contains("camera_tail_note")) {
+    text += "Among camera photos: unknown; " + summary["camera_tail_note"].get<std::string>() + "\n";
+  }
   if (summary.contains("reasons") && !summary["reasons"].empty()) {
     text += "Why inconclusive:\n";
     for (const auto& reason : summary["reasons"]) text += "  - " + reason.get<std::string>() + "\n";

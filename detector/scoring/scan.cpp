@@ -69,6 +69,16 @@ nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::
                            "recorded one): whether the image is inside its domain is unknown; retrain"}};
   }
   r["reasons"] = s.reasons;
+  // How unusual the score is among calibration camera photos (conformal.hpp): meaningful with any
+  // amount of data, so shown whether or not the threshold's promise is met.
+  if (model.camera_tail) {
+    r["camera_tail"] = tail_to_record(*model.camera_tail, s.margin);
+  } else {
+    r["camera_tail"] = nullptr;
+    r["camera_tail_note"] =
+        "this model records no calibration camera scores (trained before residue recorded them): "
+        "retrain or run residue calibrate to get the camera tail";
+  }
   // Beyond the contract: what a reviewer may want to know about how the score was made.
   r["prior"] = settings.prior ? nlohmann::ordered_json(*settings.prior) : nlohmann::ordered_json(nullptr);
   r["windows"] = {{"size", extraction->layout.size},

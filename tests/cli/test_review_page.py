@@ -152,6 +152,9 @@ def check_shown_score(browser, base, path, what):
         "return Array.from(arguments[0].querySelectorAll('img')).every(i => i.complete && i.naturalWidth > 0);", card)
     check(loaded, f"{what}: every picture decodes in the browser")
     check(card.find_elements(By.CSS_SELECTOR, ".declared"), f"{what}: the declared provenance is shown")
+    tail = scored["camera_tail"]
+    check(tail is not None and tail["text"] in card.text and f"{tail['p_value']:.4f}" in card.text,
+          f"{what}: the camera tail is shown in words, with its p-value")
     if scored["band"] == "inconclusive":
         shown = [li.text for li in card.find_elements(By.CSS_SELECTOR, "ul.reasons li")]
         check(shown == scored["reasons"], f"{what}: the reasons for inconclusive are listed")
