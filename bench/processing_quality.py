@@ -29,8 +29,6 @@ import os
 import subprocess
 import sys
 
-from PIL import Image, ImageFilter
-
 import devset
 
 parser = argparse.ArgumentParser()
@@ -49,46 +47,11 @@ os.makedirs(work, exist_ok=True)
 items = devset.items(dev, os.path.join(work, "set"))
 
 
-def rgb(path):
-    return Image.open(path).convert("RGB")
-
-
-def scaled(im, f, resample):
-    return im.resize((max(1, round(im.width * f)), max(1, round(im.height * f))), resample)
-
-
-def centre_crop(im, f):
-    w, h = max(1, int(im.width * f)), max(1, int(im.height * f))
-    x, y = (im.width - w) // 2, (im.height - h) // 2
-    return im.crop((x, y, x + w, y + h))
-
-
-TRANSFORMS = {
-    "as-published": None,
-    "jpeg-q95": lambda p, out: rgb(p).save(out, "JPEG", quality=95),
-    "jpeg-q75": lambda p, out: rgb(p).save(out, "JPEG", quality=75),
-    "jpeg-q50": lambda p, out: rgb(p).save(out, "JPEG", quality=50),
-    "webp-q80": lambda p, out: rgb(p).save(out, "WEBP", quality=80),
-    "downscale-0.5": lambda p, out: scaled(rgb(p), 0.5, Image.BOX).save(out, "PNG"),
-    "upscale-1.5": lambda p, out: scaled(rgb(p), 1.5, Image.BICUBIC).save(out, "PNG"),
-    "palette-256": lambda p, out: rgb(p).quantize(256).save(out, "PNG"),
-    "sharpen": lambda p, out: rgb(p).filter(ImageFilter.UnsharpMask(radius=1, percent=80, threshold=0)).save(out, "PNG"),
-    "crop-centre-0.6": lambda p, out: centre_crop(rgb(p), 0.6).save(out, "PNG"),
-    "screenshot-0.8": lambda p, out: scaled(rgb(p), 0.8, Image.BILINEAR).save(out, "PNG"),
-}
-EXT = {"jpeg-q95": "jpg", "jpeg-q75": "jpg", "jpeg-q50": "jpg", "webp-q80": "webp"}
+TRANSFORMS = devset.TRANSFORMS
 
 
 def processed(path, name):
-    if TRANSFORMS[name] is None:
-        return path
-    key = hashlib.sha256(path.encode()).hexdigest()[:16]
-    out = os.path.join(work, "processed", name, key + "." + EXT.get(name, "png"))
-    if not os.path.exists(out):
-        os.makedirs(os.path.dirname(out), exist_ok=True)
-        TRANSFORMS[name](path, out + ".tmp")
-        os.replace(out + ".tmp", out)
-    return out
+    return devset.processed(path, name, work)
 
 
 def fold_of(group):
