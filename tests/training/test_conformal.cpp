@@ -11,6 +11,7 @@
 #include "residue/training/calibrate.hpp"
 #include "residue/training/conformal.hpp"
 #include "residue/training/trainer.hpp"
+#include "simulated_items.hpp"
 #include "support.hpp"
 
 using namespace residue;
@@ -36,7 +37,7 @@ std::vector<CalibrationImage> simulated(size_t camera, size_t generated, unsigne
     im.group = group;
     im.guarded = u(rng) < guarded_share;
     im.sha256 = std::to_string(i);
-    im.path = "image-" + std::to_string(i);
+    im.path = std::to_string(i) + ".png";
     out.push_back(im);
   }
   return out;
@@ -213,21 +214,7 @@ TEST_CASE("calibrated threshold: too few groups say what is supported and what i
 TEST_CASE(
     "a model recalibrated on its own out-of-fold scores gets the thresholds and tail training gave it") {
   // Simulated cached vectors (this test's own): 150 images, one in three generated.
-  std::mt19937 rng(31);
-  std::normal_distribution<double> noise(0.0, 1.0);
-  const size_t d = feature_names().size();
-  std::vector<PreparedItem> items(150);
-  for (size_t i = 0; i < items.size(); ++i) {
-    PreparedItem& it = items[i];
-    const bool generated = i % 3 == 0;
-    it.file.label = generated ? Label::kGenerated : Label::kCamera;
-    it.file.generator = generated ? "simulated" : "camera";
-    it.file.path = "f" + std::to_string(i);
-    it.sha256 = std::to_string(i);
-    it.facts.dhash = rng();
-    it.features.values.resize(d);
-    for (size_t j = 0; j < d; ++j) it.features.values[j] = noise(rng) + (generated && j % 7 == 0 ? 0.4 : 0.0);
-  }
+  const auto items = test::simulated_items(150, 31, 7, 0.4);
   TrainSettings settings;
   settings.augment = Augment::kNone;
   auto trained = train_model(items, settings, audit_dataset(items, 0));

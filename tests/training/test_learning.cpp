@@ -12,6 +12,7 @@
 #include "residue/training/linear.hpp"
 #include "residue/training/metrics.hpp"
 #include "residue/training/trainer.hpp"
+#include "simulated_items.hpp"
 #include "support.hpp"
 
 using namespace residue;
@@ -227,25 +228,7 @@ TEST_CASE("dual coordinate descent refuses a single class") {
 TEST_CASE("training: the cross-validation folds on two threads give the model of one thread, bit for bit") {
   // Simulated cached vectors (this test's own): 120 images, one in three generated, three window
   // vectors each, window-level learning over the default C grid.
-  std::mt19937 rng(21);
-  std::normal_distribution<double> noise(0.0, 1.0);
-  const size_t d = feature_names().size();
-  std::vector<PreparedItem> items(120);
-  for (size_t i = 0; i < items.size(); ++i) {
-    PreparedItem& it = items[i];
-    const bool generated = i % 3 == 0;
-    it.file.label = generated ? Label::kGenerated : Label::kCamera;
-    it.file.generator = generated ? "simulated" : "camera";
-    it.sha256 = std::to_string(i);
-    it.facts.dhash = rng();
-    it.features.values.resize(d);
-    for (size_t j = 0; j < d; ++j) it.features.values[j] = noise(rng) + (generated && j % 5 == 0 ? 0.5 : 0.0);
-    for (int w = 0; w < 3; ++w) {
-      auto v = it.features.values;
-      for (double& x : v) x += 0.3 * noise(rng);
-      it.features.windows.push_back(std::move(v));
-    }
-  }
+  const auto items = test::simulated_items(120, 21, 5, 0.5, 3);
   const AuditReport audit = audit_dataset(items, 0);
   TrainSettings settings;
   settings.augment = Augment::kNone;

@@ -209,10 +209,10 @@ Calibrated calibrate_thresholds(const std::vector<CalibrationImage>& images,
 
   // Likely-camera: generated images (copies included: a laundered copy is what the band must
   // not take in) that a guard leaves to their score.
-  for (size_t i = 0; i < images.size(); ++i) {
-    if (images[i].label == 1) {
+  for (const auto& im : images) {
+    if (im.label == 1) {
       ++generated;
-      if (!images[i].guarded) generated_unguarded.push_back(images[i].p);
+      if (!im.guarded) generated_unguarded.push_back(im.p);
     }
   }
   if (generated > 0) {

@@ -220,17 +220,16 @@ bool counts_are_integers(const nlohmann::json& j, const std::string& key) {
                                                 "copies",
                                                 "unreadable"};
   if (j.is_object()) {
-    for (const auto& [k, v] : j.items()) {
-      if (!counts_are_integers(v, k)) return false;
-    }
-    return true;
+    const auto members = j.items();
+    return std::all_of(members.begin(), members.end(),
+                       [](const auto& member) { return counts_are_integers(member.value(), member.key()); });
   }
   if (j.is_array()) {
     return std::all_of(j.begin(), j.end(),
                        [&](const nlohmann::json& v) { return counts_are_integers(v, key); });
   }
   const bool bin = !key.empty() && key.find_first_not_of("-0123456789") == std::string::npos;
-  return !((kCounts.count(key) != 0 || bin) && j.is_number_float());
+  return !((kCounts.contains(key) || bin) && j.is_number_float());
 }
 
 }  // namespace

@@ -74,7 +74,7 @@ struct CameraTail {
 };
 
 // "3 of 1,240 camera photos (3 of 900 groups) scored at least this high"
-std::string tail_text(const TailPosition& position);
+std::string tail_text(const TailPosition& t);
 // The record's "camera_tail" object: k, n, groups, p_value, upper bound, source and text.
 nlohmann::ordered_json tail_to_record(const CameraTail& tail, double margin);
 
