@@ -1,8 +1,8 @@
 // `residue evaluate MODEL ROOT`: metrics of a model on labelled folders it did not see.
 #include <algorithm>
 #include <cstdio>
-#include <map>
 #include <iostream>
+#include <map>
 #include <memory>
 #include <optional>
 
@@ -92,8 +92,9 @@ int run_evaluate(const EvaluateArgs& args) {
       auto& b = bands[cls];
       const size_t total = b["likely-generated"] + b["inconclusive"] + b["likely-camera"];
       if (total == 0) continue;
-      std::printf("Bands as scanned, %s images (%zu): %zu likely-generated, %zu inconclusive, %zu likely-camera.\n",
-                  cls, total, b["likely-generated"], b["inconclusive"], b["likely-camera"]);
+      std::printf(
+          "Bands as scanned, %s images (%zu): %zu likely-generated, %zu inconclusive, %zu likely-camera.\n",
+          cls, total, b["likely-generated"], b["inconclusive"], b["likely-camera"]);
     }
     if (args.processing) {
       std::cout << "\nEveryday processing (each image processed, then scanned as an upload would be):\n"
