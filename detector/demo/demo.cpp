@@ -159,8 +159,8 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
     std::getline(in, row);
     while (std::getline(in, row)) truth_of[row.substr(0, row.find(','))] = row.substr(row.find(',') + 1);
   }
-  std::snprintf(line, sizeof line, "   %-14s %-20s %8s  %s\n", "entry", "truth (demo only)", "P(gen.)",
-                "band");
+  std::snprintf(line, sizeof line, "   %-14s %-20s %8s  %-17s %s\n", "entry", "truth (demo only)", "P(gen.)",
+                "band", "camera photos as high");
   log << line;
   const nlohmann::json* top = nullptr;
   for (const auto& r : report.records) {
@@ -169,8 +169,13 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
       std::snprintf(line, sizeof line, "   %-14s %-20s %8s  error: %s\n", name.c_str(),
                     truth_of[name].c_str(), "-", r["error"]["code"].get<std::string>().c_str());
     } else {
-      std::snprintf(line, sizeof line, "   %-14s %-20s %8.3f  %s%s\n", name.c_str(), truth_of[name].c_str(),
-                    r["p_generated"].get<double>(), r["band"].get<std::string>().c_str(),
+      const auto& t = r["camera_tail"];
+      const std::string tail = t.is_object() ? std::to_string(t["camera_photos_at_least"].get<size_t>()) +
+                                                   " of " + std::to_string(t["camera_photos"].get<size_t>())
+                                             : "-";
+      std::snprintf(line, sizeof line, "   %-14s %-20s %8.3f  %-17s %-8s%s\n", name.c_str(),
+                    truth_of[name].c_str(), r["p_generated"].get<double>(),
+                    r["band"].get<std::string>().c_str(), tail.c_str(),
                     r["declared"].is_null() ? "" : "  (metadata declares a camera capture)");
       if (top == nullptr || r["p_generated"].get<double>() > (*top)["p_generated"].get<double>()) top = &r;
     }

@@ -165,16 +165,25 @@ std::string review_first(const std::vector<const nlohmann::json*>& scored_record
     const double pb = (*b)["camera_tail"]["p_value"].get<double>();
     return pa != pb ? pa < pb : (*a)["p_generated"].get<double>() > (*b)["p_generated"].get<double>();
   });
-  h += "<p>How many of the model's calibration camera photos scored at least as high as each file. A file "
-       "that few camera photos match is worth a look first; this order holds even where no threshold can be "
-       "promised. It is not a finding about the file.</p><table><tr><th>#</th><th>file</th><th>among camera "
-       "photos</th><th>p-value</th><th>P(generated)</th><th>band</th></tr>";
-  for (size_t i = 0; i < tailed.size() && static_cast<int>(i) < top; ++i) {
+  const auto& first = (*tailed.front())["camera_tail"];
+  h += "<p>How many of the model's " +
+       html_escape(first.value("source", std::string("calibration camera photos"))) + " (" +
+       std::to_string(first["camera_photos"].get<size_t>()) +
+       ") scored at least as high as each file, rarest first. A file that few camera photos match is worth a "
+       "look first; this order holds even where no threshold can be promised. It is not a finding about the "
+       "file.</p><table><tr><th>#</th><th>file</th><th>camera photos as high</th><th>their groups</th>"
+       "<th>p-value</th><th>share of camera photos, at most (95 "
+       "%)</th><th>P(generated)</th><th>band</th></tr>";
+  for (size_t i = 0; i < tailed.size() && i < static_cast<size_t>(std::max(0, top)); ++i) {
     const auto& r = *tailed[i];
     const auto& t = r["camera_tail"];
     h += "<tr><td class='n'>" + std::to_string(i + 1) + "</td><td><code>" + html_escape(r["path"]) +
-         "</code></td><td>" + html_escape(t.value("text", std::string())) + "</td><td class='n'>" +
+         "</code></td><td class='n'>" + std::to_string(t["camera_photos_at_least"].get<size_t>()) + " of " +
+         std::to_string(t["camera_photos"].get<size_t>()) + "</td><td class='n'>" +
+         std::to_string(t["groups_at_least"].get<size_t>()) + " of " +
+         std::to_string(t["groups"].get<size_t>()) + "</td><td class='n'>" +
          fmt("%.4f", t["p_value"].get<double>()) + "</td><td class='n'>" +
+         fmt("%.1f %%", 100 * t["upper_bound"].get<double>()) + "</td><td class='n'>" +
          fmt("%.3f", r["p_generated"].get<double>()) + "</td><td>" + html_escape(r["band"]) + "</td></tr>";
   }
   return h + "</table>";
@@ -259,7 +268,7 @@ std::string report_page(const ReportInput& in) {
   h += "<h2>Score distribution</h2>" + histogram_svg(in.records);
 
   h += why_inconclusive(in.records);
-  h += review_first(ranked, in.top);
+  h += review_first(ranked, std::min(in.top, 10));
   h += "<h2>Highest scores</h2><table><tr><th>#</th><th>file</th><th>P(generated)</th><th>band</th>"
        "<th>declared</th><th>picture</th><th>residual spectrum (red marks: N/8 grid)</th></tr>";
   for (size_t i = 0; i < ranked.size() && static_cast<int>(i) < in.top; ++i) {

@@ -139,8 +139,12 @@ with tempfile.TemporaryDirectory() as tmp:
     r = run(["report", scan_out, "-o", page])
     with open(page) as f:
         html = f.read()
-    check(r.returncode == 0 and "Review first" in html and "of 40 calibration camera photos" in html,
-          "the report orders files by their camera tail")
+    check(r.returncode == 0 and "Review first" in html and "held-out camera photos (40)" in html,
+          "the report has the review-first table")
+    section = html[html.index("Review first"):]
+    rarest = min(recs1, key=lambda x: (x["camera_tail"]["p_value"], -x["p_generated"]))
+    first_row = section[section.index("<td><code>") + len("<td><code>"):]
+    check(first_row.startswith(rarest["path"]), "its first row is the rarest record")
 
     # A model file from before: no tail, and the record says why.
     old = dict(m)

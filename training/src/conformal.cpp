@@ -91,7 +91,7 @@ std::string tail_text(const TailPosition& t) {
                      thousands(t.groups_at_least) + " of " + thousands(t.groups) +
                      " groups) scored at least this high";
   if (t.images > 0) {
-    text += "; among such camera photos at most " + percent(t.upper_bound) + " score this high (" +
+    text += "; at most " + percent(t.upper_bound) + " of camera photos like them would (" +
             percent(t.confidence) + " confidence)";
   }
   return text;
