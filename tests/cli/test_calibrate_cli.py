@@ -78,6 +78,22 @@ with tempfile.TemporaryDirectory() as tmp:
           and "more independent camera groups" in text, f"an unmet promise says the three things: {text}")
     check("What they support" in r.stdout, "and calibrate prints it")
     check(c["id"] != m["id"], "a recalibrated model has a new id")
+    check(cs["generated_images"] == 20 and cs["likely_camera_calibrated"]
+          and c["thresholds"]["likely_camera"] <= c["thresholds"]["likely_generated"],
+          "generated calibration images set the likely-camera threshold, never above likely-generated")
+
+    # Two roots: a folder and a CSV manifest of ten more camera photos.
+    extra = os.path.join(tmp, "extra")
+    make(extra, 4, 10)
+    manifest = os.path.join(tmp, "extra.csv")
+    with open(manifest, "w") as f:
+        f.write("path,label\n")
+        for name in sorted(os.listdir(os.path.join(extra, "camera"))):
+            f.write(f"{os.path.join(extra, 'camera', name)},camera\n")
+    r = run(["calibrate", model, cal_root, manifest, "-o", os.path.join(tmp, "two.json"), "--augment", "none"] + cache)
+    two = load(os.path.join(tmp, "two.json")) if r.returncode == 0 else {}
+    check(two.get("calibration_set", {}).get("camera_images") == 50 and two["calibration_set"]["copies"] == 0
+          and two["calibration_set"]["roots"] == [cal_root, manifest], f"two roots, no copies: {r.stderr[-300:]}")
 
     # train --calibration does the same at training time: same thresholds and tail.
     both = os.path.join(tmp, "both.json")
