@@ -202,6 +202,7 @@ Calibrated calibrate_thresholds(const std::vector<CalibrationImage>& images,
       promised_threshold(p, labels, groups, settings.target_fpr, settings.confidence, guarded);
   out.likely_generated = threshold;
   out.promise = promise;
+  for (const auto& im : images) out.promise.camera_copies += im.copy && im.label == 0 ? 1 : 0;
   // The tightest promise: nothing flagged, just above the highest unguarded camera score.
   const auto tightest = promised_threshold(p, labels, groups, 0.0, settings.confidence, guarded);
   r.supported_fpr = tightest.second.bound;

@@ -34,8 +34,11 @@ std::string promise_text(const Thresholds& t) {
            " out of fold, without a confidence bound (model trained before bounds were recorded)";
   }
   const FprPromise& p = *t.promise;
-  const std::string from = "from " + std::to_string(p.camera_images) + " camera images in " +
-                           std::to_string(p.camera_groups) + " groups";
+  const std::string photos = p.camera_copies == 0
+                                 ? std::to_string(p.camera_images) + " camera images"
+                                 : std::to_string(p.camera_images - p.camera_copies) + " camera photos (" +
+                                       std::to_string(p.camera_images) + " with their processed copies)";
+  const std::string from = "from " + photos + " in " + std::to_string(p.camera_groups) + " groups";
   const std::string conf = percent(p.confidence);
   if (p.met)
     return "camera false-positive rate at most " + percent(p.bound) + " with " + conf + " confidence, " +
@@ -185,6 +188,7 @@ nlohmann::ordered_json model_to_json(const Model& m) {
                                   {"fpr_upper_bound", p->bound},
                                   {"met", p->met},
                                   {"groups_needed", p->groups_needed},
+                                  {"camera_copies", p->camera_copies},
                                   {"text", promise_text(m.thresholds)}};
   }
   j["provenance"] = m.provenance;
@@ -218,7 +222,8 @@ bool counts_are_integers(const nlohmann::json& j, const std::string& key) {
                                                 "camera_guarded",
                                                 "generated_images",
                                                 "copies",
-                                                "unreadable"};
+                                                "unreadable",
+                                                "camera_copies"};
   if (j.is_object()) {
     const auto members = j.items();
     return std::all_of(members.begin(), members.end(),
@@ -294,7 +299,8 @@ Result<Model> model_from_json(const nlohmann::json& j) {
                                         p.at("false_positive_groups"),
                                         p.at("fpr_upper_bound"),
                                         p.at("met"),
-                                        p.at("groups_needed")};
+                                        p.at("groups_needed"),
+                                        p.value("camera_copies", size_t{0})};
     }
     m.provenance = j.value("provenance", nlohmann::ordered_json::object());
     if (j.contains("training_reference")) {

@@ -54,6 +54,7 @@ struct FprPromise {
   double bound = 1.0;        // the promise: camera FPR at most this, with `confidence`
   bool met = false;          // bound <= target_fpr
   size_t groups_needed = 0;  // camera groups needed to promise target_fpr with none flagged
+  size_t camera_copies = 0;  // of camera_images, processed copies (counted with their photo's group)
 };
 
 // The lowest likely-generated threshold whose promise holds (bound <= target), from out-of-fold
