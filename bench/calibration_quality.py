@@ -213,12 +213,14 @@ if not args.no_processing:
     print("### Test camera photos after everyday processing: share put in likely-generated\n")
     keys = [(s, a) for a in AUGMENTS for s in (200, None)]
     print("| transform | out of fold | " + " | ".join(f"{s or 'all'} groups, copies {a}" for s, a in keys)
-          + " | generated caught: copies none / light / full (all groups) |")
-    print("|---|" + "---:|" * (len(keys) + 2))
+          + " | generated caught: copies none / light / full (all groups) "
+          + "| generated in likely-camera: out of fold / all groups, copies full |")
+    print("|---|" + "---:|" * (len(keys) + 3))
     for name in devset.TRANSFORMS:
         paths = {it[0]: devset.processed(it[0], name, work) for it in rest + test_generated}
         recs = scan(model, list(paths.values()), os.path.join(work, f"scan-{name}.jsonl"))
         recs = {p: recs[q] for p, q in paths.items()}
         cells = [pct(outcome(recs, [oof] * K)[0])] + [pct(outcome(recs, thresholds[k])[0]) for k in keys]
         caught = " / ".join(pct(outcome(recs, thresholds[(None, a)])[1]) for a in AUGMENTS)
-        print(f"| {name} | " + " | ".join(cells) + f" | {caught} |")
+        waved = f"{pct(outcome(recs, [oof] * K)[5])} / {pct(outcome(recs, thresholds[(None, 'full')])[5])}"
+        print(f"| {name} | " + " | ".join(cells) + f" | {caught} | {waved} |")

@@ -47,13 +47,12 @@ bool calibrate_from_roots(Model& model, const CalibrationInputs& inputs, const c
                  "are not those of new photos)\n";
   }
   const double old_threshold = model.thresholds.likely_generated;
-  auto calibrated = calibrate_model(model, items, copies, inputs.group_by, inputs.settings, inputs.roots);
+  auto calibrated =
+      calibrate_model(model, items, copies, inputs.group_by, inputs.settings, {inputs.roots, unreadable});
   if (!calibrated) {
     std::cerr << "residue " << command << ": " << calibrated.error().message << "\n";
     return false;
   }
-  model.calibration_set->unreadable = unreadable;
-  stamp_model_id(model);
   if (unreadable > 0) {
     std::printf(
         "%zu calibration files could not be read and were left out (listed above); the rest were used.\n",

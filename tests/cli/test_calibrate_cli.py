@@ -122,6 +122,17 @@ with tempfile.TemporaryDirectory() as tmp:
               and abs(t["p_value"] - (k + 1) / 41) < 1e-12, f"tail recounted from the model file: {t}")
         check(t["text"].startswith(f"{k} of 40 calibration camera photos"), f"tail in words: {t['text']}")
 
+    # evaluate reports the bands as a scan gives them: the same counts as the scans above.
+    r = run(["evaluate", calibrated, test_root, "--json"] + cache)
+    bands = json.loads(r.stdout)["bands"] if r.returncode == 0 else {}
+    for cls in ("camera", "generated"):
+        want = {}
+        for rec in recs1:
+            if ("/camera/" in rec["path"]) == (cls == "camera"):
+                want[rec["band"]] = want.get(rec["band"], 0) + 1
+        got = {b: n for b, n in bands.get(cls, {}).items() if n}
+        check(got == want, f"evaluate's {cls} bands are the scan's: {got} vs {want}")
+
     # Too small: five camera photos.
     small = os.path.join(tmp, "small")
     os.makedirs(os.path.join(small, "camera"))

@@ -69,8 +69,8 @@ TEST_CASE("camera tail: k, groups and the conformal p-value equal a brute-force 
     CHECK(t.images == 400);
     CHECK(t.groups_at_least == groups.size());
     CHECK(t.groups == all_groups.size());
-    // Definition (Vovk, Gammerman & Shafer 2005; Angelopoulos & Bates 2021, eq. 1's p-value form):
-    // p = (1 + #{calibration scores >= s}) / (n + 1).
+    // Definition of the conformal p-value (Vovk, Gammerman & Shafer 2005, ch. 2; section numbers
+    // from memory): p = (1 + #{calibration scores >= s}) / (n + 1).
     CHECK(t.p_value == doctest::Approx((1.0 + static_cast<double>(k)) / 401.0).epsilon(1e-15));
   }
   // Copies and generated images never enter the tail.
@@ -83,7 +83,8 @@ TEST_CASE("camera tail: k, groups and the conformal p-value equal a brute-force 
 }
 
 TEST_CASE("camera tail: the conformal p-value is valid on exchangeable camera scores, P(p <= a) <= a") {
-  // Vovk et al. 2005, Prop. 2.x (validity of smoothed/conservative conformal p-values): for a new
+  // Validity of the conformal p-value (Vovk et al. 2005, ch. 2; the proposition's number not
+  // recalled, stated from memory): for a new
   // camera score exchangeable with n calibration scores, P(p-value <= a) <= a. Monte Carlo on this
   // test's own Gaussian draws: 4000 trials of n = 99, so P(p <= a) is exactly floor(a (n+1)) / (n+1)
   // without ties; checked within 3 binomial standard errors.

@@ -32,8 +32,7 @@ std::vector<CalibrationImage> score_for_calibration(const Model& model,
 
 Result<Calibrated> calibrate_model(Model& model, const std::vector<PreparedItem>& items,
                                    const std::vector<PreparedItem>& copies, GroupBy group_by,
-                                   const CalibrationSettings& settings,
-                                   const std::vector<std::string>& roots) {
+                                   const CalibrationSettings& settings, const CalibrationSource& source) {
   size_t camera = 0;
   for (const auto& it : items) camera += it.file.label == Label::kCamera ? 1 : 0;
   if (camera < kMinCalibrationCamera) {
@@ -45,7 +44,8 @@ Result<Calibrated> calibrate_model(Model& model, const std::vector<PreparedItem>
   }
   Calibrated c =
       calibrate_thresholds(score_for_calibration(model, items, copies, group_by), settings, "held-out");
-  c.record.roots = roots;
+  c.record.roots = source.roots;
+  c.record.unreadable = source.unreadable;
   c.record.created = utc_now();
   apply_calibration(model, c, settings.target_fpr, settings.generated_miss);
   model.provenance["settings"]["target_fpr"] = settings.target_fpr;

@@ -25,13 +25,13 @@ std::string thousands(size_t n) {
   return out;
 }
 
-std::string percent(double v) {
+}  // namespace
+
+std::string percent_text(double share) {
   char buf[32];
-  std::snprintf(buf, sizeof buf, v < 0.1 ? "%.1f %%" : "%.0f %%", 100 * v);
+  std::snprintf(buf, sizeof buf, share < 0.1 ? "%.1f %%" : "%.0f %%", 100 * share);
   return buf;
 }
-
-}  // namespace
 
 CameraTail CameraTail::of(const std::vector<CalibrationImage>& images, std::string source,
                           double confidence) {
@@ -91,8 +91,8 @@ std::string tail_text(const TailPosition& t) {
                      thousands(t.groups_at_least) + " of " + thousands(t.groups) +
                      " groups) scored at least this high";
   if (t.images > 0) {
-    text += "; at most " + percent(t.upper_bound) + " of camera photos like them would (" +
-            percent(t.confidence) + " confidence)";
+    text += "; at most " + percent_text(t.upper_bound) + " of camera photos like them would (" +
+            percent_text(t.confidence) + " confidence)";
   }
   return text;
 }

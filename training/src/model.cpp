@@ -18,19 +18,9 @@ std::string band_of(const Thresholds& t, double p) {
   return "inconclusive";
 }
 
-namespace {
-
-std::string percent(double v) {
-  char buf[32];
-  std::snprintf(buf, sizeof buf, v < 0.1 ? "%.1f %%" : "%.0f %%", 100 * v);
-  return buf;
-}
-
-}  // namespace
-
 std::string promise_text(const Thresholds& t) {
   if (!t.promise) {
-    return "the camera false-positive rate was set to " + percent(t.target_fpr) +
+    return "the camera false-positive rate was set to " + percent_text(t.target_fpr) +
            " out of fold, without a confidence bound (model trained before bounds were recorded)";
   }
   const FprPromise& p = *t.promise;
@@ -39,9 +29,9 @@ std::string promise_text(const Thresholds& t) {
                                  : std::to_string(p.camera_images - p.camera_copies) + " camera photos (" +
                                        std::to_string(p.camera_images) + " with their processed copies)";
   const std::string from = "from " + photos + " in " + std::to_string(p.camera_groups) + " groups";
-  const std::string conf = percent(p.confidence);
+  const std::string conf = percent_text(p.confidence);
   if (p.met)
-    return "camera false-positive rate at most " + percent(p.bound) + " with " + conf + " confidence, " +
+    return "camera false-positive rate at most " + percent_text(p.bound) + " with " + conf + " confidence, " +
            from;
   // Unmet: the threshold already sits where nothing is flagged, so the bound is the tightest these
   // images support. Say that, what the target needs, and how to promise what is supported.
@@ -49,11 +39,11 @@ std::string promise_text(const Thresholds& t) {
   std::snprintf(threshold, sizeof threshold, "%.4f", t.likely_generated);
   char supported[32];
   std::snprintf(supported, sizeof supported, "%.3g", std::ceil(p.bound * 1000.0) / 1000.0);
-  return "the target of " + percent(t.target_fpr) + " cannot be promised " + from +
-         ". What they support: at most " + percent(p.bound) + " with " + conf +
+  return "the target of " + percent_text(t.target_fpr) + " cannot be promised " + from +
+         ". What they support: at most " + percent_text(p.bound) + " with " + conf +
          " confidence, with likely-generated at p >= " + threshold + ". " + std::to_string(p.groups_needed) +
          " more independent camera groups (none scored as generated) are needed for " +
-         percent(t.target_fpr) + "; or set --target-fpr " + supported +
+         percent_text(t.target_fpr) + "; or set --target-fpr " + supported +
          " to promise what is supported (the target is never lowered silently)";
 }
 

@@ -25,12 +25,17 @@ std::vector<CalibrationImage> score_for_calibration(const Model& model,
 // the better one).
 inline constexpr size_t kMinCalibrationCamera = 20;
 
+// Where calibration images came from, for the model's record.
+struct CalibrationSource {
+  std::vector<std::string> roots;
+  size_t unreadable = 0;  // files of the roots that could not be read (left out)
+};
+
 // Scores and calibrates: fails (kTooSmall) with fewer than kMinCalibrationCamera camera images,
 // saying how many there were. On success the model carries the new thresholds, promise, record
-// (with `roots` and the time) and tail, and a new id.
+// (with the source and the time) and tail, and a new id.
 Result<Calibrated> calibrate_model(Model& model, const std::vector<PreparedItem>& items,
                                    const std::vector<PreparedItem>& copies, GroupBy group_by,
-                                   const CalibrationSettings& settings,
-                                   const std::vector<std::string>& roots);
+                                   const CalibrationSettings& settings, const CalibrationSource& source);
 
 }  // namespace residue

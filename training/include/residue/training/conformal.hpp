@@ -73,6 +73,9 @@ struct CameraTail {
   std::vector<size_t> distinct_;  // distinct_[k]: distinct groups among the first k margins
 };
 
+// A share as people read it: "0.8 %" below 10 %, "25 %" above.
+std::string percent_text(double share);
+
 // "3 of 1,240 camera photos (3 of 900 groups) scored at least this high"
 std::string tail_text(const TailPosition& t);
 // The record's "camera_tail" object: k, n, groups, p_value, upper bound, source and text.
