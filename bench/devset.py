@@ -12,9 +12,11 @@ manifest(items, work, name, variant, grouping) -> CSV manifest for `residue trai
 """
 import csv
 import hashlib
+import io
 import os
 import re
 
+import numpy as np
 from PIL import Image, ImageFilter
 
 
@@ -111,6 +113,26 @@ def scaled(im, f, resample):
     return im.resize((max(1, round(im.width * f)), max(1, round(im.height * f))), resample)
 
 
+def noisy(im, sigma, path):
+    """Additive Gaussian noise (numpy, seeded from the path), clipped and rounded to 8 bits."""
+    rng = np.random.default_rng(int(hashlib.sha256(path.encode()).hexdigest()[:8], 16))
+    a = np.asarray(im, dtype=np.float64) + rng.normal(0.0, sigma, (im.height, im.width, 3))
+    return Image.fromarray(np.clip(np.rint(a), 0, 255).astype(np.uint8))
+
+
+def gamma(im, g):
+    """255 (v / 255) ** (1 / g), rounded."""
+    lut = [round(255 * (v / 255) ** (1 / g)) for v in range(256)]
+    return im.point(lut * 3)
+
+
+def jpeg_round_trip(im, quality):
+    buf = io.BytesIO()
+    im.save(buf, "JPEG", quality=quality)
+    buf.seek(0)
+    return Image.open(buf).convert("RGB")
+
+
 def centre_crop(im, f):
     w, h = max(1, int(im.width * f)), max(1, int(im.height * f))
     x, y = (im.width - w) // 2, (im.height - h) // 2
@@ -129,8 +151,16 @@ TRANSFORMS = {
     "sharpen": lambda p, out: rgb(p).filter(ImageFilter.UnsharpMask(radius=1, percent=80, threshold=0)).save(out, "PNG"),
     "crop-centre-0.6": lambda p, out: centre_crop(rgb(p), 0.6).save(out, "PNG"),
     "screenshot-0.8": lambda p, out: scaled(rgb(p), 0.8, Image.BILINEAR).save(out, "PNG"),
+    # Laundering: what someone does to a generated image so that it passes.
+    "blur-1.5": lambda p, out: rgb(p).filter(ImageFilter.GaussianBlur(1.5)).save(out, "PNG"),
+    "noise-4": lambda p, out: noisy(rgb(p), 4.0, p).save(out, "PNG"),
+    "median-3": lambda p, out: rgb(p).filter(ImageFilter.MedianFilter(3)).save(out, "PNG"),
+    "resize-chain": lambda p, out: scaled(jpeg_round_trip(scaled(rgb(p), 0.6, Image.BOX), 85), 0.8, Image.BOX)
+    .save(out, "JPEG", quality=80),
+    "print-scan": lambda p, out: noisy(gamma(rgb(p).filter(ImageFilter.GaussianBlur(1.0)), 1.2), 3.0, p)
+    .save(out, "PNG"),
 }
-EXT = {"jpeg-q95": "jpg", "jpeg-q75": "jpg", "jpeg-q50": "jpg", "webp-q80": "webp"}
+EXT = {"jpeg-q95": "jpg", "jpeg-q75": "jpg", "jpeg-q50": "jpg", "webp-q80": "webp", "resize-chain": "jpg"}
 
 
 def processed(path, name, work):

@@ -34,13 +34,13 @@ struct EvaluateArgs {
 std::vector<std::string> chosen_transforms(const EvaluateArgs& args) {
   if (!args.transforms.empty()) return args.transforms;
   std::vector<std::string> all;
-  for (const auto& t : everyday_transforms()) all.push_back(t.name);
+  for (const auto& t : processing_transforms()) all.push_back(t.name);
   return all;
 }
 
 int run_evaluate(const EvaluateArgs& args) {
   for (const auto& name : args.transforms) {
-    const auto& all = everyday_transforms();
+    const auto all = processing_transforms();
     if (std::none_of(all.begin(), all.end(), [&](const TransformInfo& t) { return t.name == name; })) {
       std::cerr << "residue evaluate: unknown transform '" << name << "'; known:";
       for (const auto& t : all) std::cerr << " " << t.name;

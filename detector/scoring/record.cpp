@@ -162,7 +162,7 @@ nlohmann::ordered_json features_record(const std::string& path, const Extraction
       {"windows",
        {{"size", e.layout.size}, {"count", e.layout.origins.size()}, {"reduced", e.layout.reduced}}},
       {"decoded_rows", e.decoded_rows},
-      {"decoder_warnings", e.decoder_warnings},
+      {"decoder_warnings", decoder_warnings_to_json(e.processing.decoder_warnings)},
       {"extractor", {{"version", std::string(kExtractorVersion)}, {"schema", feature_schema_id()}}},
       {"features", values},
       {"compression_history", compression},

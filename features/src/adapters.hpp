@@ -14,7 +14,7 @@ struct JpegOutput {
   std::vector<Tile> tiles;  // filled when a layout is given
   JpegQuantTables tables;
   std::uint64_t decoded_rows = 0;
-  int warnings = 0;
+  std::vector<DecoderWarning> warnings;
 };
 
 // Decodes a JPEG with libjpeg-turbo. With a layout, only the scanlines the windows cover are
@@ -29,13 +29,22 @@ struct WindowPixels {
   int channels = 0;
   bool alpha_dropped = false;
   std::uint64_t decoded_rows = 0;
-  int warnings = 0;
+  std::vector<DecoderWarning> warnings;
 };
 
 // Decodes a PNG with libpng row by row, keeping only the windows of `layout`: memory is one row
 // plus the windows (interlaced images: the rows the windows cover), not the image. The pixels equal
 // decode_with_opencv's.
 Result<WindowPixels> decode_png_tiles(std::span<const std::uint8_t> bytes, const WindowLayout& layout);
+
+// Decodes a whole PNG with libpng (as decode_with_opencv would, alpha dropped), its warnings caught
+// rather than printed.
+struct PngImage {
+  Image image;
+  bool alpha_dropped = false;
+  std::vector<DecoderWarning> warnings;
+};
+Result<PngImage> decode_png_image(std::span<const std::uint8_t> bytes);
 
 // Decodes the bands of a WebP that hold windows, each with libwebp's cropping (rows above a band
 // are decoded again for each band; memory is the bands, not the image). The pixels equal

@@ -1,6 +1,7 @@
 #include "residue/features/decode.hpp"
 
 #include <algorithm>
+#include <cctype>
 #include <cerrno>
 #include <cstring>
 #include <fstream>
@@ -37,6 +38,18 @@ Result<ImageHeader> checked_header(std::span<const std::uint8_t> bytes, const De
   return header;
 }
 
+// A whole non-JPEG image: PNG through our libpng reader (its warnings caught, not printed), the
+// other formats through OpenCV.
+Result<Image> decode_whole(std::span<const std::uint8_t> bytes, const ImageHeader& header) {
+  if (header.format == ImageFormat::kPng) {
+    auto png = detail::decode_png_image(bytes);
+    if (!png) return png.error();
+    return std::move(png->image);
+  }
+  bool alpha_dropped = false;
+  return detail::decode_with_opencv(bytes, header, &alpha_dropped);
+}
+
 }  // namespace
 
 std::vector<float> Tile::luma() const {
@@ -61,6 +74,54 @@ Image crop(const Image& image, int x, int y, int w, int h) {
     }
   }
   return out;
+}
+
+bool damaged(const std::vector<DecoderWarning>& warnings) {
+  return std::any_of(warnings.begin(), warnings.end(), [](const auto& w) { return w.kind == "damaged"; });
+}
+
+std::string warning_kind_from_words(const std::string& message) {
+  std::string lower(message);
+  std::transform(lower.begin(), lower.end(), lower.begin(),
+                 [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
+  static const char* const kDamage[] = {"corrupt",
+                                        "truncat",
+                                        "premature",
+                                        "extraneous",
+                                        "crc",
+                                        "damaged",
+                                        "bad code",
+                                        "invalid code",
+                                        "not terminated",
+                                        "end of data",
+                                        "too much image",
+                                        "extra compressed data"};
+  for (const char* word : kDamage) {
+    if (lower.find(word) != std::string::npos) return "damaged";
+  }
+  return "note";
+}
+
+std::string png_warning_kind(const std::string& message) {
+  const bool chunk_prefix =
+      message.size() > 5 && message[4] == ':' &&
+      std::all_of(message.begin(), message.begin() + 4, [](unsigned char c) { return std::isalpha(c) != 0; });
+  const bool ancillary = chunk_prefix && std::islower(static_cast<unsigned char>(message[0])) != 0;
+  if (ancillary && warning_kind_from_words(message) == "note") return "note";
+  return "damaged";
+}
+
+void add_decoder_warning(std::vector<DecoderWarning>& warnings, const std::string& kind,
+                         const std::string& message) {
+  for (const auto& w : warnings) {
+    if (w.kind == kind && w.message == message) return;
+  }
+  if (warnings.size() < kMaxDecoderWarnings) {
+    warnings.push_back({kind, message});
+    return;
+  }
+  // Full: a damaged warning still takes the last place, so that damage is never lost behind notes.
+  if (kind == "damaged" && !damaged(warnings)) warnings.back() = {kind, message};
 }
 
 Result<std::vector<std::uint8_t>> read_file(const std::filesystem::path& path, const DecodeLimits& limits) {
@@ -97,8 +158,7 @@ Result<Image> decode_image(std::span<const std::uint8_t> bytes, const DecodeLimi
     if (!out) return out.error();
     return std::move(out->full);
   }
-  bool alpha_dropped = false;
-  return detail::decode_with_opencv(bytes, *header, &alpha_dropped);
+  return decode_whole(bytes, *header);
 }
 
 Result<std::size_t> decode_plain_8bit(std::span<const std::uint8_t> bytes) {
@@ -113,8 +173,7 @@ Result<Image> decode_preview(std::span<const std::uint8_t> bytes, const DecodeLi
     if (!out) return out.error();
     return std::move(out->full);
   }
-  bool alpha_dropped = false;
-  return detail::decode_with_opencv(bytes, *header, &alpha_dropped);
+  return decode_whole(bytes, *header);
 }
 
 Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const DecodeLimits& limits,
@@ -132,7 +191,7 @@ Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const
     if (!jpeg) return jpeg.error();
     out.jpeg_tables = jpeg->tables;
     out.decoded_rows = jpeg->decoded_rows;
-    out.decoder_warnings = jpeg->warnings;
+    out.decoder_warnings = std::move(jpeg->warnings);
     out.tiles = skip_unused_rows ? std::move(jpeg->tiles) : cut_tiles(jpeg->full, out.layout);
   } else {
     // PNG, WebP and the common TIFFs window by window: memory follows the windows, not the image
@@ -151,7 +210,7 @@ Result<DecodedWindows> decode_windows(std::span<const std::uint8_t> bytes, const
       out.tiles = std::move((*part)->tiles);
       out.alpha_dropped = (*part)->alpha_dropped;
       out.decoded_rows = (*part)->decoded_rows;
-      out.decoder_warnings = (*part)->warnings;
+      out.decoder_warnings = std::move((*part)->warnings);
       out.channels = out.tiles.empty() ? 0 : out.tiles.front().channels;
       return out;
     }

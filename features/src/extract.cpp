@@ -135,7 +135,6 @@ Result<Extraction> extract_bytes(std::span<const std::uint8_t> bytes, const Extr
   out.alpha_dropped = decoded->alpha_dropped;
   out.layout = decoded->layout;
   out.decoded_rows = decoded->decoded_rows;
-  out.decoder_warnings = decoded->decoder_warnings;
   if (decoded->jpeg_tables) out.compression.jpeg = estimate_jpeg_quality(*decoded->jpeg_tables);
   const auto windows = window_inputs(decoded->tiles);
   out.features = extract_windows(windows, &out.timings, &out.compression.block_grid_strength);

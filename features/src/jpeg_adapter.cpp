@@ -23,8 +23,16 @@ struct ErrorManager {
   std::jmp_buf jump;
   char message[JMSG_LENGTH_MAX];
   bool hit_eof;
-  int warnings;
+  std::vector<DecoderWarning>* warnings;  // lives in the caller's frame, outside the jump
 };
+
+// Warnings (jerror.h) that mean the entropy-coded data are damaged: the decoder resynchronised,
+// skipped bytes or substituted zeros, so the pixels are not the ones that were written.
+bool damages_data(int code) {
+  return code == JWRN_EXTRANEOUS_DATA || code == JWRN_HIT_MARKER || code == JWRN_HUFF_BAD_CODE ||
+         code == JWRN_MUST_RESYNC || code == JWRN_ARITH_BAD_CODE || code == JWRN_BOGUS_PROGRESSION ||
+         code == JWRN_NOT_SEQUENTIAL || code == JWRN_JPEG_EOF;
+}
 
 void on_error(j_common_ptr cinfo) {
   auto* err = reinterpret_cast<ErrorManager*>(cinfo->err);
@@ -32,11 +40,17 @@ void on_error(j_common_ptr cinfo) {
   std::longjmp(err->jump, 1);
 }
 
+// libjpeg's warnings (level -1) are kept, never printed; trace messages (level >= 0) are dropped.
 void on_message(j_common_ptr cinfo, int level) {
-  if (level != -1) return;  // trace messages
+  if (level != -1) return;
   auto* err = reinterpret_cast<ErrorManager*>(cinfo->err);
-  if (cinfo->err->msg_code == JWRN_JPEG_EOF) err->hit_eof = true;
-  ++err->warnings;
+  const int code = cinfo->err->msg_code;
+  if (code == JWRN_JPEG_EOF) err->hit_eof = true;
+  ++cinfo->err->num_warnings;
+  char text[JMSG_LENGTH_MAX];
+  (*cinfo->err->format_message)(cinfo, text);
+  add_decoder_warning(*err->warnings, damages_data(code) ? "damaged" : "note",
+                      std::string("libjpeg: ") + text);
 }
 
 // Copies one decoded, interleaved 8-bit row into every tile that covers image row y.
@@ -78,6 +92,7 @@ Result<JpegOutput> decode_jpeg(std::span<const std::uint8_t> bytes, const Decode
   cinfo.err = jpeg_std_error(&err.base);
   err.base.error_exit = on_error;
   err.base.emit_message = on_message;
+  err.warnings = &out.warnings;
   if (setjmp(err.jump)) {
     jpeg_destroy_decompress(&cinfo);
     if (err.hit_eof) return make_error(ErrorCode::kTruncated, "JPEG data ends before the image does");
@@ -166,7 +181,6 @@ Result<JpegOutput> decode_jpeg(std::span<const std::uint8_t> bytes, const Decode
   jpeg_finish_decompress(&cinfo);
   jpeg_destroy_decompress(&cinfo);
   if (err.hit_eof) return make_error(ErrorCode::kTruncated, "JPEG data ends before the image does");
-  out.warnings = err.warnings;
   return out;
 }
 

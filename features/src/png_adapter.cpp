@@ -6,6 +6,8 @@
 
 #include <algorithm>
 #include <csetjmp>
+#include <cstdio>
+#include <functional>
 #include <map>
 
 #include "adapters.hpp"
@@ -37,11 +39,22 @@ void take(png_structp png, png_bytep data, png_size_t length) {
   src->at += length;
 }
 
-void count_warning(png_structp png, png_const_charp /*message*/) {
-  ++*static_cast<int*>(png_get_error_ptr(png));
+// What libpng said: its warnings (kept, never printed) and the message of the error that ended it.
+struct Report {
+  std::vector<DecoderWarning>* warnings = nullptr;
+  char error[160] = {};
+};
+
+void keep_warning(png_structp png, png_const_charp message) {
+  auto* report = static_cast<Report*>(png_get_error_ptr(png));
+  add_decoder_warning(*report->warnings, png_warning_kind(message), std::string("libpng: ") + message);
 }
 
-void raise_error(png_structp png, png_const_charp /*message*/) { png_longjmp(png, 1); }
+void raise_error(png_structp png, png_const_charp message) {
+  auto* report = static_cast<Report*>(png_get_error_ptr(png));
+  if (report != nullptr) std::snprintf(report->error, sizeof report->error, "%s", message);
+  png_longjmp(png, 1);
+}
 
 constexpr float kOne257th = static_cast<float>(1.0 / 257.0);
 
@@ -67,73 +80,127 @@ bool needed(int y, const WindowLayout& layout) {
                      [&](const WindowRect& o) { return y >= o.y && y < o.y + layout.size; });
 }
 
-}  // namespace
+// The rows of a PNG as libpng gives them, one callback per row that `wanted` asks for (after all
+// passes when interlaced), after `started` has heard the size and channels. The same pixels as
+// OpenCV's imread(IMREAD_UNCHANGED) with alpha dropped afterwards: palette expanded to RGB, grey
+// below 8 bits expanded to 8, 16 bits kept, no gamma.
+struct PngShape {
+  int width = 0;
+  int height = 0;
+  int channels = 0;
+  int depth = 0;
+  bool alpha_dropped = false;
+};
 
-Result<WindowPixels> decode_png_tiles(std::span<const std::uint8_t> bytes, const WindowLayout& layout) {
-  WindowPixels out;
+Result<PngShape> read_png(std::span<const std::uint8_t> bytes, std::vector<DecoderWarning>& warnings,
+                          const std::function<bool(int)>& wanted,
+                          const std::function<void(const PngShape&)>& started,
+                          const std::function<void(int, const png_byte*)>& take_row) {
   Source src{bytes};
-  png_structp png = png_create_read_struct(PNG_LIBPNG_VER_STRING, &out.warnings, raise_error, count_warning);
+  Report report{&warnings};
+  png_structp png = png_create_read_struct(PNG_LIBPNG_VER_STRING, &report, raise_error, keep_warning);
   png_infop info = png != nullptr ? png_create_info_struct(png) : nullptr;
   if (info == nullptr) {
     png_destroy_read_struct(&png, nullptr, nullptr);
     return make_error(ErrorCode::kInternal, "PNG: libpng could not start");
   }
   // Everything that lives across the jump is declared before setjmp.
+  PngShape shape;
   std::vector<png_byte> scratch;
-  std::map<int, std::vector<png_byte>> kept;  // interlaced images: the rows the windows need
-  int height = 0;
-  if (setjmp(png_jmpbuf(png)) != 0) {  // NOLINT(cert-err52-cpp): libpng reports errors by longjmp
+  std::map<int, std::vector<png_byte>> kept;  // interlaced images: the rows wanted
+  if (setjmp(png_jmpbuf(png)) != 0) {         // NOLINT(cert-err52-cpp): libpng reports errors by longjmp
     png_destroy_read_struct(&png, &info, nullptr);
     if (src.ran_out) return make_error(ErrorCode::kTruncated, "PNG data ends before the image does");
-    return make_error(ErrorCode::kCorrupt, "the PNG decoder rejected the data");
+    return make_error(ErrorCode::kCorrupt, std::string("the PNG decoder rejected the data: ") + report.error);
   }
   png_set_read_fn(png, &src, take);
   png_set_user_limits(png, 0x7fffffff, 0x7fffffff);  // the header check already bounded the size
   png_read_info(png, info);
-  height = static_cast<int>(png_get_image_height(png, info));
+  shape.width = static_cast<int>(png_get_image_width(png, info));
+  shape.height = static_cast<int>(png_get_image_height(png, info));
   const int colour = png_get_color_type(png, info);
   const int depth = png_get_bit_depth(png, info);
-  // The same pixels as OpenCV's imread(IMREAD_UNCHANGED) with alpha dropped afterwards: palette
-  // expanded to RGB, grey below 8 bits expanded to 8, 16 bits kept (scaled by 1/257 here), no gamma.
-  out.alpha_dropped = (colour & PNG_COLOR_MASK_ALPHA) != 0 || png_get_valid(png, info, PNG_INFO_tRNS) != 0;
+  shape.alpha_dropped = (colour & PNG_COLOR_MASK_ALPHA) != 0 || png_get_valid(png, info, PNG_INFO_tRNS) != 0;
   if (colour == PNG_COLOR_TYPE_PALETTE) png_set_palette_to_rgb(png);
   if (colour == PNG_COLOR_TYPE_GRAY && depth < 8) png_set_expand_gray_1_2_4_to_8(png);
   if (colour == PNG_COLOR_TYPE_GRAY_ALPHA) png_set_gray_to_rgb(png);  // as OpenCV: grey + alpha -> BGRA
-  if (out.alpha_dropped) png_set_strip_alpha(png);  // also the alpha a palette's tRNS expands to
+  if (shape.alpha_dropped) png_set_strip_alpha(png);  // also the alpha a palette's tRNS expands to
   const int passes = png_set_interlace_handling(png);
   png_read_update_info(png, info);
-  out.channels = (colour & PNG_COLOR_MASK_COLOR) != 0 || colour == PNG_COLOR_TYPE_GRAY_ALPHA ? 3 : 1;
-  const int out_depth = png_get_bit_depth(png, info);
-  if (static_cast<int>(png_get_channels(png, info)) != out.channels)
+  shape.channels = (colour & PNG_COLOR_MASK_COLOR) != 0 || colour == PNG_COLOR_TYPE_GRAY_ALPHA ? 3 : 1;
+  shape.depth = png_get_bit_depth(png, info);
+  if (static_cast<int>(png_get_channels(png, info)) != shape.channels)
     png_error(png, "unexpected channel count");
   scratch.resize(png_get_rowbytes(png, info));
-  for (const auto& o : layout.origins) {
-    out.tiles.push_back(
-        Tile{o.x, o.y, layout.size, out.channels,
-             std::vector<float>(static_cast<size_t>(out.channels) * layout.size * layout.size)});
-  }
+  started(shape);
   if (passes == 1) {
-    for (int y = 0; y < height; ++y) {
+    for (int y = 0; y < shape.height; ++y) {
       png_read_row(png, scratch.data(), nullptr);
-      if (needed(y, layout)) scatter_png_row(scratch.data(), y, out.channels, out_depth, out.tiles);
+      if (wanted(y)) take_row(y, scratch.data());
     }
   } else {
-    // Adam7: every pass adds pixels to rows all over the image, so the rows the windows need are
-    // kept whole until the last pass; the others go to a scratch row.
-    for (int y = 0; y < height; ++y) {
-      if (needed(y, layout)) kept[y].assign(scratch.size(), 0);
+    // Adam7: every pass adds pixels to rows all over the image, so the rows wanted are kept whole
+    // until the last pass; the others go to a scratch row.
+    for (int y = 0; y < shape.height; ++y) {
+      if (wanted(y)) kept[y].assign(scratch.size(), 0);
     }
     for (int pass = 0; pass < passes; ++pass) {
-      for (int y = 0; y < height; ++y) {
+      for (int y = 0; y < shape.height; ++y) {
         const auto it = kept.find(y);
         png_read_row(png, it != kept.end() ? it->second.data() : scratch.data(), nullptr);
       }
     }
-    for (const auto& [y, row] : kept) scatter_png_row(row.data(), y, out.channels, out_depth, out.tiles);
+    for (const auto& [y, row] : kept) take_row(y, row.data());
   }
   png_read_end(png, nullptr);
   png_destroy_read_struct(&png, &info, nullptr);
-  out.decoded_rows = static_cast<std::uint64_t>(height);
+  return shape;
+}
+
+}  // namespace
+
+Result<WindowPixels> decode_png_tiles(std::span<const std::uint8_t> bytes, const WindowLayout& layout) {
+  WindowPixels out;
+  PngShape shape;
+  auto read = read_png(
+      bytes, out.warnings, [&](int y) { return needed(y, layout); },
+      [&](const PngShape& s) {
+        shape = s;
+        for (const auto& o : layout.origins) {
+          out.tiles.push_back(
+              Tile{o.x, o.y, layout.size, s.channels,
+                   std::vector<float>(static_cast<size_t>(s.channels) * layout.size * layout.size)});
+        }
+      },
+      [&](int y, const png_byte* row) { scatter_png_row(row, y, shape.channels, shape.depth, out.tiles); });
+  if (!read) return read.error();
+  out.channels = read->channels;
+  out.alpha_dropped = read->alpha_dropped;
+  out.decoded_rows = static_cast<std::uint64_t>(read->height);
+  return out;
+}
+
+Result<PngImage> decode_png_image(std::span<const std::uint8_t> bytes) {
+  PngImage out;
+  PngShape shape;
+  auto read = read_png(
+      bytes, out.warnings, [](int /*y*/) { return true; },
+      [&](const PngShape& s) {
+        shape = s;
+        out.image = Image::zeros(s.width, s.height, s.channels);
+      },
+      [&](int y, const png_byte* row) {
+        const size_t bytes_per_sample = shape.depth == 16 ? 2 : 1;
+        for (int c = 0; c < shape.channels; ++c) {
+          float* dst = out.image.plane(c) + static_cast<size_t>(y) * shape.width;
+          for (int i = 0; i < shape.width; ++i) {
+            const size_t k = (static_cast<size_t>(i) * shape.channels + c) * bytes_per_sample;
+            dst[i] = shape.depth == 16 ? static_cast<float>((row[k] << 8) | row[k + 1]) * kOne257th : row[k];
+          }
+        }
+      });
+  if (!read) return read.error();
+  out.alpha_dropped = read->alpha_dropped;
   return out;
 }
 

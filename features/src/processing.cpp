@@ -113,7 +113,7 @@ void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {
 }
 
 // The strongest p-map peak of one window, leaving out the multiples of 1/8 cycles/pixel where
-// JPEG's block grid puts its own periodicity.
+// JPEG's (and lossy WebP's) block grid puts its own periodicity.
 SpectralPeak window_resampling_peak(const WindowInput& window, bool skip_block_grid) {
   const int n = window.tile.size;
   const auto& whole = window.pmap_profile();
@@ -218,6 +218,11 @@ std::string fixed(double v, int digits) {
 
 }  // namespace
 
+double fine_detail(const float* luma, int width, int height) {
+  if (width < 3 || height < 3) return 0.0;
+  return immerkaer_sigma(luma, width, height);
+}
+
 std::vector<double> resampling_factor_candidates(double f) {
   if (!(f > 0.0 && f <= 0.5)) return {};
   std::vector<double> out = {1.0 / (1.0 - f), 1.0 / f, 1.0 / (1.0 + f), 1.0 / (2.0 - f)};
@@ -295,7 +300,10 @@ ProcessingEvidence assess_processing(const DecodedWindows& decoded,
                       " % of levels empty): levels stretched or bit depth reduced");
   }
   const bool jpeg_file = decoded.header.format == ImageFormat::kJpeg;
-  e.resampling = assess_resampling(*windows, jpeg_file);
+  e.lossy_webp = decoded.header.format == ImageFormat::kWebp && decoded.header.lossy;
+  // JPEG's 8 x 8 and lossy WebP's 4 x 4 transform blocks (in 16 x 16 macroblocks) put periodic
+  // energy at multiples of 1/8 cycles/pixel into the p-map: not resampling.
+  e.resampling = assess_resampling(*windows, jpeg_file || e.lossy_webp);
   if (e.resampling.detected) {
     const auto f = resampling_factor_candidates(e.resampling.frequency);
     e.notes.push_back("resampled: periodic interpolation trace at " + fixed(e.resampling.frequency, 3) +
@@ -313,7 +321,6 @@ ProcessingEvidence assess_processing(const DecodedWindows& decoded,
     if (e.double_jpeg.detected)
       e.notes.emplace_back("compressed as JPEG at least twice (periodic DCT histograms)");
   }
-  e.lossy_webp = decoded.header.format == ImageFormat::kWebp && decoded.header.lossy;
   if (e.lossy_webp) e.notes.emplace_back("lossy WebP");
   // Flat colour alone is not enough: JPEG turns smooth studio backgrounds into exactly flat blocks
   // too. User-interface pixels are flat, losslessly stored and made of few colours.
@@ -322,6 +329,19 @@ ProcessingEvidence assess_processing(const DecodedWindows& decoded,
   if (e.screenshot_like) {
     e.notes.push_back(fixed(100 * e.flat_share, 0) +
                       " % of the picture is exact flat colour: screenshot or graphics-like");
+  }
+  std::vector<double> detail;
+  detail.reserve(windows->size());
+  for (const auto& w : *windows) detail.push_back(fine_detail(w.luma.data(), w.tile.size, w.tile.size));
+  if (!detail.empty()) {
+    std::nth_element(detail.begin(), detail.begin() + static_cast<std::ptrdiff_t>(detail.size() / 2),
+                     detail.end());
+    e.fine_detail = detail[detail.size() / 2];
+  }
+  e.decoder_warnings = decoded.decoder_warnings;
+  e.damaged = damaged(e.decoder_warnings);
+  for (const auto& w : e.decoder_warnings) {
+    e.notes.push_back((w.kind == "damaged" ? "the file is damaged: " : "decoder note: ") + w.message);
   }
   return e;
 }

@@ -4,7 +4,11 @@
 #include <tiffio.h>
 
 #include <algorithm>
+#include <cstdarg>
+#include <cstdio>
 #include <cstring>
+#include <memory>
+#include <string>
 
 #include "adapters.hpp"
 
@@ -44,6 +48,34 @@ void unmap_proc(thandle_t /*h*/, void* /*base*/, toff_t /*size*/) {}
 
 void quiet(const char* /*module*/, const char* /*fmt*/, va_list /*ap*/) {}
 
+// What libtiff said about one handle: warnings kept (never printed), and the last error's words.
+struct Report {
+  std::vector<DecoderWarning>* warnings = nullptr;
+  std::string error;
+};
+
+std::string formatted(const char* module, const char* fmt, va_list ap) {
+  char text[400];
+  std::vsnprintf(text, sizeof text, fmt, ap);
+  return "libtiff: " + (module != nullptr ? std::string(module) + ": " : std::string()) + text;
+}
+
+int keep_warning(TIFF* /*tif*/, void* user, const char* module, const char* fmt, va_list ap) {
+  auto* report = static_cast<Report*>(user);
+  const std::string message = formatted(module, fmt, ap);
+  add_decoder_warning(*report->warnings, warning_kind_from_words(message), message);
+  return 1;  // handled: the global handler is not called
+}
+
+int keep_error(TIFF* /*tif*/, void* user, const char* module, const char* fmt, va_list ap) {
+  static_cast<Report*>(user)->error = formatted(module, fmt, ap);
+  return 1;
+}
+
+struct OptionsFree {
+  void operator()(TIFFOpenOptions* o) const { TIFFOpenOptionsFree(o); }
+};
+
 struct TiffCloser {
   void operator()(TIFF* t) const { TIFFClose(t); }
 };
@@ -63,13 +95,25 @@ constexpr float kOne257th = static_cast<float>(1.0 / 257.0);
 
 Result<std::optional<WindowPixels>> decode_tiff_tiles(std::span<const std::uint8_t> bytes,
                                                       const WindowLayout& layout) {
-  // libtiff's default handlers print to stderr; errors reach us as return values.
-  TIFFSetErrorHandler(quiet);
-  TIFFSetWarningHandler(quiet);
+  // libtiff's default handlers print to stderr. Messages about this handle go to `report`; the
+  // global handlers, silenced once, only hear OpenCV's decodes of the rarer layouts.
+  static const bool silenced = [] {
+    TIFFSetErrorHandler(quiet);
+    TIFFSetWarningHandler(quiet);
+    return true;
+  }();
+  (void)silenced;
+  WindowPixels out;
+  Report report{&out.warnings, {}};
+  const std::unique_ptr<TIFFOpenOptions, OptionsFree> options(TIFFOpenOptionsAlloc());
+  if (!options) return make_error(ErrorCode::kInternal, "TIFF: libtiff could not start");
+  TIFFOpenOptionsSetErrorHandlerExtR(options.get(), keep_error, &report);
+  TIFFOpenOptionsSetWarningHandlerExtR(options.get(), keep_warning, &report);
   Source src{bytes};
-  std::unique_ptr<TIFF, TiffCloser> tif(TIFFClientOpen("image", "r", &src, read_proc, write_proc, seek_proc,
-                                                       close_proc, size_proc, map_proc, unmap_proc));
-  if (!tif) return make_error(ErrorCode::kCorrupt, "the TIFF decoder rejected the header");
+  std::unique_ptr<TIFF, TiffCloser> tif(TIFFClientOpenExt("image", "r", &src, read_proc, write_proc,
+                                                          seek_proc, close_proc, size_proc, map_proc,
+                                                          unmap_proc, options.get()));
+  if (!tif) return make_error(ErrorCode::kCorrupt, "the TIFF decoder rejected the header: " + report.error);
   std::uint32_t width = 0;
   std::uint32_t height = 0;
   std::uint16_t bits = 0;
@@ -94,7 +138,6 @@ Result<std::optional<WindowPixels>> decode_tiff_tiles(std::span<const std::uint8
       format != SAMPLEFORMAT_UINT || orientation != ORIENTATION_TOPLEFT || TIFFIsTiled(tif.get()) != 0) {
     return std::optional<WindowPixels>();
   }
-  WindowPixels out;
   out.channels = grey ? 1 : 3;
   out.alpha_dropped = spp == 4;
   for (const auto& o : layout.origins) {
@@ -110,7 +153,7 @@ Result<std::optional<WindowPixels>> decode_tiff_tiles(std::span<const std::uint8
     if (TIFFReadScanline(tif.get(), row.data(), y, 0) < 0) {
       return make_error(
           strips_past_end(tif.get(), bytes.size()) ? ErrorCode::kTruncated : ErrorCode::kCorrupt,
-          "the TIFF decoder failed at row " + std::to_string(y));
+          "the TIFF decoder failed at row " + std::to_string(y) + ": " + report.error);
     }
     for (auto& t : out.tiles) {
       if (static_cast<int>(y) < t.y || static_cast<int>(y) >= t.y + t.size) continue;

@@ -5,6 +5,7 @@
 #include <cmath>
 #include <cstdlib>
 #include <optional>
+#include <random>
 #include <string_view>
 
 #include "adapters.hpp"
@@ -29,6 +30,39 @@ Image sharpened(const Image& image, double sigma, double amount) {
                    0.0F, 255.0F);
   }
   return out;
+}
+
+// Additive zero-mean Gaussian noise of standard deviation `sigma`, clamped to 0..255. The draws come
+// from a fixed seed, so a file always gets the same copy.
+Image noisy(const Image& image, double sigma, std::uint32_t seed) {
+  std::mt19937 random(seed);
+  std::normal_distribution<float> draw(0.0F, static_cast<float>(sigma));
+  Image out = image;
+  for (auto& v : out.samples) v = std::clamp(v + draw(random), 0.0F, 255.0F);
+  return out;
+}
+
+// 3 x 3 median of each channel (detail::median3: OpenCV's medianBlur, replicated borders).
+Image median_filtered(const Image& image) {
+  Image out = Image::zeros(image.width, image.height, image.channels);
+  for (int c = 0; c < image.channels; ++c)
+    detail::median3(image.plane(c), out.plane(c), image.width, image.height);
+  return out;
+}
+
+// Display gamma on the 0..255 scale: 255 (v / 255)^(1 / gamma).
+Image gamma_adjusted(const Image& image, double gamma) {
+  Image out = image;
+  for (auto& v : out.samples)
+    v = static_cast<float>(255.0 * std::pow(std::clamp(v, 0.0F, 255.0F) / 255.0, 1.0 / gamma));
+  return out;
+}
+
+// Encodes as JPEG and decodes again: a recompression step inside a chain.
+Result<Image> through_jpeg(const Image& image, int quality, const DecodeLimits& limits) {
+  auto bytes = encode_image(image, ImageFormat::kJpeg, quality);
+  if (!bytes) return bytes.error();
+  return decode_image(*bytes, limits);
 }
 
 Image as_rgb(const Image& image) {
@@ -57,6 +91,24 @@ const std::vector<TransformInfo>& everyday_transforms() {
   return t;
 }
 
+const std::vector<TransformInfo>& laundering_transforms() {
+  static const std::vector<TransformInfo> t = {
+      {"blur-1.5", "Gaussian blur, sigma 1.5 px, saved as PNG"},
+      {"noise-4", "additive Gaussian noise, sigma 4 grey levels, saved as PNG"},
+      {"median-3", "3 x 3 median filter (a denoiser), saved as PNG"},
+      {"resize-chain", "downscaled to 0.6, JPEG 85, downscaled to 0.8, JPEG 80"},
+      {"print-scan", "print-and-scan-like: blur sigma 1 px, gamma 1.2, noise sigma 3, saved as PNG"},
+  };
+  return t;
+}
+
+std::vector<TransformInfo> processing_transforms() {
+  std::vector<TransformInfo> all = everyday_transforms();
+  const auto& more = laundering_transforms();
+  all.insert(all.end(), more.begin(), more.end());
+  return all;
+}
+
 namespace {
 
 // A parametrised name "PREFIX<number>" (e.g. "jpeg-q83", "downscale-0.72"): the number, if the
@@ -79,8 +131,10 @@ Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> 
   const auto webp = parameter(name, "webp-q", 1, 100);
   const auto down = parameter(name, "downscale-", 0.05, 0.999);
   const auto cropped = parameter(name, "crop-centre-", 0.05, 0.999);
-  const auto known = std::any_of(everyday_transforms().begin(), everyday_transforms().end(),
-                                 [&](const TransformInfo& t) { return t.name == name; });
+  const auto named = [&](const std::vector<TransformInfo>& list) {
+    return std::any_of(list.begin(), list.end(), [&](const TransformInfo& t) { return t.name == name; });
+  };
+  const bool known = named(everyday_transforms()) || named(laundering_transforms());
   if (!known && !jpeg && !webp && !down && !cropped)
     return make_error(ErrorCode::kUnsupported, "unknown transform '" + name + "'");
   auto decoded = decode_image(bytes, limits);
@@ -100,6 +154,18 @@ Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> 
   if (name == "sharpen") return encode_image(sharpened(image, 1.0, 0.8), ImageFormat::kPng);
   if (name == "screenshot-0.8")
     return encode_image(scaled(image, 0.8, ResizeFilter::kBilinear), ImageFormat::kPng);
+  if (name == "blur-1.5") return encode_image(detail::gaussian_blur(image, 1.5), ImageFormat::kPng);
+  if (name == "noise-4") return encode_image(noisy(image, 4.0, 4), ImageFormat::kPng);
+  if (name == "median-3") return encode_image(median_filtered(image), ImageFormat::kPng);
+  if (name == "resize-chain") {
+    auto first = through_jpeg(scaled(image, 0.6, ResizeFilter::kArea), 85, limits);
+    if (!first) return first.error();
+    return encode_image(scaled(*first, 0.8, ResizeFilter::kArea), ImageFormat::kJpeg, 80);
+  }
+  if (name == "print-scan") {
+    return encode_image(noisy(gamma_adjusted(detail::gaussian_blur(image, 1.0), 1.2), 3.0, 3),
+                        ImageFormat::kPng);
+  }
   // palette-256
   const Image rgb = as_rgb(image);
   const Quantised q = median_cut(rgb, 256);

@@ -92,7 +92,9 @@ TEST_CASE("processing evidence: an untouched photograph shows none") {
   CHECK_FALSE(e.lossy_webp);
   CHECK_FALSE(e.screenshot_like);
   CHECK(e.distinct_colours > 20000);
-  CHECK(e.notes.empty());
+  // The only note is libpng's about the file's known-incorrect sRGB profile (test_integrity.cpp).
+  REQUIRE(e.notes.size() == 1);
+  CHECK(e.notes[0] == "decoder note: libpng: iCCP: known incorrect sRGB profile");
 }
 
 TEST_CASE("processing evidence: palette PNG, lossy WebP, upscaling, JPEG quality and double JPEG") {

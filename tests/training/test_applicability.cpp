@@ -212,6 +212,68 @@ TEST_CASE("a model abstains on processing its camera photos never showed, and sa
   CHECK(check_domain(back, {0.5}, &palette).reasons.size() == 1);
 }
 
+TEST_CASE("a damaged file and a weakened one are inconclusive, with the reason first and in words") {
+  Applicability a;
+  // 200 camera photos stored losslessly with fine detail 1.00 .. 2.99 grey levels, and 100 JPEG
+  // q70 copies with 0.50 .. 0.99: the floor for a lossless image pools all 300 (compression only
+  // removes detail), for a q70 JPEG only the 100 copies.
+  for (int i = 0; i < 200; ++i) {
+    ProcessingEvidence e;
+    e.fine_detail = 1.0 + i / 100.0;
+    a.camera += e;
+  }
+  for (int i = 0; i < 100; ++i) {
+    ProcessingEvidence e;
+    e.jpeg_quality = 70;
+    e.fine_detail = 0.5 + i / 200.0;
+    add_fine_detail(a.camera, e);
+  }
+  CHECK(a.camera.images == 200);  // copies add fine detail only
+  // 1 % of 300 is 3: the 4th lowest (0.515) sits in the bin [10^(-29/100), 10^(-28/100)).
+  const auto lossless = fine_detail_floor(a.camera, 3, 0.01, 5);
+  REQUIRE(lossless);
+  CHECK(*lossless == doctest::Approx(std::pow(10.0, -0.29)));
+  CHECK(fine_detail_floor(a.camera, 0, 0.01, 5).has_value());
+  CHECK_FALSE(fine_detail_floor(a.camera, 0, 0.01, 101).has_value());  // under the support needed
+  // At most floor(0.01 n) camera photos lie below the floor, by construction.
+  CHECK(*lossless <= 0.515);
+  CHECK(*lossless > 0.505);
+
+  ProcessingEvidence blurred;
+  blurred.fine_detail = 0.2;
+  const auto weak = check_domain(a, {}, &blurred);
+  REQUIRE(weak.reasons.size() == 1);
+  CHECK(weak.reasons[0].starts_with(
+      "too little fine detail left to judge (blurred, denoised or heavily recompressed): 0.20 grey levels"));
+  ProcessingEvidence sharp;
+  sharp.fine_detail = 1.5;
+  CHECK(check_domain(a, {}, &sharp).reasons.empty());
+  CHECK(compression_fidelity(sharp) == 3);
+  ProcessingEvidence q95;
+  q95.jpeg_quality = 95;
+  CHECK(compression_fidelity(q95) == 2);
+
+  ProcessingEvidence broken = sharp;
+  broken.decoder_warnings = {
+      {"note", "libpng: iCCP: known incorrect sRGB profile"},
+      {"damaged", "libjpeg: Corrupt JPEG data: 300 extraneous bytes before marker 0xd9"}};
+  broken.damaged = true;
+  const auto d = check_domain(a, {}, &broken);
+  REQUIRE(d.reasons.size() == 1);
+  CHECK(d.reasons[0] ==
+        "the file is damaged: libjpeg: Corrupt JPEG data: 300 extraneous bytes before marker 0xd9");
+  ProcessingEvidence noted = sharp;
+  noted.decoder_warnings = {{"note", "libpng: iCCP: known incorrect sRGB profile"}};
+  CHECK(check_domain(a, {}, &noted).reasons.empty());  // a benign note changes nothing
+
+  // The fine-detail profile survives the model file; a model from before it has no floor.
+  const Applicability back = applicability_from_json(nlohmann::json(applicability_to_json(a)));
+  CHECK(fine_detail_floor(back.camera, 3, 0.01, 5) == lossless);
+  auto old = nlohmann::json(applicability_to_json(a));
+  old["processing"]["camera"].erase("fine_detail_log10_centi");
+  CHECK(check_domain(applicability_from_json(old), {}, &blurred).reasons.empty());
+}
+
 TEST_CASE(
     "the promised threshold flags the most camera images whose Clopper-Pearson bound stays under target") {
   // 1000 camera images, each its own group, out-of-fold scores 0.000 .. 0.999, and 50 generated.

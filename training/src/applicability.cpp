@@ -51,6 +51,13 @@ std::map<int, size_t> histogram_from_json(const nlohmann::json& j) {
   return histogram;
 }
 
+nlohmann::ordered_json fine_detail_to_json(const std::map<int, std::map<int, size_t>>& by_fidelity) {
+  nlohmann::ordered_json j = nlohmann::ordered_json::object();
+  for (const auto& [fidelity, histogram] : by_fidelity)
+    j[std::to_string(fidelity)] = histogram_to_json(histogram);
+  return j;
+}
+
 nlohmann::ordered_json counts_to_json(const ProcessingCounts& c) {
   return {{"images", c.images},
           {"quantised", c.quantised},
@@ -58,7 +65,8 @@ nlohmann::ordered_json counts_to_json(const ProcessingCounts& c) {
           {"screenshot_like", c.screenshot_like},
           {"double_jpeg", c.double_jpeg},
           {"jpeg_quality", histogram_to_json(c.jpeg_quality)},
-          {"resampling_bin_256", histogram_to_json(c.resampling_bin)}};
+          {"resampling_bin_256", histogram_to_json(c.resampling_bin)},
+          {"fine_detail_log10_centi", fine_detail_to_json(c.fine_detail)}};
 }
 
 ProcessingCounts counts_from_json(const nlohmann::json& j) {
@@ -70,6 +78,11 @@ ProcessingCounts counts_from_json(const nlohmann::json& j) {
   c.double_jpeg = j.at("double_jpeg");
   c.jpeg_quality = histogram_from_json(j.at("jpeg_quality"));
   c.resampling_bin = histogram_from_json(j.at("resampling_bin_256"));
+  // Absent in models trained before the fine-detail guard: no floor, no guard.
+  if (j.contains("fine_detail_log10_centi")) {
+    for (const auto& [fidelity, histogram] : j.at("fine_detail_log10_centi").items())
+      c.fine_detail[std::stoi(fidelity)] = histogram_from_json(histogram);
+  }
   return c;
 }
 
@@ -96,7 +109,16 @@ nlohmann::ordered_json processing_to_json(const ProcessingEvidence& e) {
       {"lossy_webp", e.lossy_webp},
       {"flat_share", e.flat_share},
       {"screenshot_like", e.screenshot_like},
+      {"decoder_warnings", decoder_warnings_to_json(e.decoder_warnings)},
+      {"damaged", e.damaged},
+      {"fine_detail", e.fine_detail},
       {"notes", e.notes}};
+}
+
+nlohmann::ordered_json decoder_warnings_to_json(const std::vector<DecoderWarning>& warnings) {
+  nlohmann::ordered_json out = nlohmann::ordered_json::array();
+  for (const auto& w : warnings) out.push_back({{"kind", w.kind}, {"message", w.message}});
+  return out;
 }
 
 ProcessingEvidence processing_from_json(const nlohmann::json& j) {
@@ -120,6 +142,11 @@ ProcessingEvidence processing_from_json(const nlohmann::json& j) {
   e.lossy_webp = j.at("lossy_webp");
   e.flat_share = j.at("flat_share");
   e.screenshot_like = j.at("screenshot_like");
+  for (const auto& w : j.at("decoder_warnings")) {
+    e.decoder_warnings.push_back({w.at("kind").get<std::string>(), w.at("message").get<std::string>()});
+  }
+  e.damaged = j.at("damaged");
+  e.fine_detail = j.at("fine_detail");
   e.notes = j.at("notes").get<std::vector<std::string>>();
   return e;
 }
@@ -346,6 +373,46 @@ std::vector<double> joint_limits(const std::vector<std::vector<double>>& distanc
   return limits_at(hi);
 }
 
+int compression_fidelity(const ProcessingEvidence& e) {
+  if (e.lossy_webp) return 0;
+  if (e.jpeg_quality) return *e.jpeg_quality < 75 ? 0 : *e.jpeg_quality < 90 ? 1 : 2;
+  return 3;
+}
+
+namespace {
+constexpr double kLeastFineDetail = 1e-3;
+int fine_detail_bin(double detail) {
+  return static_cast<int>(std::floor(100.0 * std::log10(std::max(detail, kLeastFineDetail))));
+}
+}  // namespace
+
+void add_fine_detail(ProcessingCounts& c, const ProcessingEvidence& e) {
+  c.fine_detail[compression_fidelity(e)][fine_detail_bin(e.fine_detail)] += 1;
+}
+
+std::optional<double> fine_detail_floor(const ProcessingCounts& camera, int fidelity, double share,
+                                        size_t min_support) {
+  // Compression only removes fine detail, so camera photos compressed as strongly or more are a
+  // reference that errs towards judging (a lower floor).
+  std::map<int, size_t> pooled;
+  size_t n = 0;
+  for (const auto& [f, histogram] : camera.fine_detail) {
+    if (f > fidelity) continue;
+    for (const auto& [bin, count] : histogram) {
+      pooled[bin] += count;
+      n += count;
+    }
+  }
+  if (n < min_support || n == 0) return std::nullopt;
+  const auto allowed = static_cast<size_t>(std::floor(share * static_cast<double>(n)));
+  size_t below = 0;
+  for (const auto& [bin, count] : pooled) {
+    if (below + count > allowed) return std::pow(10.0, bin / 100.0);
+    below += count;
+  }
+  return std::nullopt;
+}
+
 ProcessingCounts& operator+=(ProcessingCounts& c, const ProcessingEvidence& e) {
   c.images += 1;
   c.quantised += e.quantised ? 1 : 0;
@@ -355,6 +422,7 @@ ProcessingCounts& operator+=(ProcessingCounts& c, const ProcessingEvidence& e) {
   if (e.jpeg_quality) c.jpeg_quality[*e.jpeg_quality] += 1;
   if (e.resampling.detected)
     c.resampling_bin[static_cast<int>(std::lround(256 * e.resampling.frequency))] += 1;
+  add_fine_detail(c, e);
   return c;
 }
 
@@ -377,6 +445,13 @@ DomainCheck check_domain(const Applicability& a, const std::vector<double>& z, c
                           " traces lie outside what 99 % of them showed");
   }
   if (p == nullptr) return out;
+  // A damaged file first: whatever else is said, its pixels are not the ones that were written.
+  for (const auto& w : p->decoder_warnings) {
+    if (w.kind == "damaged") {
+      out.reasons.insert(out.reasons.begin(), "the file is damaged: " + w.message);
+      break;
+    }
+  }
   const size_t need = a.min_support;
   const auto& cam = a.camera;
   auto seen = [&](size_t k) {
@@ -406,6 +481,21 @@ DomainCheck check_domain(const Applicability& a, const std::vector<double>& z, c
   if (p->screenshot_like && cam.screenshot_like < need) {
     out.reasons.push_back("screenshot or graphics-like flat colour areas" + seen(cam.screenshot_like));
   }
+  const int fidelity = compression_fidelity(*p);
+  const auto floor = fine_detail_floor(cam, fidelity, a.fine_detail_share, need);
+  // Values under 0.001 share the lowest bin (fine_detail_bin): a flat image is not below a floor
+  // that flat camera photos set.
+  if (floor && std::max(p->fine_detail, kLeastFineDetail) < *floor) {
+    const std::string by = fidelity == 0 && p->jpeg_quality ? "heavily recompressed (JPEG quality about " +
+                                                                  std::to_string(*p->jpeg_quality) + ")"
+                           : fidelity == 0 ? "heavily compressed (lossy WebP) or blurred"
+                                           : "blurred or denoised";
+    out.reasons.push_back(
+        "too little fine detail left to judge (blurred, denoised or heavily recompressed): " +
+        fixed(p->fine_detail, 2) + " grey levels, below " + fixed(100.0 * (1.0 - a.fine_detail_share), 0) +
+        " % of the training's camera photos at this compression or stronger (" + fixed(*floor, 2) +
+        "); the traces look weakened, most likely " + by);
+  }
   return out;
 }
 
@@ -424,6 +514,7 @@ nlohmann::ordered_json applicability_to_json(const Applicability& a) {
           {"coverage", a.coverage},
           {"families", families},
           {"min_support", a.min_support},
+          {"fine_detail_share", a.fine_detail_share},
           {"processing_version", kProcessingVersion},
           {"processing", {{"camera", counts_to_json(a.camera)}, {"generated", counts_to_json(a.generated)}}}};
 }
@@ -432,6 +523,7 @@ Applicability applicability_from_json(const nlohmann::json& j) {
   Applicability a;
   a.coverage = j.at("coverage");
   a.min_support = j.at("min_support");
+  a.fine_detail_share = j.value("fine_detail_share", a.fine_detail_share);
   for (const auto& f : j.at("families")) {
     FamilyReference r;
     r.family = f.at("family");

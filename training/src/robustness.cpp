@@ -48,7 +48,7 @@ std::vector<ProcessingRow> evaluate_processing(const Dataset& dataset, const Mod
   for (const auto& name : transforms) {
     ProcessingRow row;
     row.transform = name;
-    for (const auto& t : everyday_transforms()) {
+    for (const auto& t : processing_transforms()) {
       if (t.name == name) row.description = t.description;
     }
     std::vector<double> p;
@@ -66,6 +66,7 @@ std::vector<ProcessingRow> evaluate_processing(const Dataset& dataset, const Mod
           p.push_back(o.p);
           y.push_back(generated ? 1 : 0);
           const double flagged = o.band == "likely-generated" ? 1.0 : 0.0;
+          const double passed = o.band == "likely-camera" ? 1.0 : 0.0;
           const double inconclusive = o.band == "inconclusive" ? 1.0 : 0.0;
           const double guarded = o.guarded ? 1.0 : 0.0;
           if (generated) {
@@ -73,11 +74,13 @@ std::vector<ProcessingRow> evaluate_processing(const Dataset& dataset, const Mod
             row.generated_caught += flagged;
             row.generated_inconclusive += inconclusive;
             row.generated_guarded += guarded;
+            row.generated_passed += passed;
           } else {
             ++row.camera;
             row.camera_flagged += flagged;
             row.camera_inconclusive += inconclusive;
             row.camera_guarded += guarded;
+            row.camera_passed += passed;
           }
         });
     const auto per = [](double& v, size_t count) { v = count > 0 ? v / static_cast<double>(count) : 0.0; };
@@ -87,6 +90,8 @@ std::vector<ProcessingRow> evaluate_processing(const Dataset& dataset, const Mod
     per(row.generated_caught, row.generated);
     per(row.generated_inconclusive, row.generated);
     per(row.generated_guarded, row.generated);
+    per(row.camera_passed, row.camera);
+    per(row.generated_passed, row.generated);
     row.roc_auc = row.camera > 0 && row.generated > 0 ? roc_auc(p, y) : 0.0;
     rows.push_back(row);
   }
@@ -107,6 +112,8 @@ nlohmann::ordered_json processing_rows_to_json(const std::vector<ProcessingRow>&
                    {"generated_likely_generated", r.generated_caught},
                    {"generated_inconclusive", r.generated_inconclusive},
                    {"generated_guarded", r.generated_guarded},
+                   {"camera_likely_camera", r.camera_passed},
+                   {"generated_likely_camera", r.generated_passed},
                    {"roc_auc", r.roc_auc}});
   }
   return out;
@@ -114,14 +121,15 @@ nlohmann::ordered_json processing_rows_to_json(const std::vector<ProcessingRow>&
 
 std::string processing_rows_to_text(const std::vector<ProcessingRow>& rows) {
   std::string out =
-      "transform         camera  generated  camera→likely-gen  camera inconcl.  generated caught  "
-      "generated inconcl.  AUC\n";
+      "transform         camera  generated  camera→likely-gen  camera inconcl.  camera→likely-cam  "
+      "generated caught  generated inconcl.  generated→likely-cam  AUC\n";
   for (const auto& r : rows) {
     char line[256];
-    std::snprintf(line, sizeof line, "%-17s %6zu  %9zu  %17s  %15s  %16s  %18s  %5.3f%s\n",
+    std::snprintf(line, sizeof line, "%-17s %6zu  %9zu  %17s  %15s  %17s  %16s  %18s  %20s  %5.3f%s\n",
                   r.transform.c_str(), r.camera, r.generated, percent(r.camera_flagged).c_str(),
-                  percent(r.camera_inconclusive).c_str(), percent(r.generated_caught).c_str(),
-                  percent(r.generated_inconclusive).c_str(), r.roc_auc,
+                  percent(r.camera_inconclusive).c_str(), percent(r.camera_passed).c_str(),
+                  percent(r.generated_caught).c_str(), percent(r.generated_inconclusive).c_str(),
+                  percent(r.generated_passed).c_str(), r.roc_auc,
                   r.failed > 0 ? ("  (" + std::to_string(r.failed) + " failed)").c_str() : "");
     out += line;
   }

@@ -158,9 +158,15 @@ Applicability fit_applicability(const Instances& items, const std::vector<int>& 
   }
   // The processing profile is the originals': processing that only augmented copies showed does
   // not count as seen, so the guards of check_domain stay (false positives are the worse error).
+  // Fine detail is the exception: the copies show how much of it camera photos keep after
+  // recompression and downscaling, which lowers the floor (fewer photos called weakened).
   for (size_t i = 0; i < items.size(); ++i) {
-    if (items[i]->augmentation.empty())
-      (labels[i] == 1 ? a.generated : a.camera) += items[i]->facts.processing;
+    auto& counts = labels[i] == 1 ? a.generated : a.camera;
+    if (items[i]->augmentation.empty()) {
+      counts += items[i]->facts.processing;
+    } else {
+      add_fine_detail(counts, items[i]->facts.processing);
+    }
   }
   return a;
 }

@@ -12,6 +12,7 @@
 #include <filesystem>
 #include <optional>
 #include <span>
+#include <string>
 #include <vector>
 
 #include "residue/features/image.hpp"
@@ -35,6 +36,35 @@ struct JpegQuantTables {
   std::optional<std::array<int, 64>> chroma;
 };
 
+// A message a decoder gave while it went on decoding. libjpeg, libpng and libtiff report recoverable
+// problems this way and return pixels anyway; none of them reaches stderr (decode.cpp).
+struct DecoderWarning {
+  // "damaged": the data are damaged and the pixels may not be the ones written (corrupt entropy
+  // data, extraneous bytes, a bad CRC, a premature end): the file must not be judged.
+  // "note": benign (a known-incorrect sRGB profile, an unknown tag): kept, changes nothing.
+  std::string kind;
+  std::string message;  // the library's name, then its own words ("libjpeg: Corrupt JPEG data: ...")
+};
+
+// Distinct warnings kept per file (a damaged one always finds a place).
+inline constexpr size_t kMaxDecoderWarnings = 16;
+
+// Whether any warning says the data are damaged.
+bool damaged(const std::vector<DecoderWarning>& warnings);
+
+// The kind of a warning from its words, for decoders without message codes (libtiff): "damaged"
+// when they speak of corrupt, truncated, premature or extraneous data, a bad CRC or code.
+std::string warning_kind_from_words(const std::string& message);
+
+// The kind of a libpng warning: "note" for a problem in an ancillary chunk (libpng prefixes the
+// chunk's name, lower-case first letter: "iCCP: known incorrect sRGB profile"), except a CRC error;
+// "damaged" for anything about the image data or a critical chunk.
+std::string png_warning_kind(const std::string& message);
+
+// Appends a warning, keeping at most kMaxDecoderWarnings distinct ones.
+void add_decoder_warning(std::vector<DecoderWarning>& warnings, const std::string& kind,
+                         const std::string& message);
+
 // The analysis input of one file.
 struct DecodedWindows {
   ImageHeader header;
@@ -42,9 +72,9 @@ struct DecodedWindows {
   bool alpha_dropped = false;  // the file had an alpha channel, ignored by the analysis
   WindowLayout layout;
   std::vector<Tile> tiles;
-  std::optional<JpegQuantTables> jpeg_tables;  // JPEG files only
-  std::uint64_t decoded_rows = 0;              // image rows actually decoded (JPEG skips the others)
-  int decoder_warnings = 0;                    // recoverable data errors the decoder reported
+  std::optional<JpegQuantTables> jpeg_tables;    // JPEG files only
+  std::uint64_t decoded_rows = 0;                // image rows actually decoded (JPEG skips the others)
+  std::vector<DecoderWarning> decoder_warnings;  // what the decoder reported and decoded past
 };
 
 // Reads a whole file, refusing one over the size limit before reading it.

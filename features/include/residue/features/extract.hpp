@@ -63,7 +63,6 @@ struct Extraction {
   bool alpha_dropped = false;
   WindowLayout layout;
   std::uint64_t decoded_rows = 0;
-  int decoder_warnings = 0;
   FeatureVector features;
   CompressionHistory compression;
   ProcessingEvidence processing;

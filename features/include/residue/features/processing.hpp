@@ -22,7 +22,7 @@ namespace residue {
 
 // Bump when any decision below changes: evidence stored by another version (the feature cache,
 // a model's processing profile) is then recomputed rather than trusted.
-inline constexpr int kProcessingVersion = 2;
+inline constexpr int kProcessingVersion = 3;
 
 struct ResamplingTrace {
   bool detected = false;
@@ -51,8 +51,20 @@ struct ProcessingEvidence {
   bool lossy_webp = false;
   double flat_share = 0.0;  // share of 4 x 4 blocks of one exact colour (clipped black/white excluded)
   bool screenshot_like = false;
+  // What the decoder reported and decoded past (decode.hpp); `damaged` when any says the data are.
+  std::vector<DecoderWarning> decoder_warnings;
+  bool damaged = false;
+  // How much fine detail (noise, texture, sharp edges) the pixels still carry: fine_detail() of the
+  // windows' luma, median over windows. Blurring, denoising and heavy recompression lower it.
+  double fine_detail = 0.0;
   std::vector<std::string> notes;  // one plain sentence per finding
 };
+
+// Fine detail of one luma plane, in grey levels (0..255 scale): Immerkaer's (1996) noise estimate
+// sqrt(pi/2) / (6 (W-2)(H-2)) * sum |I * N|, N = [[1,-2,1],[-2,4,-2],[1,-2,1]] (filters.hpp). For
+// i.i.d. Gaussian noise of standard deviation s on a flat image it is s; it is 0 on a flat or
+// linear ramp image; blur lowers it. Here it measures what is left of the finest scale, not noise.
+double fine_detail(const float* luma, int width, int height);
 
 // Kirchner (2008): a resampling factor w leaves p-map peaks at 1/w folded into [0, 0.5]. The
 // factors consistent with a folded frequency f in (0, 0.5): upscaling by 1/(1-f) and 1/f,

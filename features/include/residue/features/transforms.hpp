@@ -1,7 +1,9 @@
 // Everyday processing, applied to a file the way platforms and people process uploads: JPEG
 // recompression, lossy WebP, downscaling and upscaling, palette quantisation, sharpening, cropping,
-// screenshot-like rescaling. For `residue evaluate --processing`, benchmarks and tests: what a
-// model does on processed copies of images whose class is known.
+// screenshot-like rescaling. And laundering: what someone does to a generated image so that it
+// passes (blur, grain, a denoiser, a resize-and-recompress chain, a print-and-scan-like chain). For `residue
+// evaluate --processing`, benchmarks and tests: what a model does on processed copies of images whose class
+// is known.
 //
 // Each transform decodes the whole image (alpha dropped), changes it and encodes it again; names
 // are stable (they appear in reports). Thread safety: pure functions.
@@ -24,6 +26,12 @@ struct TransformInfo {
 
 // The everyday transforms, "as-published" (the file unchanged) first.
 const std::vector<TransformInfo>& everyday_transforms();
+
+// The laundering transforms (they follow the everyday ones in `evaluate --processing`).
+const std::vector<TransformInfo>& laundering_transforms();
+
+// Everyday then laundering: what `evaluate --processing` runs by default.
+std::vector<TransformInfo> processing_transforms();
 
 // Applies a named transform to a file's bytes; kUnsupported for an unknown name. Besides the
 // everyday names, parametrised ones: "jpeg-qN" and "webp-qN" (quality 1..100), "downscale-F"

@@ -33,6 +33,8 @@ namespace residue {
 nlohmann::ordered_json processing_to_json(const ProcessingEvidence& evidence);
 // Throws nlohmann::json::exception on a damaged document or one of another kProcessingVersion.
 ProcessingEvidence processing_from_json(const nlohmann::json& json);
+// [{"kind": "damaged" | "note", "message": ...}, ...]
+nlohmann::ordered_json decoder_warnings_to_json(const std::vector<DecoderWarning>& warnings);
 
 // --- Clopper-Pearson ---
 // One-sided upper confidence bound of a binomial proportion with k successes in n trials:
@@ -117,8 +119,24 @@ struct ProcessingCounts {
   size_t double_jpeg = 0;
   std::map<int, size_t> jpeg_quality;    // quality -> images
   std::map<int, size_t> resampling_bin;  // round(256 f) of detected traces -> images
+  // Fine detail (processing.hpp) per compression fidelity (compression_fidelity()): histogram of
+  // floor(100 log10(fine detail)) -> images. Camera originals and their augmented copies.
+  std::map<int, std::map<int, size_t>> fine_detail;
 };
 ProcessingCounts& operator+=(ProcessingCounts& counts, const ProcessingEvidence& evidence);
+// Adds only the fine detail (for augmented copies, whose other processing does not count as seen).
+void add_fine_detail(ProcessingCounts& counts, const ProcessingEvidence& evidence);
+
+// How much of the finest detail the file's compression keeps, from 0 (lossy WebP or JPEG below
+// quality 75) through 1 (JPEG 75-89) and 2 (JPEG 90 and above) to 3 (lossless).
+int compression_fidelity(const ProcessingEvidence& evidence);
+
+// The weakest fine detail the camera photos showed at a compression as strong as fidelity
+// `fidelity` or stronger: the lower edge of the histogram bin that holds the camera photo of rank
+// floor(share n) + 1 from the bottom (share 0.01: below 99 % of them), so that at most
+// floor(share n) camera photos lie below it. std::nullopt under `min_support` photos.
+std::optional<double> fine_detail_floor(const ProcessingCounts& camera, int fidelity, double share,
+                                        size_t min_support);
 
 struct Applicability {
   std::vector<FamilyReference> families;
@@ -126,6 +144,9 @@ struct Applicability {
   ProcessingCounts camera;
   ProcessingCounts generated;
   size_t min_support = 5;  // camera photos that must have shown a kind of processing
+  // Images whose fine detail lies below this share of the camera photos at the same compression
+  // are too weakened to judge (check_domain).
+  double fine_detail_share = 0.01;
 };
 
 struct DomainCheck {

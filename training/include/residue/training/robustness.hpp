@@ -2,7 +2,8 @@
 // labelled image is processed by each transform (transforms.hpp), extracted and scored with its
 // processing evidence, exactly as `scan` would; per transform, the share of camera photos put in
 // likely-generated (the false positives a reviewer would act on), the share made inconclusive,
-// the share of generated images still caught, and the ROC AUC of the probabilities.
+// the share of generated images still caught, the shares of each class in likely-camera (for
+// generated images: fakes waved through), and the ROC AUC of the probabilities.
 #pragma once
 
 #include <nlohmann/json.hpp>
@@ -28,7 +29,9 @@ struct ProcessingRow {
   double generated_caught = 0.0;     // generated images in likely-generated
   double generated_inconclusive = 0.0;
   double generated_guarded = 0.0;
-  double roc_auc = 0.0;  // of p_generated, whatever the band
+  double camera_passed = 0.0;     // camera photos in likely-camera
+  double generated_passed = 0.0;  // generated images in likely-camera: fakes waved through
+  double roc_auc = 0.0;           // of p_generated, whatever the band
 };
 
 std::vector<ProcessingRow> evaluate_processing(const Dataset& dataset, const Model& model,
