@@ -147,9 +147,16 @@ std::string table_line(const nlohmann::ordered_json& r) {
       tail = std::to_string(r["camera_tail"]["camera_photos_at_least"].get<size_t>()) + " of " +
              std::to_string(r["camera_tail"]["camera_photos"].get<size_t>()) + " camera";
     }
-    std::snprintf(line, sizeof line, "%s  %6.3f  %-16s %-18s %s\n", shown.c_str(),
+    // Why an inconclusive record is: the first reason up to its colon or parenthesis ("the file is
+    // damaged", "too little fine detail left to judge"); the JSON record has the whole sentence.
+    std::string why;
+    if (r["band"] == "inconclusive" && r.contains("reasons") && !r["reasons"].empty()) {
+      const std::string first = r["reasons"][0];
+      why = first.substr(0, std::min(first.find(" ("), first.find(':')));
+    }
+    std::snprintf(line, sizeof line, "%s  %6.3f  %-16s %-18s %s%s%s\n", shown.c_str(),
                   r["p_generated"].get<double>(), r["band"].get<std::string>().c_str(), tail.c_str(),
-                  declared.c_str());
+                  declared.c_str(), declared.empty() || why.empty() ? "" : "; ", why.c_str());
   }
   return line;
 }

@@ -123,8 +123,12 @@ std::string why_inconclusive(const std::vector<nlohmann::json>& records) {
   if (shown.empty()) return h + "<p>No record is inconclusive.</p>";
   h +=
       "<p>The tool abstains rather than guess when an image lies outside what its training data showed, when "
-      "it carries processing the training photos never showed, or when its score falls between the two "
-      "thresholds. The probability is still given, but it is not a judgement.</p><table><tr><th>reason</th>"
+      "it carries processing the training photos never showed, when the file is damaged (its decoder "
+      "reported corrupt data and decoded past it), when too little fine detail is left to judge (the traces "
+      "were weakened: blurred, denoised or heavily recompressed, perhaps on purpose), or when its score "
+      "falls "
+      "between the two thresholds. The probability is still given, but it is not a judgement.</p><table><tr>"
+      "<th>reason</th>"
       "<th>records</th></tr>";
   for (const auto& [kind, n] : kinds) {
     h += "<tr><td>" + html_escape(kind) + "</td><td class='n'>" + std::to_string(n) + "</td></tr>";

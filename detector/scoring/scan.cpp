@@ -58,6 +58,8 @@ nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::
   // What limits the score: processing evidence (reported, never learned), whether the image lies
   // inside what the training data showed, and why the record is inconclusive.
   r["processing"] = processing_to_json(extraction->processing);
+  // What the decoder reported and decoded past; a damaged file is inconclusive (the reasons say so).
+  r["decoder_warnings"] = decoder_warnings_to_json(extraction->processing.decoder_warnings);
   r["in_domain"] = s.domain ? nlohmann::ordered_json(s.domain->in_domain) : nlohmann::ordered_json(nullptr);
   if (s.domain) {
     r["applicability"] = {{"distance", s.domain->distance},

@@ -5,6 +5,7 @@
 #include <doctest/doctest.h>
 
 #include <algorithm>
+#include <map>
 #include <random>
 #include <set>
 
@@ -178,6 +179,50 @@ TEST_CASE("calibrated threshold: the promise printed is the promise recomputed f
     CHECK(c.record.camera_images == n);
     CHECK(c.record.generated_images == 300);
   }
+}
+
+TEST_CASE("likely-camera threshold: the promise holds for each kind of processed copy, not just pooled") {
+  // 300 generated originals scoring high, and a JPEG copy and a downscaled copy of each; the JPEG
+  // copies score lower (processing weakens the traces). Pooled, 5 % of 900 would let 45 images
+  // under the threshold, all of them JPEG copies (15 % of that kind); per kind, at most 15 of each.
+  auto images = simulated(1500, 300, 5);
+  std::vector<CalibrationImage> copies;
+  for (const auto& im : images) {
+    if (im.label != 1) continue;
+    for (const char* transform : {"jpeg-q83", "downscale-0.72"}) {
+      CalibrationImage c = im;
+      c.copy = true;
+      c.copy_kind = transform_kind(transform);
+      if (c.copy_kind == "jpeg") c.p = std::max(0.0, c.p - 0.3);
+      copies.push_back(c);
+    }
+  }
+  images.insert(images.end(), copies.begin(), copies.end());
+  const Calibrated c = calibrate_thresholds(images, {0.01, 0.95, 0.05}, "held-out");
+  REQUIRE(c.likely_camera.has_value());
+  std::map<std::string, std::pair<size_t, size_t>> below;  // kind -> (under the threshold, all)
+  for (const auto& im : images) {
+    if (im.label != 1) continue;
+    auto& [under, all] = below[im.copy ? im.copy_kind : "original"];
+    under += im.p < *c.likely_camera ? 1 : 0;
+    ++all;
+  }
+  REQUIRE(below.size() == 3);
+  for (const auto& [kind, counts] : below) {
+    CAPTURE(kind);
+    CHECK(static_cast<double>(counts.first) <= 0.05 * static_cast<double>(counts.second));
+  }
+  // The JPEG copies set it: one more of them would break that kind's promise.
+  CHECK(below.at("jpeg").first == 15);
+}
+
+TEST_CASE("transform kinds drop the parameter") {
+  CHECK(transform_kind("jpeg-q83") == "jpeg");
+  CHECK(transform_kind("webp-q70") == "webp");
+  CHECK(transform_kind("downscale-0.72") == "downscale");
+  CHECK(transform_kind("crop-centre-0.6") == "crop-centre");
+  CHECK(transform_kind("as-published") == "as-published");
+  CHECK(transform_kind("print-scan") == "print-scan");
 }
 
 TEST_CASE("calibrated threshold: guarded camera photos are counted but never flagged") {

@@ -21,6 +21,7 @@ std::vector<CalibrationImage> score_for_calibration(const Model& model,
     // The reasons of the applicability check are the guards; "between the thresholds" is not one.
     im.guarded = s.domain && !s.domain->reasons.empty();
     im.copy = copy;
+    if (copy) im.copy_kind = transform_kind(item.augmentation);
     im.sha256 = item.sha256;
     im.path = item.file.path;
     images.push_back(std::move(im));

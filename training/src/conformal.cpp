@@ -12,6 +12,17 @@
 
 namespace residue {
 
+std::string transform_kind(const std::string& transform) {
+  const size_t dash = transform.rfind('-');
+  if (dash == std::string::npos || dash + 1 >= transform.size()) return transform;
+  const std::string rest = transform.substr(dash + 1);
+  const bool number = std::all_of(rest.begin(), rest.end(),
+                                  [](char c) { return (c >= '0' && c <= '9') || c == '.' || c == 'q'; });
+  if (!number) return transform;
+  // "jpeg-q83": the parameter is "q83"; "crop-centre-0.72": "0.72".
+  return transform.substr(0, dash);
+}
+
 namespace {
 
 // 1240 -> "1,240"
@@ -173,7 +184,6 @@ Calibrated calibrate_thresholds(const std::vector<CalibrationImage>& images,
   r.source = source;
   std::set<int> camera_groups;
   std::vector<std::string> lines;
-  std::vector<double> generated_unguarded;
   size_t generated = 0;
   for (const auto& im : images) {
     p.push_back(im.p);
@@ -209,19 +219,27 @@ Calibrated calibrate_thresholds(const std::vector<CalibrationImage>& images,
   r.supported_threshold = tightest.first;
 
   // Likely-camera: generated images (copies included: a laundered copy is what the band must
-  // not take in) that a guard leaves to their score.
+  // not take in) that a guard leaves to their score. The band's promise must hold for the images
+  // as published and after each kind of processing the copies simulate, so the threshold is the
+  // lowest of the per-kind thresholds: at most `generated_miss` of each kind's generated images
+  // (guarded ones counted, never below) fall under it.
+  std::map<std::string, std::pair<size_t, std::vector<double>>> by_kind;  // kind -> (all, unguarded p)
   for (const auto& im : images) {
-    if (im.label == 1) {
-      ++generated;
-      if (!im.guarded) generated_unguarded.push_back(im.p);
-    }
+    if (im.label != 1) continue;
+    ++generated;
+    auto& [all, unguarded] = by_kind[im.copy ? im.copy_kind : ""];
+    ++all;
+    if (!im.guarded) unguarded.push_back(im.p);
   }
   if (generated > 0) {
-    std::sort(generated_unguarded.begin(), generated_unguarded.end());
-    const auto miss =
-        static_cast<size_t>(std::floor(settings.generated_miss * static_cast<double>(generated)));
-    // At most `miss` unguarded generated images below the threshold.
-    const double t = miss < generated_unguarded.size() ? generated_unguarded[miss] : 1.0;
+    double t = 1.0;
+    for (auto& [kind, counts] : by_kind) {
+      auto& [all, unguarded] = counts;
+      std::sort(unguarded.begin(), unguarded.end());
+      const auto miss = static_cast<size_t>(std::floor(settings.generated_miss * static_cast<double>(all)));
+      // At most `miss` unguarded generated images of this kind below the threshold.
+      if (miss < unguarded.size()) t = std::min(t, unguarded[miss]);
+    }
     out.likely_camera = std::min(t, std::min(1.0, out.likely_generated));
     r.likely_camera_calibrated = true;
   }

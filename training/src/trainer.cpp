@@ -273,6 +273,7 @@ std::vector<CalibrationImage> out_of_fold_calibration(const Instances& instances
     im.label = labels[i];
     im.group = groups[i];
     im.copy = i >= n;
+    if (im.copy) im.copy_kind = transform_kind(instances[i]->augmentation);
     im.sha256 = instances[i]->sha256;
     im.path = instances[i]->file.path;
   }

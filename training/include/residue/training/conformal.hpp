@@ -37,13 +37,18 @@ namespace residue {
 struct CalibrationImage {
   double p = 0.0;  // P(generated) at the model's training base rate
   double margin = 0.0;
-  int label = 0;         // 0 camera, 1 generated
-  int group = 0;         // images that are not independent (near duplicates, declared groups, copies)
-  bool guarded = false;  // a guard makes it inconclusive whatever its score
-  bool copy = false;     // an augmented copy of a calibration image (in its original's group)
-  std::string sha256;    // of the file (the original's for a copy); for the digest
+  int label = 0;          // 0 camera, 1 generated
+  int group = 0;          // images that are not independent (near duplicates, declared groups, copies)
+  bool guarded = false;   // a guard makes it inconclusive whatever its score
+  bool copy = false;      // an augmented copy of a calibration image (in its original's group)
+  std::string copy_kind;  // a copy's transform without its parameter ("jpeg", "downscale"); "" for originals
+  std::string sha256;     // of the file (the original's for a copy); for the digest
   std::string path;
 };
+
+// A transform's kind: its name without the trailing parameter ("jpeg-q83" -> "jpeg",
+// "crop-centre-0.72" -> "crop-centre"); names without a number are their own kind.
+std::string transform_kind(const std::string& transform);
 
 // Where a score stands among the calibration camera photos.
 struct TailPosition {
