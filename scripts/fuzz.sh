@@ -52,6 +52,30 @@ for size in (64, 96):
     im.convert("RGBA").save(f"{out}/rgba{size}.webp", lossless=True)
     Image.fromarray(np.asarray(im.convert("L"), np.uint16) * 257).save(f"{out}/grey16_{size}.png")
     im.save(f"{out}/progressive{size}.jpg", quality=70, progressive=True)
+# Damaged but decodable (the decoder warns and goes on): JPEGs with flipped bits in the
+# entropy-coded data, a PNG whose text chunk fails its CRC, a PNG with a known-incorrect sRGB
+# profile (scikit-image's chelsea.png carries one; libpng calls it a benign note).
+import io, random, zlib
+from skimage.data import data_dir
+for size in (64, 96):
+    buf = io.BytesIO()
+    Image.fromarray(photo[100:100 + size, 180:180 + size]).save(buf, "JPEG", quality=90)
+    raw = buf.getvalue()
+    sos = raw.index(b"\xff\xda")
+    start = sos + 2 + int.from_bytes(raw[sos + 2:sos + 4], "big")
+    for seed in range(3):
+        r, b = random.Random(seed), bytearray(raw)
+        for _ in range(4):
+            b[r.randrange(start, len(b) - 2)] ^= 1 << r.randrange(8)
+        open(f"{out}/flipped{size}_{seed}.jpg", "wb").write(b)
+png = io.BytesIO()
+Image.fromarray(photo[:64, :64]).save(png, "PNG")
+raw = png.getvalue()
+text = b"tEXt" + b"Comment\0damaged"
+chunk = len(text[4:]).to_bytes(4, "big") + text + ((zlib.crc32(text) ^ 1) & 0xFFFFFFFF).to_bytes(4, "big")
+open(f"{out}/bad_crc_text64.png", "wb").write(raw[:33] + chunk + raw[33:])
+chelsea = Image.open(f"{data_dir}/chelsea.png")
+chelsea.crop((0, 0, 64, 64)).save(f"{out}/srgb_note64.png", icc_profile=chelsea.info["icc_profile"])
 PY
       ;;
     model)

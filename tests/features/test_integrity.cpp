@@ -2,7 +2,9 @@
 // block transform not read as resampling, and the fine-detail measure against its definition.
 // Photographs: scikit-image's samples (python3-skimage, public domain / CC0).
 #include <doctest/doctest.h>
+#include <zlib.h>
 
+#include <array>
 #include <cmath>
 #include <random>
 
@@ -103,6 +105,39 @@ TEST_CASE("a PNG with a known-incorrect sRGB profile gets a note, not damage") {
   REQUIRE(whole);
   CHECK(whole->width == 451);
   CHECK(whole->height == 300);
+}
+
+TEST_CASE("a PNG whose text chunk fails its CRC is damaged (libpng warns and skips the chunk)") {
+  // PNG specification (ISO/IEC 15948, 5.3): each chunk ends with the CRC-32 of its type and data.
+  auto png = encode_image(test::load(test::sample("astronaut.png")), ImageFormat::kPng);
+  REQUIRE(png);
+  const std::string text = std::string("tEXt") + "Comment" + '\0' + "damaged";
+  const auto bad_crc = static_cast<std::uint32_t>(crc32(0, reinterpret_cast<const Bytef*>(text.data()),
+                                                        static_cast<uInt>(text.size()))) ^
+                       1U;
+  const auto length = static_cast<std::uint32_t>(text.size() - 4);
+  std::array<std::uint8_t, 8> ends{};  // big-endian length, then the wrong CRC
+  for (size_t k = 0; k < 4; ++k) {
+    ends[k] = static_cast<std::uint8_t>(length >> (24 - 8 * k));
+    ends[4 + k] = static_cast<std::uint8_t>(bad_crc >> (24 - 8 * k));
+  }
+  std::string chunk(ends.begin(), ends.begin() + 4);
+  chunk += text;
+  chunk.append(ends.begin() + 4, ends.end());
+  std::vector<std::uint8_t> bytes;  // signature and IHDR (33 bytes), the chunk, the rest
+  bytes.reserve(png->size() + chunk.size());
+  for (size_t i = 0; i < png->size(); ++i) {
+    if (i == 33) {
+      for (const auto b : chunk) bytes.push_back(b);
+    }
+    bytes.push_back((*png)[i]);
+  }
+  auto e = extract_bytes(bytes);
+  REQUIRE(e);
+  REQUIRE(e->processing.decoder_warnings.size() == 1);
+  CHECK(e->processing.decoder_warnings[0].kind == "damaged");
+  CHECK(e->processing.decoder_warnings[0].message == "libpng: tEXt: CRC error");
+  CHECK(e->processing.damaged);
 }
 
 TEST_CASE("warning kinds: libpng's chunk prefixes, and words for decoders without codes") {
