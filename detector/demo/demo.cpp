@@ -49,6 +49,25 @@ struct Maker {
   }
 };
 
+// A JPEG damaged in transfer: `flips` single-bit flips in its entropy-coded data (after the SOS
+// header, before the EOI marker), drawn from `seed`. libjpeg decodes past such damage with a
+// "Corrupt JPEG data" warning.
+std::vector<std::uint8_t> damaged_in_transfer(std::vector<std::uint8_t> bytes, unsigned seed, int flips) {
+  size_t start = 0;
+  for (size_t i = 0; i + 3 < bytes.size(); ++i) {
+    if (bytes[i] == 0xFF && bytes[i + 1] == 0xDA) {
+      start = i + 2 + (static_cast<size_t>(bytes[i + 2]) << 8U | bytes[i + 3]);
+      break;
+    }
+  }
+  if (start == 0 || start + 3 > bytes.size()) return bytes;
+  std::mt19937 rng(seed);
+  std::uniform_int_distribution<size_t> where(start, bytes.size() - 3);
+  std::uniform_int_distribution<int> bit(0, 7);
+  for (int k = 0; k < flips; ++k) bytes[where(rng)] ^= static_cast<std::uint8_t>(1U << static_cast<unsigned>(bit(rng)));
+  return bytes;
+}
+
 }  // namespace
 
 Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& out, int jobs,
@@ -109,6 +128,15 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
     std::ofstream broken(out / "entries" / "entry-020.jpg", std::ios::binary);
     broken << "\xFF\xD8\xFF\xE0 this upload was cut off";
     truth << "entry-020.jpg,broken-upload\n";
+  }
+  {
+    // A camera photo whose upload was damaged in transfer: it decodes, but is never judged.
+    auto bytes = encode_image(maker.random_crop(256, 400), ImageFormat::kJpeg, 90);
+    if (!bytes) return bytes.error();
+    const auto damaged = damaged_in_transfer(*bytes, 21, 20);
+    std::ofstream(out / "entries" / "entry-021.jpg", std::ios::binary)
+        .write(reinterpret_cast<const char*>(damaged.data()), static_cast<std::streamsize>(damaged.size()));
+    truth << "entry-021.jpg,damaged-upload\n";
     truth.close();
   }
 
@@ -137,7 +165,7 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
                 trained->model.id.c_str());
   log << line;
 
-  log << "3. Scanning the contest entries (one is a broken upload)\n";
+  log << "3. Scanning the contest entries (one is a broken upload, one was damaged in transfer)\n";
   std::vector<std::string> entries;
   for (const auto& e : fs::directory_iterator(out / "entries")) entries.push_back(e.path().string());
   std::sort(entries.begin(), entries.end());
@@ -173,10 +201,12 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
       const std::string tail = t.is_object() ? std::to_string(t["camera_photos_at_least"].get<size_t>()) +
                                                    " of " + std::to_string(t["camera_photos"].get<size_t>())
                                              : "-";
-      std::snprintf(line, sizeof line, "   %-14s %-20s %8.3f  %-17s %-8s%s\n", name.c_str(),
+      const bool damaged = !r["reasons"].empty() && r["reasons"][0].get<std::string>().starts_with("the file is damaged");
+      std::snprintf(line, sizeof line, "   %-14s %-20s %8.3f  %-17s %-8s%s%s\n", name.c_str(),
                     truth_of[name].c_str(), r["p_generated"].get<double>(),
                     r["band"].get<std::string>().c_str(), tail.c_str(),
-                    r["declared"].is_null() ? "" : "  (metadata declares a camera capture)");
+                    r["declared"].is_null() ? "" : "  (metadata declares a camera capture)",
+                    damaged ? "  (the file is damaged: not judged)" : "");
       if (top == nullptr || r["p_generated"].get<double>() > (*top)["p_generated"].get<double>()) top = &r;
     }
     log << line;

@@ -131,11 +131,13 @@ Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> 
   const auto webp = parameter(name, "webp-q", 1, 100);
   const auto down = parameter(name, "downscale-", 0.05, 0.999);
   const auto cropped = parameter(name, "crop-centre-", 0.05, 0.999);
+  const auto blur = parameter(name, "blur-", 0.3, 5.0);
+  const auto noise = parameter(name, "noise-", 0.5, 20.0);
   const auto named = [&](const std::vector<TransformInfo>& list) {
     return std::any_of(list.begin(), list.end(), [&](const TransformInfo& t) { return t.name == name; });
   };
   const bool known = named(everyday_transforms()) || named(laundering_transforms());
-  if (!known && !jpeg && !webp && !down && !cropped)
+  if (!known && !jpeg && !webp && !down && !cropped && !blur && !noise)
     return make_error(ErrorCode::kUnsupported, "unknown transform '" + name + "'");
   auto decoded = decode_image(bytes, limits);
   if (!decoded) return decoded.error();
@@ -154,8 +156,8 @@ Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> 
   if (name == "sharpen") return encode_image(sharpened(image, 1.0, 0.8), ImageFormat::kPng);
   if (name == "screenshot-0.8")
     return encode_image(scaled(image, 0.8, ResizeFilter::kBilinear), ImageFormat::kPng);
-  if (name == "blur-1.5") return encode_image(detail::gaussian_blur(image, 1.5), ImageFormat::kPng);
-  if (name == "noise-4") return encode_image(noisy(image, 4.0, 4), ImageFormat::kPng);
+  if (blur) return encode_image(detail::gaussian_blur(image, *blur), ImageFormat::kPng);
+  if (noise) return encode_image(noisy(image, *noise, 4), ImageFormat::kPng);
   if (name == "median-3") return encode_image(median_filtered(image), ImageFormat::kPng);
   if (name == "resize-chain") {
     auto first = through_jpeg(scaled(image, 0.6, ResizeFilter::kArea), 85, limits);

@@ -22,7 +22,7 @@ TEST_CASE("augmentation copies are drawn from the file hash, within the document
   CHECK(augmentation_transforms(Augment::kNone, a).empty());
   CHECK(augmentation_transforms(Augment::kLight, a).size() == 2);
   const auto full = augmentation_transforms(Augment::kFull, b);
-  REQUIRE(full.size() == 4);
+  REQUIRE(full.size() == 5);
   CHECK(full == augmentation_transforms(Augment::kFull, b));  // reproducible
   const std::regex jpeg("jpeg-q([0-9]+)"), webp("webp-q([0-9]+)"), down("downscale-(0\\.[0-9]+)"),
       crop_re("crop-centre-(0\\.[0-9]+)");
@@ -35,6 +35,26 @@ TEST_CASE("augmentation copies are drawn from the file hash, within the document
   CHECK(std::stod(m[1]) <= 0.9);
   REQUIRE(std::regex_match(full[2], m, webp));
   REQUIRE(std::regex_match(full[3], m, crop_re));
+  // One laundering copy: blur sigma 0.8..2.0, noise sigma 2..6, or a 3 x 3 median; each kind drawn
+  // for some of the hashes.
+  const std::regex blur_re("blur-([0-9.]+)"), noise_re("noise-([0-9.]+)");
+  std::set<std::string> kinds;
+  for (char c : std::string("0123456789abcdef")) {
+    const std::string t = augmentation_transforms(Augment::kFull, std::string(64, c)).at(4);
+    if (std::regex_match(t, m, blur_re)) {
+      CHECK(std::stod(m[1]) >= 0.8);
+      CHECK(std::stod(m[1]) <= 2.0);
+      kinds.insert("blur");
+    } else if (std::regex_match(t, m, noise_re)) {
+      CHECK(std::stod(m[1]) >= 2.0);
+      CHECK(std::stod(m[1]) <= 6.0);
+      kinds.insert("noise");
+    } else {
+      CHECK(t == "median-3");
+      kinds.insert("median");
+    }
+  }
+  CHECK(kinds.size() == 3);
   // Different files get different draws (over a few hashes, not all the same).
   std::set<std::string> qualities;
   for (char c : std::string("0123456789abcdef"))
@@ -70,6 +90,24 @@ TEST_CASE("parametrised transforms do what their names say") {
   CHECK_FALSE(apply_transform(bytes, "downscale-1.5").ok());  // upscaling is not a downscale
   CHECK_FALSE(apply_transform(bytes, "jpeg-q0").ok());
   CHECK_FALSE(apply_transform(bytes, "jpeg-qx").ok());
+  // Noise of sigma 3 on the photo: the difference from the original (both as decoded) has a
+  // standard deviation near 3 (clamping at 0 and 255 trims it a little).
+  auto noisy = apply_transform(bytes, "noise-3.0");
+  REQUIRE(noisy.ok());
+  auto before = decode_image(bytes);
+  auto after = decode_image(*noisy);
+  REQUIRE(before.ok());
+  REQUIRE(after.ok());
+  double sum = 0.0, squares = 0.0;
+  for (size_t i = 0; i < after->samples.size(); ++i) {
+    const double d = after->samples[i] - before->samples[i];
+    sum += d;
+    squares += d * d;
+  }
+  const auto n = static_cast<double>(after->samples.size());
+  CHECK(std::sqrt(squares / n - (sum / n) * (sum / n)) == doctest::Approx(3.0).epsilon(0.05));
+  CHECK(apply_transform(bytes, "blur-1.2").ok());
+  CHECK_FALSE(apply_transform(bytes, "blur-9").ok());  // outside 0.3..5
 }
 
 TEST_CASE("window pooling: the mean, or the mean of the highest third (hand-worked)") {

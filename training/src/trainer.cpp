@@ -158,13 +158,16 @@ Applicability fit_applicability(const Instances& items, const std::vector<int>& 
   }
   // The processing profile is the originals': processing that only augmented copies showed does
   // not count as seen, so the guards of check_domain stay (false positives are the worse error).
-  // Fine detail is the exception: the copies show how much of it camera photos keep after
-  // recompression and downscaling, which lowers the floor (fewer photos called weakened).
+  // Fine detail is the exception: the everyday copies show how much of it camera photos keep
+  // after recompression, downscaling and cropping, which lowers the floor (fewer photos called
+  // weakened). The laundering copies (blur, noise, median) do not count: they are what the floor
+  // is there to catch.
   for (size_t i = 0; i < items.size(); ++i) {
     auto& counts = labels[i] == 1 ? a.generated : a.camera;
+    const std::string kind = transform_kind(items[i]->augmentation);
     if (items[i]->augmentation.empty()) {
       counts += items[i]->facts.processing;
-    } else {
+    } else if (kind == "jpeg" || kind == "webp" || kind == "downscale" || kind == "crop-centre") {
       add_fine_detail(counts, items[i]->facts.processing);
     }
   }

@@ -16,7 +16,8 @@ namespace residue {
 enum class Augment {
   kNone,   // the images as they are
   kLight,  // + a JPEG recompression (quality 65-95) and a downscale (0.5-0.9, area filter)
-  kFull,   // + a lossy WebP (quality 65-95) and a centre crop (0.5-0.9 of each side)
+  kFull,   // + a lossy WebP (quality 65-95), a centre crop (0.5-0.9 of each side) and one laundering
+           //   copy: Gaussian blur (sigma 0.8-2.0), added Gaussian noise (sigma 2-6) or a 3 x 3 median
 };
 
 std::string augment_name(Augment a);
