@@ -131,13 +131,14 @@ Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> 
   const auto webp = parameter(name, "webp-q", 1, 100);
   const auto down = parameter(name, "downscale-", 0.05, 0.999);
   const auto cropped = parameter(name, "crop-centre-", 0.05, 0.999);
+  const auto up = parameter(name, "upscale-", 1.001, 4.0);
   const auto blur = parameter(name, "blur-", 0.3, 5.0);
   const auto noise = parameter(name, "noise-", 0.5, 20.0);
   const auto named = [&](const std::vector<TransformInfo>& list) {
     return std::any_of(list.begin(), list.end(), [&](const TransformInfo& t) { return t.name == name; });
   };
   const bool known = named(everyday_transforms()) || named(laundering_transforms());
-  if (!known && !jpeg && !webp && !down && !cropped && !blur && !noise)
+  if (!known && !jpeg && !webp && !down && !up && !cropped && !blur && !noise)
     return make_error(ErrorCode::kUnsupported, "unknown transform '" + name + "'");
   auto decoded = decode_image(bytes, limits);
   if (!decoded) return decoded.error();
@@ -151,8 +152,7 @@ Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> 
     const int h = std::max(1, static_cast<int>(image.height * *cropped));
     return encode_image(crop(image, (image.width - w) / 2, (image.height - h) / 2, w, h), ImageFormat::kPng);
   }
-  if (name == "upscale-1.5")
-    return encode_image(scaled(image, 1.5, ResizeFilter::kBicubic), ImageFormat::kPng);
+  if (up) return encode_image(scaled(image, *up, ResizeFilter::kBicubic), ImageFormat::kPng);
   if (name == "sharpen") return encode_image(sharpened(image, 1.0, 0.8), ImageFormat::kPng);
   if (name == "screenshot-0.8")
     return encode_image(scaled(image, 0.8, ResizeFilter::kBilinear), ImageFormat::kPng);

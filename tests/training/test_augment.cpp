@@ -22,7 +22,7 @@ TEST_CASE("augmentation copies are drawn from the file hash, within the document
   CHECK(augmentation_transforms(Augment::kNone, a).empty());
   CHECK(augmentation_transforms(Augment::kLight, a).size() == 2);
   const auto full = augmentation_transforms(Augment::kFull, b);
-  REQUIRE(full.size() == 5);
+  REQUIRE(full.size() == 6);
   CHECK(full == augmentation_transforms(Augment::kFull, b));  // reproducible
   const std::regex jpeg("jpeg-q([0-9]+)"), webp("webp-q([0-9]+)"), down("downscale-(0\\.[0-9]+)"),
       crop_re("crop-centre-(0\\.[0-9]+)");
@@ -55,6 +55,9 @@ TEST_CASE("augmentation copies are drawn from the file hash, within the document
     }
   }
   CHECK(kinds.size() == 3);
+  REQUIRE(std::regex_match(full[5], m, std::regex("upscale-([0-9.]+)")));
+  CHECK(std::stod(m[1]) >= 1.1);
+  CHECK(std::stod(m[1]) <= 1.5);
   // Different files get different draws (over a few hashes, not all the same).
   std::set<std::string> qualities;
   for (char c : std::string("0123456789abcdef"))

@@ -22,10 +22,10 @@ std::string quality(const char* prefix, std::uint64_t bits) {
   return prefix + std::to_string(65 + bits % 31);  // 65..95
 }
 
-std::string fraction(const char* prefix, std::uint64_t bits) {
+// prefix + a factor in [from, from + 0.40] in steps of 0.01 (0.50..0.90 by default).
+std::string fraction(const char* prefix, std::uint64_t bits, double from = 0.5) {
   char buf[48];
-  std::snprintf(buf, sizeof buf, "%s%.2f", prefix,
-                0.5 + 0.01 * static_cast<double>(bits % 41));  // 0.50..0.90
+  std::snprintf(buf, sizeof buf, "%s%.2f", prefix, from + 0.01 * static_cast<double>(bits % 41));
   return buf;
 }
 
@@ -75,6 +75,7 @@ std::vector<std::string> augmentation_transforms(Augment level, const std::strin
     out.push_back(quality("webp-q", hash_bits(sha256, 32)));
     out.push_back(fraction("crop-centre-", hash_bits(sha256, 48)));
     out.push_back(laundering(hash_bits(sha256, 8), hash_bits(sha256, 40)));
+    out.push_back(fraction("upscale-", hash_bits(sha256, 24), 1.1));
   }
   return out;
 }

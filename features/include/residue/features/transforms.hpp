@@ -36,6 +36,7 @@ std::vector<TransformInfo> processing_transforms();
 // Applies a named transform to a file's bytes; kUnsupported for an unknown name. Besides the
 // everyday names, parametrised ones: "jpeg-qN" and "webp-qN" (quality 1..100), "downscale-F"
 // (area filter, saved as PNG) and "crop-centre-F" (each side times F, saved as PNG), 0 < F < 1;
+// "upscale-F" (bicubic, saved as PNG), 1 < F <= 4;
 // "blur-S" (Gaussian, sigma S px, 0.3..5) and "noise-S" (additive Gaussian, sigma S grey levels,
 // 0.5..20), saved as PNG.
 Result<std::vector<std::uint8_t>> apply_transform(std::span<const std::uint8_t> bytes,
