@@ -64,7 +64,8 @@ std::vector<std::uint8_t> damaged_in_transfer(std::vector<std::uint8_t> bytes, u
   std::mt19937 rng(seed);
   std::uniform_int_distribution<size_t> where(start, bytes.size() - 3);
   std::uniform_int_distribution<int> bit(0, 7);
-  for (int k = 0; k < flips; ++k) bytes[where(rng)] ^= static_cast<std::uint8_t>(1U << static_cast<unsigned>(bit(rng)));
+  for (int k = 0; k < flips; ++k)
+    bytes[where(rng)] ^= static_cast<std::uint8_t>(1U << static_cast<unsigned>(bit(rng)));
   return bytes;
 }
 
@@ -94,12 +95,12 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
   for (int i = 0; i < 40; ++i) {
     char name[64];
     std::snprintf(name, sizeof name, "member-photo-%03d", i);
-    if (auto r = maker.save(maker.random_crop(256, 400), out / "training" / "camera" / name, i); !r)
+    if (auto r = Maker::save(maker.random_crop(256, 400), out / "training" / "camera" / name, i); !r)
       return r.error();
     const int d = i % 2;
     std::snprintf(name, sizeof name, "sample-%03d", i);
-    if (auto r = maker.save(simulate_decoder_output(maker.random_crop(256, 400), decoders[d]),
-                            out / "training" / "generated" / decoder_names[d] / name, i / 2);
+    if (auto r = Maker::save(simulate_decoder_output(maker.random_crop(256, 400), decoders[d]),
+                             out / "training" / "generated" / decoder_names[d] / name, i / 2);
         !r) {
       return r.error();
     }
@@ -112,7 +113,7 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
     const bool simulated = i % 3 == 1;
     const Image image = simulated ? simulate_decoder_output(maker.random_crop(256, 400), decoders[i % 2])
                                   : maker.random_crop(256, 400);
-    auto path = maker.save(image, out / "entries" / name, i);
+    auto path = Maker::save(image, out / "entries" / name, i);
     if (!path) return path.error();
     if (i == 4) {  // one camera entry declares itself a camera capture in its XMP
       auto bytes = read_file(*path);
@@ -201,7 +202,8 @@ Result<DemoPaths> run_contest_demo(const fs::path& photo_dir, const fs::path& ou
       const std::string tail = t.is_object() ? std::to_string(t["camera_photos_at_least"].get<size_t>()) +
                                                    " of " + std::to_string(t["camera_photos"].get<size_t>())
                                              : "-";
-      const bool damaged = !r["reasons"].empty() && r["reasons"][0].get<std::string>().starts_with("the file is damaged");
+      const bool damaged =
+          !r["reasons"].empty() && r["reasons"][0].get<std::string>().starts_with("the file is damaged");
       std::snprintf(line, sizeof line, "   %-14s %-20s %8.3f  %-17s %-8s%s%s\n", name.c_str(),
                     truth_of[name].c_str(), r["p_generated"].get<double>(),
                     r["band"].get<std::string>().c_str(), tail.c_str(),

@@ -39,25 +39,24 @@ struct DoubleJpegTrace {
 };
 
 struct ProcessingEvidence {
-  bool palette_file = false;           // the container stores colour indices (PNG type 3, BMP <= 8 bit)
-  std::uint32_t distinct_colours = 0;  // in the analysed windows
   std::uint64_t analysed_pixels = 0;
-  bool grey_in_colour = false;  // three equal channels: judged as grey (at most 256 levels anyway)
-  double histogram_gaps = 0.0;  // largest share, over channels, of empty levels inside the 1-99 % range
-  bool quantised = false;       // palette file, <= 256 colours, or a combed histogram
-  ResamplingTrace resampling;
-  std::optional<int> jpeg_quality;  // from the quantisation tables (JPEG files)
-  DoubleJpegTrace double_jpeg;      // JPEG files
+  std::uint32_t distinct_colours = 0;  // in the analysed windows
+  bool palette_file = false;           // the container stores colour indices (PNG type 3, BMP <= 8 bit)
+  bool grey_in_colour = false;         // three equal channels: judged as grey (at most 256 levels anyway)
+  bool quantised = false;              // palette file, <= 256 colours, or a combed histogram
   bool lossy_webp = false;
-  double flat_share = 0.0;  // share of 4 x 4 blocks of one exact colour (clipped black/white excluded)
   bool screenshot_like = false;
-  // What the decoder reported and decoded past (decode.hpp); `damaged` when any says the data are.
-  std::vector<DecoderWarning> decoder_warnings;
-  bool damaged = false;
+  bool damaged = false;         // a decoder warning says the data are damaged
+  double histogram_gaps = 0.0;  // largest share, over channels, of empty levels inside the 1-99 % range
+  double flat_share = 0.0;      // share of 4 x 4 blocks of one exact colour (clipped black/white excluded)
   // How much fine detail (noise, texture, sharp edges) the pixels still carry: fine_detail() of the
   // windows' luma, median over windows. Blurring, denoising and heavy recompression lower it.
   double fine_detail = 0.0;
-  std::vector<std::string> notes;  // one plain sentence per finding
+  ResamplingTrace resampling;
+  std::optional<int> jpeg_quality;               // from the quantisation tables (JPEG files)
+  DoubleJpegTrace double_jpeg;                   // JPEG files
+  std::vector<DecoderWarning> decoder_warnings;  // what the decoder reported and decoded past (decode.hpp)
+  std::vector<std::string> notes;                // one plain sentence per finding
 };
 
 // Fine detail of one luma plane, in grey levels (0..255 scale): Immerkaer's (1996) noise estimate
