@@ -184,7 +184,8 @@ TEST_CASE("calibrated threshold: the promise printed is the promise recomputed f
 TEST_CASE("likely-camera threshold: the promise holds for each kind of processed copy, not just pooled") {
   // 300 generated originals scoring high, and a JPEG copy and a downscaled copy of each; the JPEG
   // copies score lower (processing weakens the traces). Pooled, 5 % of 900 would let 45 images
-  // under the threshold, all of them JPEG copies (15 % of that kind); per kind, at most 15 of each.
+  // under the threshold, all of them JPEG copies (15 % of that kind); per kind, at most m of each,
+  // m the largest count whose 95 % Clopper-Pearson bound over 300 stays within 5 %.
   auto images = simulated(1500, 300, 5);
   std::vector<CalibrationImage> copies;
   for (const auto& im : images) {
@@ -212,8 +213,18 @@ TEST_CASE("likely-camera threshold: the promise holds for each kind of processed
     CAPTURE(kind);
     CHECK(static_cast<double>(counts.first) <= 0.05 * static_cast<double>(counts.second));
   }
-  // The JPEG copies set it: one more of them would break that kind's promise.
-  CHECK(below.at("jpeg").first == 15);
+  // The JPEG copies set it: one more of them would break that kind's promise (the bounds from
+  // scipy.stats.binomtest's exact interval, tests/reference/applicability_reference.py).
+  const size_t m = below.at("jpeg").first;
+  const auto at_m = test::numbers(test::python("applicability_reference.py", {"cp", std::to_string(m), "300", "0.95"}));
+  const auto past_m =
+      test::numbers(test::python("applicability_reference.py", {"cp", std::to_string(m + 1), "300", "0.95"}));
+  CHECK(at_m[0] <= 0.05);
+  CHECK(past_m[0] > 0.05);
+  CHECK(m > 0);
+  CHECK(c.record.likely_camera_set_by == "jpeg");
+  CHECK(c.record.likely_camera_images == 300);
+  CHECK(c.record.likely_camera_bound == doctest::Approx(at_m[0]).epsilon(1e-9));
 }
 
 TEST_CASE("transform kinds drop the parameter") {

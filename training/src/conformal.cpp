@@ -9,6 +9,7 @@
 #include <stdexcept>
 
 #include "residue/features/fingerprint.hpp"
+#include "residue/training/applicability.hpp"
 
 namespace residue {
 
@@ -153,7 +154,10 @@ nlohmann::ordered_json calibration_record_to_json(const CalibrationRecord& r) {
           {"digest", r.digest},
           {"supported_fpr", r.supported_fpr},
           {"supported_threshold", r.supported_threshold},
-          {"likely_camera_calibrated", r.likely_camera_calibrated}};
+          {"likely_camera_calibrated", r.likely_camera_calibrated},
+          {"likely_camera_set_by", r.likely_camera_set_by},
+          {"likely_camera_images", r.likely_camera_images},
+          {"likely_camera_bound", r.likely_camera_bound}};
 }
 
 CalibrationRecord calibration_record_from_json(const nlohmann::json& j) {
@@ -171,6 +175,10 @@ CalibrationRecord calibration_record_from_json(const nlohmann::json& j) {
   r.supported_fpr = j.at("supported_fpr").get<double>();
   r.supported_threshold = j.at("supported_threshold").get<double>();
   r.likely_camera_calibrated = j.at("likely_camera_calibrated").get<bool>();
+  // Absent in records from before per-kind likely-camera thresholds.
+  r.likely_camera_set_by = j.value("likely_camera_set_by", std::string());
+  r.likely_camera_images = j.value("likely_camera_images", size_t{0});
+  r.likely_camera_bound = j.value("likely_camera_bound", 1.0);
   return r;
 }
 
@@ -219,10 +227,13 @@ Calibrated calibrate_thresholds(const std::vector<CalibrationImage>& images,
   r.supported_threshold = tightest.first;
 
   // Likely-camera: generated images (copies included: a laundered copy is what the band must
-  // not take in) that a guard leaves to their score. The band's promise must hold for the images
-  // as published and after each kind of processing the copies simulate, so the threshold is the
-  // lowest of the per-kind thresholds: at most `generated_miss` of each kind's generated images
-  // (guarded ones counted, never below) fall under it.
+  // not take in) that a guard leaves to their score. The band's promise, "at most `generated_miss`
+  // of generated images fall in it, with `confidence`", must hold for the images as published and
+  // after each kind of processing the copies simulate, so it is set per kind and the lowest wins:
+  // per kind, the most images m that may lie below the threshold is the largest whose one-sided
+  // Clopper-Pearson bound on m / (all of that kind, guarded included) stays within generated_miss,
+  // the same form as the likely-generated promise. With none allowed (fewer than about 60 images
+  // of a kind at 5 %), the threshold is that kind's lowest unguarded score.
   std::map<std::string, std::pair<size_t, std::vector<double>>> by_kind;  // kind -> (all, unguarded p)
   for (const auto& im : images) {
     if (im.label != 1) continue;
@@ -236,9 +247,18 @@ Calibrated calibrate_thresholds(const std::vector<CalibrationImage>& images,
     for (auto& [kind, counts] : by_kind) {
       auto& [all, unguarded] = counts;
       std::sort(unguarded.begin(), unguarded.end());
-      const auto miss = static_cast<size_t>(std::floor(settings.generated_miss * static_cast<double>(all)));
-      // At most `miss` unguarded generated images of this kind below the threshold.
-      if (miss < unguarded.size()) t = std::min(t, unguarded[miss]);
+      size_t m = 0;
+      while (m < unguarded.size() &&
+             clopper_pearson_upper(m + 1, all, settings.confidence) <= settings.generated_miss) {
+        ++m;
+      }
+      const double kind_threshold = m < unguarded.size() ? unguarded[m] : 1.0;  // m images below it
+      if (kind_threshold < t || r.likely_camera_set_by.empty()) {
+        t = std::min(t, kind_threshold);
+        r.likely_camera_set_by = kind.empty() ? "originals" : kind;
+        r.likely_camera_images = all;
+        r.likely_camera_bound = clopper_pearson_upper(m, all, settings.confidence);
+      }
     }
     out.likely_camera = std::min(t, std::min(1.0, out.likely_generated));
     r.likely_camera_calibrated = true;

@@ -106,6 +106,11 @@ struct CalibrationRecord {
   double supported_fpr = 1.0;
   double supported_threshold = 1.0;
   bool likely_camera_calibrated = false;  // generated images set the likely-camera threshold
+  // The kind of generated image that set it ("originals", "jpeg", "noise", ...), how many of that
+  // kind there were, and the 95 % Clopper-Pearson bound on the share of them below it.
+  std::string likely_camera_set_by;
+  size_t likely_camera_images = 0;
+  double likely_camera_bound = 1.0;
 };
 
 nlohmann::ordered_json calibration_record_to_json(const CalibrationRecord& record);
@@ -126,8 +131,10 @@ struct Calibrated {
 };
 
 // Thresholds and tail from scored calibration images (see the definitions above). The
-// likely-camera threshold, when generated images are given, is the lowest p below which at most
-// `generated_miss` of them fall unguarded (capped at the likely-generated threshold).
+// likely-camera threshold, when generated images are given, is the lowest over the originals and
+// each kind of copy of the p below which the share of that kind falling unguarded stays within
+// `generated_miss` at `confidence` (one-sided Clopper-Pearson), capped at the likely-generated
+// threshold.
 Calibrated calibrate_thresholds(const std::vector<CalibrationImage>& images,
                                 const CalibrationSettings& settings, const std::string& source);
 
