@@ -66,10 +66,14 @@ std::string python(const std::string& script, const std::vector<std::string>& ar
   return out;
 }
 
-Image load(const std::filesystem::path& path) {
+std::vector<std::uint8_t> file_bytes(const std::filesystem::path& path) {
   auto bytes = read_file(path);
   if (!bytes) throw std::runtime_error(path.string() + ": " + bytes.error().message);
-  auto image = decode_image(*bytes);
+  return std::move(bytes).value();
+}
+
+Image load(const std::filesystem::path& path) {
+  auto image = decode_image(file_bytes(path));
   if (!image) throw std::runtime_error(path.string() + ": " + image.error().message);
   return std::move(image).value();
 }

@@ -19,6 +19,9 @@ std::filesystem::path scratch();
 // Fails the test (throws) when the script exits non-zero.
 std::string python(const std::string& script, const std::vector<std::string>& args);
 
+// A file's bytes (fails the test on error).
+std::vector<std::uint8_t> file_bytes(const std::filesystem::path& path);
+
 // Decodes a file completely (fails the test on error).
 Image load(const std::filesystem::path& path);
 

@@ -17,12 +17,6 @@ using namespace residue;
 
 namespace {
 
-std::vector<std::uint8_t> file_bytes(const std::filesystem::path& path) {
-  auto bytes = read_file(path);
-  REQUIRE(bytes);
-  return *bytes;
-}
-
 // A JPEG of the astronaut with `flips` single-bit flips in its entropy-coded data, drawn with
 // `seed`: the kind of damage a bad transfer does. Flips land between the end of the SOS header and
 // the two bytes of the EOI marker.
@@ -93,7 +87,7 @@ TEST_CASE("libjpeg's warnings about flipped bits are caught as damage, and the f
 TEST_CASE("a PNG with a known-incorrect sRGB profile gets a note, not damage") {
   // scikit-image's chelsea.png carries the 3144-byte HP/Microsoft sRGB profile that libpng's
   // png_sRGB_checks table lists as broken; libpng warns "iCCP: known incorrect sRGB profile".
-  auto e = extract_bytes(file_bytes(test::sample("chelsea.png")));
+  auto e = extract_bytes(test::file_bytes(test::sample("chelsea.png")));
   REQUIRE(e);
   REQUIRE(e->processing.decoder_warnings.size() == 1);
   CHECK(e->processing.decoder_warnings[0].kind == "note");
@@ -101,7 +95,7 @@ TEST_CASE("a PNG with a known-incorrect sRGB profile gets a note, not damage") {
   CHECK_FALSE(e->processing.damaged);
   // The whole-image decode (pictures, transforms) reads it through the same libpng path, with the
   // same pixels as the windows.
-  auto whole = decode_image(file_bytes(test::sample("chelsea.png")));
+  auto whole = decode_image(test::file_bytes(test::sample("chelsea.png")));
   REQUIRE(whole);
   CHECK(whole->width == 451);
   CHECK(whole->height == 300);
@@ -219,7 +213,7 @@ TEST_CASE("fine detail against its definition: flat, ramp, white noise of known 
 }
 
 TEST_CASE("fine detail falls under blur, a median filter and strong JPEG, and the evidence carries it") {
-  const auto bytes = file_bytes(test::sample("astronaut.png"));
+  const auto bytes = test::file_bytes(test::sample("astronaut.png"));
   auto original = extract_bytes(bytes);
   REQUIRE(original);
   const double before = original->processing.fine_detail;

@@ -15,12 +15,6 @@ using namespace residue;
 
 namespace {
 
-std::vector<std::uint8_t> file_bytes(const std::filesystem::path& path) {
-  auto bytes = read_file(path);
-  REQUIRE(bytes);
-  return *bytes;
-}
-
 ProcessingEvidence evidence_of(const std::vector<std::uint8_t>& bytes) {
   auto e = extract_bytes(bytes);
   REQUIRE(e);
@@ -85,7 +79,7 @@ TEST_CASE("histogram_dips counts levels emptied by double quantisation (hand-wor
 }
 
 TEST_CASE("processing evidence: an untouched photograph shows none") {
-  const auto e = evidence_of(file_bytes(test::sample("astronaut.png")));
+  const auto e = evidence_of(test::file_bytes(test::sample("astronaut.png")));
   CHECK_FALSE(e.quantised);
   CHECK_FALSE(e.resampling.detected);
   CHECK_FALSE(e.jpeg_quality.has_value());
@@ -98,7 +92,7 @@ TEST_CASE("processing evidence: an untouched photograph shows none") {
 }
 
 TEST_CASE("processing evidence: palette PNG, lossy WebP, upscaling, JPEG quality and double JPEG") {
-  const auto original = file_bytes(test::sample("astronaut.png"));
+  const auto original = test::file_bytes(test::sample("astronaut.png"));
 
   const auto palette = evidence_of(transformed(original, "palette-256"));
   CHECK(palette.palette_file);
@@ -142,7 +136,7 @@ TEST_CASE("processing evidence: palette PNG, lossy WebP, upscaling, JPEG quality
 TEST_CASE("processing evidence reusing the families' windows equals the evidence computed alone") {
   // extract_bytes hands the windows whose p-map spectra the resampling family made to the
   // processing evidence; the families must leave them as the evidence would make them.
-  const auto original = file_bytes(test::sample("astronaut.png"));
+  const auto original = test::file_bytes(test::sample("astronaut.png"));
   for (const auto& bytes : {transformed(original, "upscale-1.5"), transformed(original, "jpeg-q75")}) {
     auto decoded = decode_windows(bytes);
     REQUIRE(decoded);
@@ -186,7 +180,7 @@ TEST_CASE("median cut keeps an image of four colours exact and caps the palette"
 }
 
 TEST_CASE("apply_transform refuses an unknown name and keeps as-published byte for byte") {
-  const auto original = file_bytes(test::sample("astronaut.png"));
+  const auto original = test::file_bytes(test::sample("astronaut.png"));
   CHECK(transformed(original, "as-published") == original);
   auto bad = apply_transform(original, "sepia");
   REQUIRE_FALSE(bad);
@@ -229,5 +223,5 @@ TEST_CASE("combed histograms and exact flat colour areas (images made by the tes
   CHECK(e->processing.flat_share > 0.9);
   CHECK(e->processing.screenshot_like);
   // A photograph has no such areas.
-  CHECK(evidence_of(file_bytes(test::sample("astronaut.png"))).flat_share < 0.05);
+  CHECK(evidence_of(test::file_bytes(test::sample("astronaut.png"))).flat_share < 0.05);
 }

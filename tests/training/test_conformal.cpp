@@ -216,7 +216,8 @@ TEST_CASE("likely-camera threshold: the promise holds for each kind of processed
   // The JPEG copies set it: one more of them would break that kind's promise (the bounds from
   // scipy.stats.binomtest's exact interval, tests/reference/applicability_reference.py).
   const size_t m = below.at("jpeg").first;
-  const auto at_m = test::numbers(test::python("applicability_reference.py", {"cp", std::to_string(m), "300", "0.95"}));
+  const auto at_m =
+      test::numbers(test::python("applicability_reference.py", {"cp", std::to_string(m), "300", "0.95"}));
   const auto past_m =
       test::numbers(test::python("applicability_reference.py", {"cp", std::to_string(m + 1), "300", "0.95"}));
   CHECK(at_m[0] <= 0.05);
