@@ -69,7 +69,7 @@ with tempfile.TemporaryDirectory() as tmp:
     cs = c["calibration_set"]
     check(cs["source"] == "held-out" and cs["camera_images"] == 40 and cs["unreadable"] == 2,
           f"the 40 readable camera photos were used: {cs}")
-    check(cs["copies"] == 8 * 60, f"full augmentation by default: 8 copies of each of 40 + 20 images ({cs['copies']})")
+    check(cs["copies"] == 6 * 60, f"full augmentation by default: 6 copies of each of 40 + 20 images ({cs['copies']})")
     check(len(c["camera_tail"]["margins"]) == 40 and c["camera_tail"]["source"] == "held-out camera photos",
           "the tail holds the 40 camera originals, never copies")
     # 40 photos cannot promise 1 %; the promise says what they support and what is needed.

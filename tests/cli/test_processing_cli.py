@@ -43,9 +43,9 @@ with tempfile.TemporaryDirectory() as tmp:
     with open(model) as f:
         m = json.load(f)
     promise = m["thresholds"].get("promise", {})
-    # The promise counts the augmented copies (8 per image with the default --augment full) as
+    # The promise counts the augmented copies (6 per image with the default --augment full) as
     # camera images, and the 30 photos as its groups.
-    check(promise.get("camera_images") == 270 and promise.get("camera_groups") == 30
+    check(promise.get("camera_images") == 210 and promise.get("camera_groups") == 30
           and promise.get("confidence") == 0.95, f"promise recorded: {promise}")
     # 30 camera images cannot promise 1 % at 95 %: ceil(ln 0.05 / ln 0.99) = 299 groups are needed.
     check(promise.get("met") is False and promise.get("groups_needed", 0) >= 299 - 30,
