@@ -29,13 +29,20 @@ std::string fraction(const char* prefix, std::uint64_t bits, double from = 0.5) 
   return buf;
 }
 
-// The laundering copies: a Gaussian blur (sigma 0.8..2.0 px), additive Gaussian noise (sigma
-// 2..6 grey levels) and a 3 x 3 median filter.
-std::vector<std::string> laundering(std::uint64_t blur_bits, std::uint64_t noise_bits) {
-  char blur[48], noise[48];
-  std::snprintf(blur, sizeof blur, "blur-%.1f", 0.8 + 0.1 * static_cast<double>(blur_bits % 13));
-  std::snprintf(noise, sizeof noise, "noise-%.1f", 2.0 + 0.5 * static_cast<double>(noise_bits % 9));
-  return {blur, noise, "median-3"};
+// One laundering copy: a Gaussian blur (sigma 0.8..2.0 px), additive Gaussian noise (sigma
+// 2..6 grey levels) or a 3 x 3 median filter, a third of the images each.
+std::string laundering(std::uint64_t kind_bits, std::uint64_t parameter_bits) {
+  char buf[48];
+  switch (kind_bits % 3) {
+    case 0:
+      std::snprintf(buf, sizeof buf, "blur-%.1f", 0.8 + 0.1 * static_cast<double>(parameter_bits % 13));
+      return buf;
+    case 1:
+      std::snprintf(buf, sizeof buf, "noise-%.1f", 2.0 + 0.5 * static_cast<double>(parameter_bits % 9));
+      return buf;
+    default:
+      return "median-3";
+  }
 }
 
 }  // namespace
@@ -67,8 +74,8 @@ std::vector<std::string> augmentation_transforms(Augment level, const std::strin
   if (level == Augment::kFull) {
     out.push_back(quality("webp-q", hash_bits(sha256, 32)));
     out.push_back(fraction("crop-centre-", hash_bits(sha256, 48)));
+    out.push_back(laundering(hash_bits(sha256, 8), hash_bits(sha256, 40)));
     out.push_back(fraction("upscale-", hash_bits(sha256, 24), 1.1));
-    for (auto& t : laundering(hash_bits(sha256, 8), hash_bits(sha256, 40))) out.push_back(std::move(t));
   }
   return out;
 }

@@ -16,9 +16,9 @@ namespace residue {
 enum class Augment {
   kNone,   // the images as they are
   kLight,  // + a JPEG recompression (quality 65-95) and a downscale (0.5-0.9, area filter)
-  kFull,   // + a lossy WebP (quality 65-95), a centre crop (0.5-0.9 of each side), a bicubic upscale
-           //   (1.1-1.5) and three laundering copies: Gaussian blur (sigma 0.8-2.0), added Gaussian
-           //   noise (sigma 2-6) and a 3 x 3 median
+  kFull,   // + a lossy WebP (quality 65-95), a centre crop (0.5-0.9 of each side) and one laundering
+           //   copy: Gaussian blur (sigma 0.8-2.0), added Gaussian noise (sigma 2-6) or a 3 x 3 median;
+           //   and a bicubic upscale (1.1-1.5)
 };
 
 std::string augment_name(Augment a);
