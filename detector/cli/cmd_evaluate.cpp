@@ -1,5 +1,6 @@
 // `residue evaluate MODEL ROOT`: metrics of a model on labelled folders it did not see.
 #include <algorithm>
+#include <cmath>
 #include <cstdio>
 #include <iostream>
 #include <map>
@@ -97,10 +98,14 @@ int run_evaluate(const EvaluateArgs& args) {
           cls, total, b["likely-generated"], b["inconclusive"], b["likely-camera"]);
     }
     if (args.processing) {
-      std::cout << "\nEveryday processing (each image processed, then scanned as an upload would be):\n"
+      std::cout << "\nEveryday processing and laundering (each image processed, then scanned as an upload "
+                   "would be):\n"
                 << processing_rows_to_text(processing)
                 << "Inconclusive counts every abstention: outside the training domain, processing the "
-                   "training data never showed, or a score between the thresholds.\n";
+                   "training data never showed, a damaged file, too little fine detail left to judge, or a "
+                   "score between the thresholds. Generated images in likely-camera are fakes the band "
+                   "waved through (it promises at most "
+                << static_cast<int>(std::lround(100 * model->thresholds.generated_miss)) << " %).\n";
     }
     std::cout << "\n" << kAdvisoryNotice << "\n";
   }
