@@ -209,9 +209,9 @@ TEST_CASE("likely-camera threshold: the promise holds for each kind of processed
     ++all;
   }
   REQUIRE(below.size() == 3);
-  for (const auto& [kind, counts] : below) {
-    CAPTURE(kind);
-    CHECK(static_cast<double>(counts.first) <= 0.05 * static_cast<double>(counts.second));
+  for (const auto& entry : below) {
+    CAPTURE(entry.first);
+    CHECK(static_cast<double>(entry.second.first) <= 0.05 * static_cast<double>(entry.second.second));
   }
   // The JPEG copies set it: one more of them would break that kind's promise (the bounds from
   // scipy.stats.binomtest's exact interval, tests/reference/applicability_reference.py).
