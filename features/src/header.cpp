@@ -101,6 +101,20 @@ Result<ImageHeader> bmp_header(Bytes b) {
   } else {
     return make_error(ErrorCode::kUnsupported, "BMP info header of " + std::to_string(dib) + " bytes");
   }
+  // Uncompressed rows (BI_RGB, BI_BITFIELDS) are padded to 4 bytes and start at the data offset:
+  // a file shorter than that is truncated. Said here, because OpenCV's decoder would print its
+  // failure to stderr in the middle of a run.
+  const std::uint32_t compression = dib >= 40 && b.size() >= 34 ? le32(b, 30) : 0;
+  if (compression == 0 || compression == 3) {
+    const std::uint64_t row =
+        (static_cast<std::uint64_t>(h.bit_depth) * static_cast<std::uint64_t>(h.width) + 31) / 32 * 4;
+    const std::uint64_t needed = le32(b, 10) + row * static_cast<std::uint64_t>(h.height);
+    if (b.size() < needed) {
+      return make_error(ErrorCode::kTruncated, "BMP data ends before the image does (" +
+                                                   std::to_string(b.size()) + " of " +
+                                                   std::to_string(needed) + " bytes)");
+    }
+  }
   h.palette = h.bit_depth > 0 && h.bit_depth <= 8;  // 1-, 4- and 8-bit BMPs index a colour table
   h.channels = h.bit_depth == 32 ? 4 : (h.bit_depth == 8 ? 1 : 3);
   h.bit_depth = 8;

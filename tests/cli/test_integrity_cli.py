@@ -33,7 +33,7 @@ module_dir = sys.argv[2] if len(sys.argv) > 2 and sys.argv[2] else None
 run = runner(residue)
 here = os.path.dirname(os.path.abspath(__file__))
 SAMPLES = "/usr/lib/python3/dist-packages/skimage/data"
-DECODER_WORDS = ("libpng", "Corrupt JPEG", "iCCP", "libjpeg", "TIFF", "warning")
+DECODER_WORDS = ("libpng", "Corrupt JPEG", "iCCP", "libjpeg", "TIFF", "warning", "imdecode")
 
 
 def flipped_jpegs(folder):
@@ -85,6 +85,11 @@ with tempfile.TemporaryDirectory() as tmp:
     os.makedirs(entries)
     flipped = flipped_jpegs(entries)
     shutil.copy(os.path.join(SAMPLES, "chelsea.png"), os.path.join(entries, "chelsea.png"))
+    # A BMP cut in half: OpenCV's decoder would print its failure; the header check says it first.
+    bmp = io.BytesIO()
+    Image.open(os.path.join(SAMPLES, "astronaut.png")).convert("RGB").save(bmp, "BMP")
+    with open(os.path.join(entries, "cut.bmp"), "wb") as f:
+        f.write(bmp.getvalue()[: len(bmp.getvalue()) // 2])
     out = os.path.join(tmp, "scan.jsonl")
     scan = run(["scan", model, entries, "-o", out])
     quiet(scan.stderr, "scan")
@@ -99,6 +104,8 @@ with tempfile.TemporaryDirectory() as tmp:
         r = records[name]
         check(r.get("band") not in ("likely-camera", "likely-generated"),
               f"no flipped JPEG gets a band: {name} {r.get('band')} {r.get('error')}")
+    check(records["cut.bmp"].get("error", {}).get("code") == "truncated",
+          f"a BMP cut in half is truncated: {records['cut.bmp'].get('error')}")
     chelsea = records["chelsea.png"]
     check(chelsea.get("decoder_warnings") == [{"kind": "note", "message": "libpng: iCCP: known incorrect sRGB profile"}],
           f"the sRGB profile warning is kept as a note: {chelsea.get('decoder_warnings')}")
