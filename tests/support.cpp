@@ -4,6 +4,8 @@
 
 #include <cstdio>
 #include <fstream>
+#include <opencv2/core.hpp>
+#include <opencv2/imgcodecs.hpp>
 #include <sstream>
 #include <stdexcept>
 
@@ -70,6 +72,22 @@ std::vector<std::uint8_t> file_bytes(const std::filesystem::path& path) {
   auto bytes = read_file(path);
   if (!bytes) throw std::runtime_error(path.string() + ": " + bytes.error().message);
   return std::move(bytes).value();
+}
+
+Image opencv_reference(const std::vector<std::uint8_t>& bytes) {
+  const cv::Mat raw(1, static_cast<int>(bytes.size()), CV_8UC1, const_cast<std::uint8_t*>(bytes.data()));
+  const cv::Mat mat = cv::imdecode(raw, cv::IMREAD_UNCHANGED);
+  if (mat.empty()) throw std::runtime_error("OpenCV could not decode the reference image");
+  const int channels = mat.channels() >= 3 ? 3 : 1;
+  std::vector<cv::Mat> split;
+  cv::split(mat, split);
+  Image image = Image::zeros(mat.cols, mat.rows, channels);
+  for (int c = 0; c < channels; ++c) {
+    cv::Mat dst(mat.rows, mat.cols, CV_32F, image.plane(c));
+    split[static_cast<size_t>(channels == 3 ? 2 - c : 0)].convertTo(
+        dst, CV_32F, mat.depth() == CV_16U ? 1.0 / 257.0 : 1.0);
+  }
+  return image;
 }
 
 Image load(const std::filesystem::path& path) {

@@ -22,6 +22,11 @@ std::string python(const std::string& script, const std::vector<std::string>& ar
 // A file's bytes (fails the test on error).
 std::vector<std::uint8_t> file_bytes(const std::filesystem::path& path);
 
+// A whole image decoded by OpenCV's imdecode (IMREAD_UNCHANGED), alpha dropped, channels as R, G, B,
+// 16-bit samples divided by 257: the outside reference the decoders are checked against (throws
+// when OpenCV cannot decode it).
+Image opencv_reference(const std::vector<std::uint8_t>& bytes);
+
 // Decodes a file completely (fails the test on error).
 Image load(const std::filesystem::path& path);
 

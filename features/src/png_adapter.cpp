@@ -58,20 +58,24 @@ void raise_error(png_structp png, png_const_charp message) {
 
 constexpr float kOne257th = static_cast<float>(1.0 / 257.0);
 
-// Copies image row y (interleaved samples, 8 or 16 bits big-endian) into every tile covering it.
+// Channel c of `count` interleaved pixels starting at src (8 bits, or 16 bits big-endian scaled by
+// 1/257 onto the 8-bit scale in single precision, as OpenCV's convertTo) into dst.
+void unpack_channel(const png_byte* src, int count, int channels, int c, int bit_depth, float* dst) {
+  const size_t bytes_per_sample = bit_depth == 16 ? 2 : 1;
+  for (int i = 0; i < count; ++i) {
+    const size_t k = (static_cast<size_t>(i) * channels + c) * bytes_per_sample;
+    dst[i] = bit_depth == 16 ? static_cast<float>((src[k] << 8) | src[k + 1]) * kOne257th : src[k];
+  }
+}
+
+// Copies image row y (interleaved samples) into every tile covering it.
 void scatter_png_row(const png_byte* row, int y, int channels, int bit_depth, std::vector<Tile>& tiles) {
   const size_t bytes_per_sample = bit_depth == 16 ? 2 : 1;
   for (auto& t : tiles) {
     if (y < t.y || y >= t.y + t.size) continue;
     const png_byte* src = row + static_cast<size_t>(t.x) * channels * bytes_per_sample;
-    for (int c = 0; c < channels; ++c) {
-      float* dst = t.plane(c) + static_cast<size_t>(y - t.y) * t.size;
-      for (int i = 0; i < t.size; ++i) {
-        const size_t k = (static_cast<size_t>(i) * channels + c) * bytes_per_sample;
-        // 16 bits: scaled by 1/257 onto the 8-bit scale in single precision, as OpenCV's convertTo.
-        dst[i] = bit_depth == 16 ? static_cast<float>((src[k] << 8) | src[k + 1]) * kOne257th : src[k];
-      }
-    }
+    for (int c = 0; c < channels; ++c)
+      unpack_channel(src, t.size, channels, c, bit_depth, t.plane(c) + static_cast<size_t>(y - t.y) * t.size);
   }
 }
 
@@ -190,13 +194,9 @@ Result<PngImage> decode_png_image(std::span<const std::uint8_t> bytes) {
         out.image = Image::zeros(s.width, s.height, s.channels);
       },
       [&](int y, const png_byte* row) {
-        const size_t bytes_per_sample = shape.depth == 16 ? 2 : 1;
         for (int c = 0; c < shape.channels; ++c) {
-          float* dst = out.image.plane(c) + static_cast<size_t>(y) * shape.width;
-          for (int i = 0; i < shape.width; ++i) {
-            const size_t k = (static_cast<size_t>(i) * shape.channels + c) * bytes_per_sample;
-            dst[i] = shape.depth == 16 ? static_cast<float>((row[k] << 8) | row[k + 1]) * kOne257th : row[k];
-          }
+          unpack_channel(row, shape.width, shape.channels, c, shape.depth,
+                         out.image.plane(c) + static_cast<size_t>(y) * shape.width);
         }
       });
   if (!read) return read.error();
