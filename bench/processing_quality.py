@@ -17,6 +17,8 @@ What it does:
      threshold if the guards were ignored (what the guards alone prevent), and each class in
      likely-camera (generated images there are fakes waved through; the band allows 5 %).
      Transforms: the everyday ones and the laundering ones of bench/devset.py.
+  4. As published, per fold: the band's TPR and camera FPR against the ranking's TPR at that FPR
+     and at 1 % camera FPR (what the band catches against what the ranking allows).
 With --old OTHER_RESIDUE it repeats everything with another build (e.g. the previous release) for
 a before/after table; an older build has no guards, so its guarded share reads 0.
 
@@ -121,6 +123,7 @@ def evaluate(binary, tag):
                     rec = json.loads(line)
                     rec["truth"] = truth[rec["path"]][1]
                     rec["threshold"] = threshold
+                    rec["fold"] = f
                     records[name].append(rec)
     return records, promises
 
@@ -148,6 +151,25 @@ def table(records):
                      share(gen, lambda r: r["band"] == "likely-camera"),
                      auc([r["p_generated"] for r in gen], [r["p_generated"] for r in cam])))
     return rows
+
+
+def band_against_ranking(recs):
+    """As published, per fold and pooled: the band's TPR and camera FPR, the ranking's TPR at that
+    camera FPR (flagging above the (k+1)-th highest camera score) and at 1 % camera FPR."""
+    totals = [0, 0, 0, 0, 0, 0]  # band caught, band flagged camera, ranking at that FPR, at 1 %, generated, camera
+    for f in sorted({r["fold"] for r in recs}):
+        ok = [r for r in recs if r["fold"] == f and "error" not in r]
+        cam = sorted((r["p_generated"] for r in ok if r["truth"] == "camera"), reverse=True)
+        gen = [r["p_generated"] for r in ok if r["truth"] == "generated"]
+        caught = sum(1 for r in ok if r["truth"] == "generated" and r["band"] == "likely-generated")
+        flagged = sum(1 for r in ok if r["truth"] == "camera" and r["band"] == "likely-generated")
+        above = lambda k: sum(1 for p in gen if p > (cam[k] if k < len(cam) else -1.0))
+        row = [caught, flagged, above(flagged), above(int(0.01 * len(cam))), len(gen), len(cam)]
+        print(f"fold {f}: band TPR {pct(row[0] / row[4])} at camera FPR {pct(row[1] / row[5])}; ranking TPR at that "
+              f"FPR {pct(row[2] / row[4])}, at 1 % camera FPR {pct(row[3] / row[4])}")
+        totals = [a + b for a, b in zip(totals, row)]
+    print(f"all folds: band TPR {pct(totals[0] / totals[4])} at camera FPR {pct(totals[1] / totals[5])}; ranking TPR "
+          f"at that FPR {pct(totals[2] / totals[4])}, at 1 % camera FPR {pct(totals[3] / totals[4])}\n")
 
 
 def pct(v):
@@ -179,3 +201,4 @@ for tag, binary in builds:
               + (f"; {p['text']}" if p else " (no promise recorded)"))
     print()
     print_table(f"{tag}: {binary}", table(records))
+    band_against_ranking(records["as-published"])
