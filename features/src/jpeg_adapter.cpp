@@ -122,7 +122,10 @@ Result<JpegOutput> decode_jpeg(std::span<const std::uint8_t> bytes, const Decode
     return make_error(ErrorCode::kUnsupported, "JPEG in CMYK/YCCK colour is not analysed");
   }
   auto table_of = [&](int component, std::array<int, 64>& dst) {
-    const JQUANT_TBL* q = cinfo.quant_tbl_ptrs[cinfo.comp_info[component].quant_tbl_no];
+    // The header may name any table number 0..255; libjpeg checks it only when decoding starts.
+    const int number = cinfo.comp_info[component].quant_tbl_no;
+    if (number < 0 || number >= NUM_QUANT_TBLS) return false;
+    const JQUANT_TBL* q = cinfo.quant_tbl_ptrs[number];
     if (q == nullptr) return false;
     for (int k = 0; k < 64; ++k) dst[k] = q->quantval[k];  // natural order (jpeglib.h)
     return true;

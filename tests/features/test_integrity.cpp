@@ -84,6 +84,32 @@ TEST_CASE("libjpeg's warnings about flipped bits are caught as damage, and the f
   CHECK_FALSE(e->processing.damaged);
 }
 
+TEST_CASE("a frame header naming a quantisation table past the four the standard allows is refused") {
+  // ITU-T T.81 B.2.2: Tq is 0..3. libjpeg reads any byte there and checks it only when decoding
+  // starts, so the header alone must not be trusted to index the tables (found by fuzz_extract).
+  auto bytes = encode_image(test::load(test::sample("astronaut.png")), ImageFormat::kJpeg, 90);
+  REQUIRE(bytes);
+  std::vector<std::uint8_t> b = *bytes;
+  size_t sof = 0;
+  for (size_t i = 0; i + 1 < b.size(); ++i) {
+    if (b[i] == 0xFF && b[i + 1] == 0xC0) {
+      sof = i;
+      break;
+    }
+  }
+  REQUIRE(sof > 0);
+  // SOF0: marker, Lf (2), P, Y (2), X (2), Nf, then per component C, H|V, Tq.
+  for (const size_t component : {size_t{0}, size_t{1}}) {
+    std::vector<std::uint8_t> bad = b;
+    bad[sof + 10 + 3 * component + 2] = 33;
+    auto e = extract_bytes(bad);
+    REQUIRE_FALSE(e);
+    CHECK(e.error().code == ErrorCode::kCorrupt);
+    auto whole = decode_image(bad);
+    CHECK_FALSE(whole);
+  }
+}
+
 TEST_CASE("a PNG with a known-incorrect sRGB profile gets a note, not damage") {
   // scikit-image's chelsea.png carries the 3144-byte HP/Microsoft sRGB profile that libpng's
   // png_sRGB_checks table lists as broken; libpng warns "iCCP: known incorrect sRGB profile".
