@@ -171,6 +171,11 @@ DoubleJpegTrace assess_double_jpeg(const std::vector<WindowInput>& windows, cons
   // Low-frequency AC modes (row, column), where most coefficients are non-zero.
   constexpr int kModes[][2] = {{0, 1}, {1, 0}, {1, 1}, {0, 2}, {2, 0}, {1, 2}, {2, 1}, {2, 2}};
   constexpr int kRange = 24;
+  // A quantiser step of 0 breaks the standard (ITU-T T.81 B.2.4.1: 1..255) but libjpeg accepts it
+  // from a damaged table: nothing can be said of such a file's history.
+  for (const auto& mode : kModes) {
+    if (tables.luma[static_cast<size_t>(mode[0] * 8 + mode[1])] <= 0) return {};
+  }
   std::vector<std::vector<double>> histograms(std::size(kModes), std::vector<double>(kRange + 1, 0.0));
   for (const auto& w : windows) {
     const Tile& t = w.tile;
@@ -187,7 +192,7 @@ DoubleJpegTrace assess_double_jpeg(const std::vector<WindowInput>& windows, cons
           const int k = kModes[m][0] * 8 + kModes[m][1];
           const long v =
               std::lround(std::fabs(d[static_cast<size_t>(k)]) / tables.luma[static_cast<size_t>(k)]);
-          if (v <= kRange) histograms[m][static_cast<size_t>(v)] += 1.0;
+          if (v >= 0 && v <= kRange) histograms[m][static_cast<size_t>(v)] += 1.0;
         }
       }
     }

@@ -110,6 +110,31 @@ TEST_CASE("a frame header naming a quantisation table past the four the standard
   }
 }
 
+TEST_CASE("a quantisation table with zero steps is survived (no double-JPEG trace is read from it)") {
+  // ITU-T T.81 B.2.4.1 allows steps 1..255; libjpeg accepts a 0 from a damaged table. The double
+  // compression test divides by the steps, so it must say nothing rather than index with infinity
+  // (found by fuzz_extract under UBSan).
+  auto bytes = encode_image(test::load(test::sample("astronaut.png")), ImageFormat::kJpeg, 90);
+  REQUIRE(bytes);
+  std::vector<std::uint8_t> b = *bytes;
+  size_t dqt = 0;
+  for (size_t i = 0; i + 1 < b.size(); ++i) {
+    if (b[i] == 0xFF && b[i + 1] == 0xDB) {
+      dqt = i;
+      break;
+    }
+  }
+  REQUIRE(dqt > 0);
+  REQUIRE((b[dqt + 4] & 0xF0) == 0);                // 8-bit steps, table 0 first
+  for (int k = 1; k < 64; ++k) b[dqt + 5 + k] = 0;  // every AC step of table 0, zig-zag order
+  auto e = extract_bytes(b);
+  if (e) {
+    CHECK_FALSE(e->processing.double_jpeg.detected);
+  } else {
+    CHECK(e.error().code == ErrorCode::kCorrupt);
+  }
+}
+
 TEST_CASE("a PNG with a known-incorrect sRGB profile gets a note, not damage") {
   // scikit-image's chelsea.png carries the 3144-byte HP/Microsoft sRGB profile that libpng's
   // png_sRGB_checks table lists as broken; libpng warns "iCCP: known incorrect sRGB profile".

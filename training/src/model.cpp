@@ -326,7 +326,11 @@ Result<Model> model_from_json(const nlohmann::json& j) {
 
 void stamp_model_id(Model& model) {
   model.id.clear();
-  const std::string body = model_to_json(model).dump();
+  nlohmann::ordered_json content = model_to_json(model);
+  content.erase("created");
+  if (content["provenance"].is_object()) content["provenance"].erase("preparation");
+  if (content.contains("calibration_set")) content["calibration_set"].erase("created");
+  const std::string body = content.dump();
   model.id =
       "m-" +
       sha256_hex(std::span(reinterpret_cast<const std::uint8_t*>(body.data()), body.size())).substr(0, 16);

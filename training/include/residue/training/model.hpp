@@ -95,8 +95,10 @@ Score score(const Model& model, const FeatureVector& features, std::optional<dou
 std::string band_of(const Thresholds& thresholds, double p);
 
 nlohmann::ordered_json model_to_json(const Model& model);
-// Sets model.id to "m-" and 16 hex digits of the SHA-256 of the model's JSON (id left empty);
-// call again after changing anything in the model.
+// Sets model.id to "m-" and 16 hex digits of the SHA-256 of the model's JSON (id left empty),
+// leaving out when and how fast it was made ("created", the calibration's "created", provenance's
+// "preparation"): the same data and settings give the same id, whether the vectors came from the
+// files, the feature cache or collected records. Call again after changing anything in the model.
 void stamp_model_id(Model& model);
 Result<Model> model_from_json(const nlohmann::json& json);
 Result<bool> save_model(const Model& model, const std::filesystem::path& path);
