@@ -244,6 +244,7 @@ void add_worker_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--prior", s.scan.prior, "deployment share of generated images")
       ->check(CLI::Range(0.0001, 0.9999));
   add_extract_options(*cmd, s.scan.extract);
+  add_carry_options(*cmd, s.scan);
   cmd->footer(
       "Stops on SIGTERM or SIGINT after finishing and acknowledging the jobs it holds.\n"
       "Exit status: 0 stopped cleanly, 1 failure (model refused, Redis refused the password), 2 usage "

@@ -348,6 +348,7 @@ void add_scan_command(CLI::App& app, int& exit_code) {
                   "P below which the band is likely-camera")
       ->check(CLI::Range(0.0, 1.0));
   add_extract_options(*cmd, args->settings.extract);
+  add_carry_options(*cmd, args->settings);
   cmd->footer(
       "Exit status: 0 every input scored, 3 some inputs failed (each has an error record), 1 failure, 2 "
       "usage error.");

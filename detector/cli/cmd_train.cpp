@@ -2,6 +2,7 @@
 #include <algorithm>
 #include <cstdio>
 #include <iostream>
+#include <map>
 #include <memory>
 #include <optional>
 
@@ -9,7 +10,9 @@
 #include "commands.hpp"
 #include "dataset_options.hpp"
 #include "residue/detector/scoring/record.hpp"
+#include "residue/training/carried.hpp"
 #include "residue/training/trainer.hpp"
+#include "residue/training/verdicts.hpp"
 
 namespace residue::cli {
 
@@ -28,6 +31,9 @@ struct TrainArgs {
   bool keep_c = false;
   std::vector<std::string> calibration;  // camera photos (and generated images) held out for the thresholds
   std::vector<std::string> given;        // options set on the command line (they win over --from)
+  std::vector<std::string> more_records;  // further record files after ROOT
+  std::string labels;                     // with records: a labelled folder or manifest
+  std::string verdicts;                   // verdict store whose judged images join the data
 };
 
 struct AuditArgs {
@@ -103,6 +109,58 @@ void print_lineage(const nlohmann::ordered_json& lineage) {
   std::cout << "\n\n";
 }
 
+// Adds the verdict store's judged images (with stored vectors) to the prepared items; images the
+// data already holds (by content) keep their label from the data, and disagreements are said.
+bool add_verdict_items(const std::string& path, PrepareReport& report, nlohmann::ordered_json& summary) {
+  auto store = VerdictStore::open(path);
+  if (!store) {
+    std::cerr << "residue train: --verdicts: " << store.error().message << "\n";
+    return false;
+  }
+  auto judged = verdict_items(**store);
+  if (!judged) {
+    std::cerr << "residue train: --verdicts: " << judged.error().message << "\n";
+    return false;
+  }
+  std::map<std::string, Label> known;
+  for (const auto& it : report.items) known.emplace(it.sha256, it.file.label);
+  size_t added = 0;
+  size_t already = 0;
+  size_t disagree = 0;
+  nlohmann::ordered_json per_generator = nlohmann::ordered_json::object();
+  for (auto& it : judged->items) {
+    if (const auto k = known.find(it.sha256); k != known.end()) {
+      ++already;
+      disagree += k->second != it.file.label;
+      continue;
+    }
+    per_generator[it.file.generator] = per_generator.value(it.file.generator, 0) + 1;
+    report.items.push_back(std::move(it));
+    ++added;
+  }
+  std::cout << "Verdicts from " << path << ": " << judged->verdicts << " verdicts, " << added
+            << " judged images added";
+  for (const auto& [name, n] : per_generator.items()) std::cout << "; " << name << ": " << n;
+  if (already > 0) {
+    std::cout << "; " << already << " already in the data (their label there is kept";
+    if (disagree > 0) std::cout << "; " << disagree << " of them judged otherwise by a reviewer: check them";
+    std::cout << ")";
+  }
+  std::cout << "\n";
+  for (const auto& note : judged->notes) std::cout << "  " << note << "\n";
+  std::cout << "\n";
+  summary = {{"file", path},
+             {"verdicts", judged->verdicts},
+             {"images_added", added},
+             {"per_generator", per_generator},
+             {"already_in_data", already},
+             {"disagreeing_with_data", disagree},
+             {"conflicts_left_out", judged->conflicts},
+             {"without_vector", judged->without_vector},
+             {"other_extractor", judged->other_extractor}};
+  return true;
+}
+
 int run_train(TrainArgs& args) {
   std::optional<Model> parent;
   if (!args.from.empty()) {
@@ -120,8 +178,30 @@ int run_train(TrainArgs& args) {
   auto settings = resolve_settings(args, parent);
   if (!settings) return static_cast<int>(ExitCode::kFailure);
   args.data.augment = settings->augment;
-  auto prepared = prepare_from_args(args.data, "train");
+  const bool from_records = is_records_file(args.data.root);
+  if (!from_records && (!args.more_records.empty() || !args.labels.empty())) {
+    std::cerr << "residue train: further inputs and --labels are for training from records (JSON lines); "
+              << args.data.root << " is a folder or manifest\n";
+    return static_cast<int>(ExitCode::kUsage);
+  }
+  if (from_records && settings->window_instances) {
+    std::cerr << "residue train: records carry no window vectors: --instances windows needs the image files\n";
+    return static_cast<int>(ExitCode::kUsage);
+  }
+  std::optional<PreparedDataset> prepared;
+  if (from_records) {
+    std::vector<std::string> files = {args.data.root};
+    files.insert(files.end(), args.more_records.begin(), args.more_records.end());
+    prepared = prepare_from_records(files, args.labels, settings->augment,
+                                    given(args, "--augment"), "train");
+    if (prepared) settings->augment = prepared->augment;
+  } else {
+    prepared = prepare_from_args(args.data, "train");
+  }
   if (!prepared) return static_cast<int>(ExitCode::kFailure);
+  nlohmann::ordered_json from_verdicts;
+  if (!args.verdicts.empty() && !add_verdict_items(args.verdicts, prepared->report, from_verdicts))
+    return static_cast<int>(ExitCode::kFailure);
   const AuditReport audit = audit_dataset(prepared->report.items, prepared->report.failed.size());
   std::cout << "Audit of the training data\n" << audit_to_text(audit) << "\n";
   if (args.strict && !audit.warnings.empty()) {
@@ -142,7 +222,9 @@ int run_train(TrainArgs& args) {
                                      {"seconds_saved_by_cache", prepared->seconds_saved()},
                                      {"augmented_copies", prepared->report.copies.size()},
                                      {"copies_extracted", prepared->report.copies_extracted},
-                                     {"copies_failed", prepared->report.copies_failed}};
+                                     {"copies_failed", prepared->report.copies_failed},
+                                     {"from_records", from_records}};
+  if (!from_verdicts.is_null()) model.provenance["verdicts"] = from_verdicts;
   if (!args.calibration.empty()) {
     CalibrationInputs in;
     in.roots = args.calibration;
@@ -261,6 +343,16 @@ void add_train_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--calibration", args->calibration,
                   "set the thresholds and camera tail on these held-out folders or manifests (camera photos "
                   "the training never sees; as `residue calibrate`) instead of the out-of-fold scores");
+  cmd->add_option("records", args->more_records,
+                  "when ROOT is a records file (JSON lines from scan or worker --with-features, or collect): "
+                  "further records files");
+  cmd->add_option("--labels", args->labels,
+                  "with records: the labelled folder or CSV manifest that labels them (matched by path); "
+                  "without it, each record's own label, generator and group members are used");
+  cmd->add_option("--verdicts", args->verdicts,
+                  "verdict store (residue verdict, serve --verdicts): its judged images with stored vectors join "
+                  "the training data, generated ones under their generator name or 'unnamed'; conflicts are "
+                  "left out");
   cmd->add_flag("--keep-c", args->keep_c,
                 "with --from: keep the parent's chosen C instead of searching the grid again (faster)");
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");

@@ -1,5 +1,6 @@
 #include "dataset_options.hpp"
 
+#include <chrono>
 #include <cstdio>
 #include <cstdlib>
 #include <filesystem>
@@ -8,6 +9,7 @@
 
 #include "options.hpp"
 #include "progress.hpp"
+#include "residue/training/carried.hpp"
 
 namespace residue::cli {
 
@@ -56,7 +58,7 @@ std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const 
   const ProgressFn progress = [&bar](size_t done, size_t total) { bar.update(done, total); };
   const int jobs =
       args.jobs > 0 ? args.jobs : static_cast<int>(std::max(1U, std::thread::hardware_concurrency()));
-  PreparedDataset out{std::move(*dataset), {}, jobs};
+  PreparedDataset out{std::move(*dataset), {}, jobs, args.augment};
   out.report = prepare_dataset(out.dataset, args.extract, cache.get(), jobs, progress, args.augment);
   std::cerr << "residue " << command << ": " << out.report.items.size() << " images ready ("
             << out.report.extracted << " extracted, " << out.report.cached << " from the feature cache";
@@ -84,6 +86,53 @@ std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const 
   for (const auto& [file, error] : out.report.failed) {
     std::cerr << "  skipped " << file.path << ": " << error_code_name(error.code) << ": " << error.message
               << "\n";
+  }
+  return out;
+}
+
+std::optional<PreparedDataset> prepare_from_records(const std::vector<std::string>& files,
+                                                    const std::string& labels, Augment augment,
+                                                    bool augment_given, const char* command) {
+  PreparedDataset out;
+  if (!labels.empty()) {
+    auto dataset = load_dataset(labels);
+    if (!dataset) {
+      std::cerr << "residue " << command << ": --labels: " << dataset.error().message << "\n";
+      return std::nullopt;
+    }
+    out.dataset = std::move(*dataset);
+  }
+  const auto start = std::chrono::steady_clock::now();
+  const std::vector<std::filesystem::path> paths(files.begin(), files.end());
+  auto loaded = load_records_for_training(paths, labels.empty() ? nullptr : &out.dataset, augment, !augment_given);
+  if (!loaded) {
+    std::cerr << "residue " << command << ": " << loaded.error().message << "\n";
+    return std::nullopt;
+  }
+  out.report.items = std::move(loaded->items);
+  out.report.copies = std::move(loaded->copies);
+  out.report.cached = out.report.items.size();
+  out.report.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  out.augment = loaded->augment;
+  std::cerr << "residue " << command << ": " << out.report.items.size() << " images ready from "
+            << loaded->records << " records in " << files.size() << " file" << (files.size() == 1 ? "" : "s");
+  if (loaded->augment != Augment::kNone)
+    std::cerr << "; " << out.report.copies.size() << " augmented copies (" << augment_name(loaded->augment) << ")";
+  if (!augment_given && loaded->augment != augment) {
+    std::cerr << "; the records carry " << augment_name(loaded->augment) << " copies, so --augment "
+              << augment_name(loaded->augment) << " is used (record them with --copies "
+              << augment_name(augment) << " for more)";
+  }
+  if (loaded->missing > 0) std::cerr << "; " << loaded->missing << " labelled files have no usable record";
+  if (!loaded->skipped.empty()) std::cerr << "; " << loaded->skipped.size() << " records skipped:";
+  std::cerr << "\n";
+  size_t shown = 0;
+  for (const auto& [path, reason] : loaded->skipped) {
+    if (++shown > 20) {
+      std::cerr << "  ... and " << loaded->skipped.size() - 20 << " more\n";
+      break;
+    }
+    std::cerr << "  skipped " << path << ": " << reason << "\n";
   }
   return out;
 }

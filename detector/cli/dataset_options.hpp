@@ -31,10 +31,18 @@ struct PreparedDataset {
   Dataset dataset;
   PrepareReport report;
   int jobs = 1;
+  Augment augment = Augment::kNone;  // the copies level the items come with
   // Wall-clock seconds the cache hits would have cost on these threads.
   [[nodiscard]] double seconds_saved() const { return report.cached_extract_seconds / jobs; }
 };
 std::optional<PreparedDataset> prepare_from_args(const DatasetArgs& args, const char* command);
+
+// The same from records carrying their features (scan or worker --with-features, collect): labels
+// from `labels` (a folder or manifest, matched by path) or from the records. Without
+// `augment_given`, the copies level is lowered to what the records carry (and said).
+std::optional<PreparedDataset> prepare_from_records(const std::vector<std::string>& files,
+                                                    const std::string& labels, Augment augment,
+                                                    bool augment_given, const char* command);
 
 // --group-by: what belongs together (duplicates, folder, manifest), for train's folds and compare's
 // bootstrap.

@@ -6,6 +6,7 @@
 #include <optional>
 #include <string>
 
+#include "residue/detector/scoring/scan.hpp"
 #include "residue/features/extract.hpp"
 
 namespace residue::cli {
@@ -30,6 +31,21 @@ inline void add_extract_options(CLI::App& command, ExtractOptions& options) {
                   "smallest analysis window in px (power of two, 32..256); smaller images are refused")
       ->check(CLI::IsMember({32, 64, 128, 256}))
       ->capture_default_str();
+}
+
+// Registers --with-features and --copies (records that carry their feature vectors: carried.hpp).
+inline void add_carry_options(CLI::App& command, ScanSettings& settings) {
+  auto* with = command.add_flag("--with-features", settings.with_features,
+                   "add the feature vector to each record (with the extractor version, schema and the file "
+                   "facts training needs), so that verdicts and training can use it without the image");
+  command
+      .add_option_function<std::string>(
+          "--copies", [&settings](const std::string& level) { settings.copies = *parse_augment(level); },
+          "with --with-features: also carry the augmented copies train --augment makes (none, light or full; "
+          "needed to train from the records with that --augment)")
+      ->check(CLI::IsMember({"none", "light", "full"}))
+      ->default_str("none")
+      ->needs(with);
 }
 
 // The first line of a secret file (a bearer token, a Redis password), without a trailing CR; empty

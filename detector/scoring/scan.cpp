@@ -2,6 +2,7 @@
 
 #include "residue/detector/scoring/record.hpp"
 #include "residue/features/fingerprint.hpp"
+#include "residue/training/carried.hpp"
 
 namespace residue {
 
@@ -90,6 +91,14 @@ nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::
   // Per family: root-mean-square of the standardised features, in training standard deviations;
   // with the contributions, what `residue drift` compares with the model's training reference.
   r["family_distance"] = s.distances;
+  if (settings.with_features) {
+    PreparedItem item;
+    item.facts = file_facts(*extraction, bytes, settings.extract.limits);
+    item.features.values = std::move(extraction->features.values);
+    const PreparedCopies copies =
+        prepare_copies(bytes, r["sha256"].get<std::string>(), settings.extract, nullptr, settings.copies);
+    r["features"] = carried_to_json(item, &copies, settings.copies);
+  }
   return r;
 }
 

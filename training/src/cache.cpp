@@ -6,55 +6,10 @@
 #include <cstring>
 #include <nlohmann/json.hpp>
 
-#include "residue/training/applicability.hpp"
 
 namespace residue {
 
 namespace {
-
-nlohmann::json facts_to_json(const FileFacts& f) {
-  return {{"format", f.format},
-          {"width", f.width},
-          {"height", f.height},
-          {"channels", f.channels},
-          {"alpha_dropped", f.alpha_dropped},
-          {"jpeg_quality", f.jpeg_quality ? nlohmann::json(*f.jpeg_quality) : nlohmann::json(nullptr)},
-          {"block_grid_strength", f.block_grid_strength},
-          {"file_bytes", f.file_bytes},
-          {"dhash", f.dhash},
-          {"has_exif", f.metadata.has_exif},
-          {"camera_make", f.metadata.camera_make},
-          {"camera_model", f.metadata.camera_model},
-          {"has_xmp", f.metadata.has_xmp},
-          {"digital_source_type", f.metadata.digital_source_type},
-          {"generation_text", f.metadata.generation_text},
-          {"processing", processing_to_json(f.processing)},
-          {"extract_ms", f.extract_ms}};
-}
-
-FileFacts facts_from_json(const nlohmann::json& j) {
-  FileFacts f;
-  f.format = j.at("format");
-  f.width = j.at("width");
-  f.height = j.at("height");
-  f.channels = j.at("channels");
-  f.alpha_dropped = j.at("alpha_dropped");
-  if (!j.at("jpeg_quality").is_null()) f.jpeg_quality = j.at("jpeg_quality").get<int>();
-  f.block_grid_strength = j.at("block_grid_strength");
-  f.file_bytes = j.at("file_bytes");
-  f.dhash = j.at("dhash");
-  f.metadata.has_exif = j.at("has_exif");
-  f.metadata.camera_make = j.at("camera_make");
-  f.metadata.camera_model = j.at("camera_model");
-  f.metadata.has_xmp = j.at("has_xmp");
-  f.metadata.digital_source_type = j.at("digital_source_type");
-  f.metadata.generation_text = j.at("generation_text");
-  // Rows stored before processing evidence existed, or by another kProcessingVersion, throw here
-  // and so are a miss: the file is extracted again (the vector itself would be unchanged).
-  f.processing = processing_from_json(j.at("processing"));
-  f.extract_ms = j.value("extract_ms", 0.0);  // absent in rows stored before it was recorded
-  return f;
-}
 
 // The key's version part: extractor, schema and the blob layout ("w": with the window vectors).
 std::string cache_version() { return std::string(kExtractorVersion) + "/" + feature_schema_id() + "/w"; }
@@ -107,7 +62,7 @@ std::optional<FeatureCache::Entry> FeatureCache::find(const std::string& sha256)
   Entry e;
   try {
     e.facts =
-        facts_from_json(nlohmann::json::parse(reinterpret_cast<const char*>(sqlite3_column_text(s.stmt, 0))));
+        file_facts_from_json(nlohmann::json::parse(reinterpret_cast<const char*>(sqlite3_column_text(s.stmt, 0))));
   } catch (const std::exception&) {
     return std::nullopt;  // a damaged row is re-extracted
   }
@@ -131,7 +86,7 @@ Result<bool> FeatureCache::store(const std::string& sha256, const Entry& entry) 
       db_, "INSERT OR REPLACE INTO vectors (sha256, extractor, facts, features) VALUES (?1, ?2, ?3, ?4)", -1,
       &s.stmt, nullptr);
   const std::string version = cache_version();
-  const std::string facts = facts_to_json(entry.facts).dump();
+  const std::string facts = file_facts_to_json(entry.facts).dump();
   sqlite3_bind_text(s.stmt, 1, sha256.c_str(), -1, SQLITE_TRANSIENT);
   sqlite3_bind_text(s.stmt, 2, version.c_str(), -1, SQLITE_TRANSIENT);
   sqlite3_bind_text(s.stmt, 3, facts.c_str(), -1, SQLITE_TRANSIENT);

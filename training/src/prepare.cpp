@@ -9,20 +9,55 @@
 
 #include "residue/features/fingerprint.hpp"
 #include "residue/features/transforms.hpp"
+#include "residue/training/applicability.hpp"
 #include "residue/training/cache.hpp"
 
 namespace residue {
 
-namespace {
+nlohmann::json file_facts_to_json(const FileFacts& f) {
+  return {{"format", f.format},
+          {"width", f.width},
+          {"height", f.height},
+          {"channels", f.channels},
+          {"alpha_dropped", f.alpha_dropped},
+          {"jpeg_quality", f.jpeg_quality ? nlohmann::json(*f.jpeg_quality) : nlohmann::json(nullptr)},
+          {"block_grid_strength", f.block_grid_strength},
+          {"file_bytes", f.file_bytes},
+          {"dhash", f.dhash},
+          {"has_exif", f.metadata.has_exif},
+          {"camera_make", f.metadata.camera_make},
+          {"camera_model", f.metadata.camera_model},
+          {"has_xmp", f.metadata.has_xmp},
+          {"digital_source_type", f.metadata.digital_source_type},
+          {"generation_text", f.metadata.generation_text},
+          {"processing", processing_to_json(f.processing)},
+          {"extract_ms", f.extract_ms}};
+}
 
-struct Outcome {
-  std::optional<PreparedItem> item;
-  std::optional<Error> error;
-  std::vector<PreparedItem> copies;
-  size_t copies_failed = 0;
-};
+FileFacts file_facts_from_json(const nlohmann::json& j) {
+  FileFacts f;
+  f.format = j.at("format");
+  f.width = j.at("width");
+  f.height = j.at("height");
+  f.channels = j.at("channels");
+  f.alpha_dropped = j.at("alpha_dropped");
+  if (!j.at("jpeg_quality").is_null()) f.jpeg_quality = j.at("jpeg_quality").get<int>();
+  f.block_grid_strength = j.at("block_grid_strength");
+  f.file_bytes = j.at("file_bytes");
+  f.dhash = j.at("dhash");
+  f.metadata.has_exif = j.at("has_exif");
+  f.metadata.camera_make = j.at("camera_make");
+  f.metadata.camera_model = j.at("camera_model");
+  f.metadata.has_xmp = j.at("has_xmp");
+  f.metadata.digital_source_type = j.at("digital_source_type");
+  f.metadata.generation_text = j.at("generation_text");
+  // Rows stored before processing evidence existed, or by another kProcessingVersion, throw here
+  // and so are a miss: the file is extracted again (the vector itself would be unchanged).
+  f.processing = processing_from_json(j.at("processing"));
+  f.extract_ms = j.value("extract_ms", 0.0);  // absent in rows stored before it was recorded
+  return f;
+}
 
-// Features and facts of one file's bytes, from the cache under `key` or extracted (and stored).
 Result<PreparedItem> prepare_bytes(std::span<const std::uint8_t> bytes, const std::string& key,
                                    const ExtractOptions& options, FeatureCache* cache) {
   PreparedItem item;
@@ -37,37 +72,38 @@ Result<PreparedItem> prepare_bytes(std::span<const std::uint8_t> bytes, const st
   const auto start = std::chrono::steady_clock::now();
   auto extraction = extract_bytes(bytes, options);
   if (!extraction) return extraction.error();
-  FileFacts& f = item.facts;
-  f.format = std::string(image_format_name(extraction->header.format));
-  f.width = extraction->header.width;
-  f.height = extraction->header.height;
-  f.channels = extraction->channels;
-  f.alpha_dropped = extraction->alpha_dropped;
-  if (extraction->compression.jpeg) f.jpeg_quality = extraction->compression.jpeg->quality;
-  f.block_grid_strength = extraction->compression.block_grid_strength;
-  f.file_bytes = bytes.size();
-  if (auto preview = decode_preview(bytes, options.limits)) f.dhash = difference_hash(*preview);
-  f.metadata = read_metadata(bytes);
-  f.processing = std::move(extraction->processing);
+  item.facts = file_facts(*extraction, bytes, options.limits);
   item.features = std::move(extraction->features);
-  f.extract_ms = std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - start).count();
+  item.facts.extract_ms =
+      std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - start).count();
   if (cache != nullptr) (void)cache->store(key, {item.facts, item.features});
   return item;
 }
 
-Outcome prepare_one(const LabelledFile& file, const ExtractOptions& options, FeatureCache* cache,
-                    Augment augment) {
-  auto bytes = read_file(file.path, options.limits);
-  if (!bytes) return {std::nullopt, bytes.error(), {}, 0};
-  const std::string sha = sha256_hex(*bytes);
-  auto item = prepare_bytes(*bytes, sha, options, cache);
-  if (!item) return {std::nullopt, item.error(), {}, 0};
-  item->file = file;
-  item->sha256 = sha;
-  Outcome out{std::move(*item), std::nullopt, {}, 0};
-  for (const auto& transform : augmentation_transforms(augment, sha)) {
+FileFacts file_facts(const Extraction& extraction, std::span<const std::uint8_t> bytes,
+                     const DecodeLimits& limits) {
+  FileFacts f;
+  f.format = std::string(image_format_name(extraction.header.format));
+  f.width = extraction.header.width;
+  f.height = extraction.header.height;
+  f.channels = extraction.channels;
+  f.alpha_dropped = extraction.alpha_dropped;
+  if (extraction.compression.jpeg) f.jpeg_quality = extraction.compression.jpeg->quality;
+  f.block_grid_strength = extraction.compression.block_grid_strength;
+  f.file_bytes = bytes.size();
+  if (auto preview = decode_preview(bytes, limits)) f.dhash = difference_hash(*preview);
+  f.metadata = read_metadata(bytes);
+  f.processing = extraction.processing;
+  f.extract_ms = extraction.timings.total_ms;
+  return f;
+}
+
+PreparedCopies prepare_copies(std::span<const std::uint8_t> bytes, const std::string& sha256,
+                              const ExtractOptions& options, FeatureCache* cache, Augment augment) {
+  PreparedCopies out;
+  for (const auto& transform : augmentation_transforms(augment, sha256)) {
     // Copies are cached under (file hash, transform): the transform is only applied on a miss.
-    const std::string key = sha + ":" + transform;
+    const std::string key = sha256 + ":" + transform;
     std::optional<PreparedItem> copy;
     if (cache != nullptr) {
       if (auto hit = cache->find(key)) {
@@ -78,22 +114,44 @@ Outcome prepare_one(const LabelledFile& file, const ExtractOptions& options, Fea
       }
     }
     if (!copy) {
-      auto processed = apply_transform(*bytes, transform, options.limits);
+      auto processed = apply_transform(bytes, transform, options.limits);
       auto prepared = processed ? prepare_bytes(*processed, key, options, nullptr)
                                 : Result<PreparedItem>(processed.error());
       if (!prepared) {
-        ++out.copies_failed;  // e.g. a downscaled copy too small for a window: the image stays
+        out.failed.push_back(transform);  // e.g. a downscaled copy too small for a window: the image stays
         continue;
       }
       copy = std::move(*prepared);
       if (cache != nullptr) (void)cache->store(key, {copy->facts, copy->features});
     }
-    copy->file = file;
-    copy->sha256 = sha;
+    copy->sha256 = sha256;
     copy->augmentation = transform;
-    out.copies.push_back(std::move(*copy));
+    out.made.push_back(std::move(*copy));
   }
   return out;
+}
+
+namespace {
+
+struct Outcome {
+  std::optional<PreparedItem> item;
+  std::optional<Error> error;
+  std::vector<PreparedItem> copies;
+  size_t copies_failed = 0;
+};
+
+Outcome prepare_one(const LabelledFile& file, const ExtractOptions& options, FeatureCache* cache,
+                    Augment augment) {
+  auto bytes = read_file(file.path, options.limits);
+  if (!bytes) return {std::nullopt, bytes.error(), {}, 0};
+  const std::string sha = sha256_hex(*bytes);
+  auto item = prepare_bytes(*bytes, sha, options, cache);
+  if (!item) return {std::nullopt, item.error(), {}, 0};
+  item->file = file;
+  item->sha256 = sha;
+  PreparedCopies copies = prepare_copies(*bytes, sha, options, cache, augment);
+  for (auto& copy : copies.made) copy.file = file;
+  return {std::move(*item), std::nullopt, std::move(copies.made), copies.failed.size()};
 }
 
 }  // namespace

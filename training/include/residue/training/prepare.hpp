@@ -4,7 +4,9 @@
 
 #include <cstdint>
 #include <functional>
+#include <nlohmann/json.hpp>
 #include <optional>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -30,6 +32,11 @@ struct FileFacts {
   ProcessingEvidence processing;  // reported and profiled for the applicability check, never learned
   double extract_ms = 0.0;        // one thread's time to decode, extract and read metadata (milliseconds)
 };
+
+// The facts as JSON (the feature cache's rows, records carrying features), and back; from_json
+// throws on a missing member or on processing evidence of another kProcessingVersion.
+nlohmann::json file_facts_to_json(const FileFacts& facts);
+FileFacts file_facts_from_json(const nlohmann::json& json);
 
 struct PreparedItem {
   LabelledFile file;
@@ -58,6 +65,25 @@ struct PrepareReport {
 };
 
 class FeatureCache;
+
+// Features and facts of one image's bytes, from `cache` under `key` (its SHA-256, or
+// "SHA-256:transform" for a copy) or extracted and stored there. No cache: always extracted.
+Result<PreparedItem> prepare_bytes(std::span<const std::uint8_t> bytes, const std::string& key,
+                                   const ExtractOptions& options, FeatureCache* cache);
+
+// The facts of an image already extracted (`scan --with-features` reuses its scoring extraction).
+FileFacts file_facts(const Extraction& extraction, std::span<const std::uint8_t> bytes,
+                     const DecodeLimits& limits);
+
+// An image's augmented copies (augment.hpp), in the order augmentation_transforms gives them, each
+// from the cache or made and extracted: those made, and the transforms that could not be (a
+// downscale too small for a window).
+struct PreparedCopies {
+  std::vector<PreparedItem> made;  // sha256 and augmentation set; file left empty
+  std::vector<std::string> failed;
+};
+PreparedCopies prepare_copies(std::span<const std::uint8_t> bytes, const std::string& sha256,
+                              const ExtractOptions& options, FeatureCache* cache, Augment augment);
 
 // Called after each file with (done, total); from one thread at a time.
 using ProgressFn = std::function<void(size_t done, size_t total)>;

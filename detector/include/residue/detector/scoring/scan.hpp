@@ -9,6 +9,7 @@
 #include <string>
 
 #include "residue/features/metadata.hpp"
+#include "residue/training/augment.hpp"
 #include "residue/training/model.hpp"
 
 namespace residue {
@@ -18,6 +19,10 @@ struct ScanSettings {
   std::optional<double> prior;             // deployment share of generated images
   std::optional<double> likely_generated;  // overrides the model's threshold
   std::optional<double> likely_camera;     // overrides the model's threshold
+  // Adds "features" to the record (carried.hpp): the vector, the facts training needs, the
+  // extractor version and schema, and the augmented copies at `copies` (made and extracted here).
+  bool with_features = false;
+  Augment copies = Augment::kNone;
 };
 
 // The model with the settings' threshold overrides applied.
