@@ -22,5 +22,6 @@ void add_serve_command(CLI::App& app, int& exit_code);
 void add_worker_command(CLI::App& app, int& exit_code);
 void add_enqueue_command(CLI::App& app, int& exit_code);
 void add_collect_command(CLI::App& app, int& exit_code);
+void add_verdict_command(CLI::App& app, int& exit_code);
 
 }  // namespace residue::cli

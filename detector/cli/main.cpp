@@ -32,6 +32,7 @@ int main(int argc, char** argv) try {
   residue::cli::add_worker_command(app, exit_code);
   residue::cli::add_enqueue_command(app, exit_code);
   residue::cli::add_collect_command(app, exit_code);
+  residue::cli::add_verdict_command(app, exit_code);
   residue::cli::add_audit_command(app, exit_code);
   residue::cli::add_evaluate_command(app, exit_code);
   residue::cli::add_compare_command(app, exit_code);

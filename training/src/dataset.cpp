@@ -32,31 +32,6 @@ void walk(const fs::path& dir, std::vector<fs::path>& out,
   }
 }
 
-// Splits one CSV line (RFC 4180 quoting; no embedded newlines).
-std::vector<std::string> split_csv(const std::string& line) {
-  std::vector<std::string> fields(1);
-  bool quoted = false;
-  for (size_t i = 0; i < line.size(); ++i) {
-    const char c = line[i];
-    if (quoted) {
-      if (c == '"' && i + 1 < line.size() && line[i + 1] == '"') {
-        fields.back().push_back('"');
-        ++i;
-      } else if (c == '"') {
-        quoted = false;
-      } else {
-        fields.back().push_back(c);
-      }
-    } else if (c == '"') {
-      quoted = true;
-    } else if (c == ',') {
-      fields.emplace_back();
-    } else if (c != '\r') {
-      fields.back().push_back(c);
-    }
-  }
-  return fields;
-}
 
 }  // namespace
 
@@ -98,6 +73,31 @@ Result<Dataset> scan_labelled_folders(const fs::path& root) {
     data.files.push_back(std::move(f));
   }
   return data;
+}
+
+std::vector<std::string> split_csv(const std::string& line) {
+  std::vector<std::string> fields(1);
+  bool quoted = false;
+  for (size_t i = 0; i < line.size(); ++i) {
+    const char c = line[i];
+    if (quoted) {
+      if (c == '"' && i + 1 < line.size() && line[i + 1] == '"') {
+        fields.back().push_back('"');
+        ++i;
+      } else if (c == '"') {
+        quoted = false;
+      } else {
+        fields.back().push_back(c);
+      }
+    } else if (c == '"') {
+      quoted = true;
+    } else if (c == ',') {
+      fields.emplace_back();
+    } else if (c != '\r') {
+      fields.back().push_back(c);
+    }
+  }
+  return fields;
 }
 
 Result<Dataset> read_manifest(const fs::path& csv) {

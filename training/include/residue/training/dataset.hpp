@@ -34,6 +34,9 @@ Result<Dataset> scan_labelled_folders(const std::filesystem::path& root);
 // (RFC 4180) are accepted.
 Result<Dataset> read_manifest(const std::filesystem::path& csv);
 
+// Splits one CSV line (RFC 4180 quoting; no embedded newlines).
+std::vector<std::string> split_csv(const std::string& line);
+
 // A folder is scanned; a file is read as a manifest.
 Result<Dataset> load_dataset(const std::filesystem::path& root_or_manifest);
 
