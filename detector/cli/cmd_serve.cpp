@@ -84,6 +84,14 @@ void add_serve_command(CLI::App& app, int& exit_code) {
                 "bind a non-loopback address without a token (only behind an authenticating proxy)");
   cmd->add_option("--access-log", args->settings.access_log,
                   "append JSON access-log lines here (default: stderr)");
+  cmd->add_option("--verdicts", args->settings.verdicts,
+                  "record reviewers' verdicts (POST /v1/verdicts, the review page's buttons) in this SQLite "
+                  "file, with the images' feature vectors");
+  cmd->add_option("--remember", args->settings.remember,
+                  "with --verdicts: feature vectors of the last images scored kept in memory (about 12 KB each), "
+                  "so that a verdict can be given by hash after the image is gone")
+      ->check(CLI::Range(0, 1000000))
+      ->capture_default_str();
   cmd->add_option("--prior", args->settings.scan.prior, "default deployment share of generated images")
       ->check(CLI::Range(0.0001, 0.9999));
   add_extract_options(*cmd, args->settings.scan.extract);

@@ -1,15 +1,115 @@
 #include "handlers.hpp"
 
+#include <algorithm>
 #include <cstdlib>
 #include <optional>
 #include <string_view>
 
 #include "residue/detector/scoring/explain.hpp"
 #include "residue/detector/scoring/pictures.hpp"
+#include "residue/features/fingerprint.hpp"
 #include "review_page.hpp"
 #include "uploads.hpp"
 
 namespace residue {
+
+namespace {
+
+// With verdicts enabled, a scored record's features are remembered (for a verdict by hash later)
+// and taken out of the answer.
+void remember(ServiceState& s, Json& record) {
+  if (!record.contains("features")) return;
+  if (s.memory && record.contains("band")) {
+    s.memory->put(record["sha256"].get<std::string>(), {record["features"].dump(), record.value("model", ""),
+                                                        record.value("band", ""), record.value("p_generated", 0.0)});
+  }
+  record.erase("features");
+}
+
+// POST /v1/verdicts: a JSON object {sha256, verdict, generator?, reviewer?, note?}, or a multipart
+// form with the image as a file and those fields (sha256 then comes from the image).
+void record_verdict(ServiceState& s, const httplib::Request& req, httplib::Response& res) {
+  if (!s.verdicts) {
+    reply(res, 501, error_body("not-enabled", "this service records no verdicts: start it with --verdicts FILE"));
+    return;
+  }
+  nlohmann::json fields = nlohmann::json::object();
+  std::optional<std::string> image;
+  if (req.is_multipart_form_data()) {
+    for (const auto& [name, item] : req.files) {
+      if (!item.filename.empty() || name == "image") {
+        image = item.content;
+      } else {
+        fields[name] = item.content;
+      }
+    }
+  } else {
+    fields = nlohmann::json::parse(req.body, nullptr, false);
+    if (fields.is_discarded() || !fields.is_object()) {
+      reply(res, 422, error_body("malformed", "the body must be a JSON object: {\"sha256\", \"verdict\": "
+                                              "\"camera\" or \"generated\", \"generator\", \"reviewer\", \"note\"}"));
+      return;
+    }
+  }
+  // What the service knows, not the client: vector, model, band and time come from here.
+  for (const char* key : {"features", "id", "recorded", "model", "band", "p_generated"}) fields.erase(key);
+  if (image) fields["sha256"] = sha256_hex(as_bytes(*image));
+  auto verdict = verdict_from_json(fields);
+  if (!verdict) {
+    reply(res, 422, error_body("malformed", verdict.error().message));
+    return;
+  }
+  if (image) {
+    ScanSettings settings = s.settings.scan;
+    settings.with_features = true;
+    Json record;
+    if (!s.on_a_worker(res, [&](const Model& model) {
+          record = scan_bytes(upload_name(req), as_bytes(*image), model, settings);
+        })) {
+      return;
+    }
+    if (record.contains("error")) {
+      reply(res, status_for(record["error"]["code"]), record);
+      return;
+    }
+    remember(s, record);
+  }
+  if (auto known = s.memory->find(verdict->sha256)) {
+    verdict->features = nlohmann::json::parse(known->features);
+    verdict->model = known->model;
+    verdict->band = known->band;
+    verdict->p_generated = known->p_generated;
+  } else {
+    auto earlier = s.verdicts->list(verdict->sha256);
+    const bool stored = earlier && std::any_of(earlier->begin(), earlier->end(),
+                                               [](const Verdict& v) { return v.features.has_value(); });
+    if (!stored) {
+      reply(res, 404,
+            error_body("unknown-image",
+                       "this service has not scored an image with that SHA-256 recently (it remembers the last " +
+                           std::to_string(s.memory->capacity()) +
+                           "): send the image itself, as a multipart form with the verdict's fields"));
+      return;
+    }
+  }
+  auto added = s.verdicts->add(std::move(*verdict));
+  if (!added) {
+    reply(res, 500, error_body("internal", added.error().message));
+    return;
+  }
+  Json earlier = Json::array();
+  for (const auto& e : added->earlier) earlier.push_back(verdict_to_json(e, false));
+  reply(res, 201,
+        {{"recorded", verdict_to_json(added->verdict, false)},
+         {"conflict", added->conflict},
+         {"earlier", earlier},
+         {"note", added->conflict ? "an earlier verdict on this image disagrees: both are kept, and the image is "
+                                    "left out of training until one is removed (residue verdict list --conflicts)"
+                                  : ""},
+         {"advisory", kAdvisoryNotice}});
+}
+
+}  // namespace
 
 void add_handlers(ServiceState& s, const std::function<Result<std::string>()>& reload) {
   const ServiceSettings& cfg = s.settings;
@@ -61,13 +161,15 @@ void add_handlers(ServiceState& s, const std::function<Result<std::string>()>& r
                                       const httplib::ContentReader& content_reader) {
     s.observe("/v1/score", req, res, [&]() -> std::string {
       const auto body = read_upload(req, res, content_reader, cfg.max_body_bytes);
-      const auto settings = body ? request_settings(req, res, cfg.scan) : std::nullopt;
+      auto settings = body ? request_settings(req, res, cfg.scan) : std::nullopt;
       Json record;
+      if (settings) settings->with_features = s.memory != nullptr;
       if (!settings || !s.on_a_worker(res, [&](const Model& model) {
             record = scan_bytes(upload_name(req), as_bytes(*body), model, *settings);
           })) {
         return "";
       }
+      remember(s, record);
       if (record.contains("error")) {
         reply(res, status_for(record["error"]["code"]), record);
         return "";
@@ -102,6 +204,12 @@ void add_handlers(ServiceState& s, const std::function<Result<std::string>()>& r
                             {"contributions_svg", x.pictures.contributions_svg}};
       reply(res, 200, answer);
       return x.summary["band"];
+    });
+  });
+  server.Post("/v1/verdicts", [&s](const httplib::Request& req, httplib::Response& res) {
+    s.observe("/v1/verdicts", req, res, [&] {
+      record_verdict(s, req, res);
+      return std::string();
     });
   });
   server.Get("/", [&s](const httplib::Request& req, httplib::Response& res) {
@@ -158,8 +266,16 @@ void add_handlers(ServiceState& s, const std::function<Result<std::string>()>& r
         waiting = s.waiting;
         active = s.active;
       }
-      res.set_content(s.metrics.text(waiting, active, s.current()->id, *s.connections),
-                      "text/plain; version=0.0.4");
+      std::string text = s.metrics.text(waiting, active, s.current()->id, *s.connections);
+      if (s.memory) {
+        text += "# HELP residue_remembered_vectors Feature vectors kept for verdicts by hash.\n"
+                "# TYPE residue_remembered_vectors gauge\nresidue_remembered_vectors " +
+                std::to_string(s.memory->size()) +
+                "\n# HELP residue_remembered_bytes Bytes those vectors hold.\n"
+                "# TYPE residue_remembered_bytes gauge\nresidue_remembered_bytes " +
+                std::to_string(s.memory->bytes()) + "\n";
+      }
+      res.set_content(text, "text/plain; version=0.0.4");
       return std::string();
     });
   });

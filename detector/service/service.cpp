@@ -111,6 +111,12 @@ Result<bool> Service::prepare() {
     if (!s.log_file)
       return make_error(ErrorCode::kUnreadable, "cannot write the access log " + cfg.access_log);
   }
+  if (!cfg.verdicts.empty()) {
+    auto store = VerdictStore::open(cfg.verdicts);
+    if (!store) return store.error();
+    s.verdicts = std::move(*store);
+    s.memory = std::make_unique<VectorMemory>(cfg.remember);
+  }
   if (!s.current()) {
     auto loaded = load_model();
     if (!loaded) return loaded.error();

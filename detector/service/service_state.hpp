@@ -16,7 +16,9 @@
 #include "metrics.hpp"
 #include "request_server.hpp"
 #include "residue/detector/service/service.hpp"
+#include "residue/training/verdicts.hpp"
 #include "routes.hpp"
+#include "vector_memory.hpp"
 
 namespace residue {
 
@@ -38,6 +40,9 @@ struct ServiceState {
   std::atomic<bool> stopping{false};
   std::thread reload_watcher;
   std::shared_ptr<ConnectionCounts> connections = std::make_shared<ConnectionCounts>();
+  // With --verdicts: the store, and the vectors of the images scored last (for verdicts by hash).
+  std::unique_ptr<VerdictStore> verdicts;
+  std::unique_ptr<VectorMemory> memory;
 
   std::shared_ptr<const Model> current() {
     std::lock_guard lock(model_mutex);

@@ -3,6 +3,7 @@
 //   POST /v1/score          image bytes (or a multipart form with one file) -> the scan record
 //   GET  /v1/health         liveness and readiness
 //   GET  /v1/model          model id, schema, thresholds, provenance
+//   POST /v1/verdicts       a reviewer's verdict on an image scored before (by SHA-256) or sent along
 //   POST /v1/model/reload   load the model file again (also on SIGHUP); a bad file is refused
 //   GET  /metrics           Prometheus text exposition format
 // Threading: each connection has its own thread (at most `max_connections`; a head or body sent
@@ -32,6 +33,8 @@ struct ServiceSettings {
   std::string token;                       // bearer token; empty: no authentication
   bool allow_unauthenticated = false;      // needed to bind a non-loopback address without a token
   std::string access_log;                  // file for the JSON access log; empty: stderr
+  std::string verdicts;                    // verdict store (verdicts.hpp); empty: POST /v1/verdicts answers 501
+  std::size_t remember = 2000;             // with verdicts: vectors of the last images scored, kept for them
   ScanSettings scan;                       // limits, prior and threshold overrides
 };
 
