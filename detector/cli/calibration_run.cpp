@@ -5,6 +5,7 @@
 #include <set>
 
 #include "residue/training/trainer.hpp"
+#include "residue/training/verdicts.hpp"
 
 namespace residue::cli {
 
@@ -41,6 +42,40 @@ bool calibrate_from_roots(Model& model, const CalibrationInputs& inputs, const c
       copies.push_back(std::move(c));
     }
   }
+  std::vector<std::string> roots = inputs.roots;
+  if (!inputs.verdicts.empty()) {
+    auto store = VerdictStore::open(inputs.verdicts);
+    auto judged = store ? verdict_items(**store) : Result<VerdictItems>(store.error());
+    if (!judged) {
+      std::cerr << "residue " << command << ": --verdicts: " << judged.error().message << "\n";
+      return false;
+    }
+    std::set<std::string> seen;
+    for (const auto& it : items) seen.insert(it.sha256);
+    size_t camera = 0;
+    size_t generated = 0;
+    for (auto& it : judged->items) {
+      if (seen.contains(it.sha256)) continue;  // already among the calibration roots
+      if (trained_on.contains(training_file_key(it.sha256))) {
+        ++overlap;
+        continue;
+      }
+      (it.file.label == Label::kCamera ? camera : generated) += 1;
+      items.push_back(std::move(it));
+    }
+    std::printf("Verdicts from %s: %zu verdicts; %zu camera and %zu generated judged images join the calibration.\n",
+                inputs.verdicts.c_str(), judged->verdicts, camera, generated);
+    for (const auto& note : judged->notes) std::printf("  %s\n", note.c_str());
+    model.provenance["calibration_verdicts"] = {{"file", inputs.verdicts},
+                                                {"verdicts", judged->verdicts},
+                                                {"camera_images", camera},
+                                                {"generated_images", generated},
+                                                {"conflicts_left_out", judged->conflicts},
+                                                {"without_vector", judged->without_vector}};
+    roots.push_back("verdicts:" + inputs.verdicts);
+  } else if (model.provenance.is_object()) {
+    model.provenance.erase("calibration_verdicts");
+  }
   if (overlap > 0) {
     std::cerr << "residue " << command << ": " << overlap
               << " calibration images are among the model's training images and were left out (their scores "
@@ -48,7 +83,7 @@ bool calibrate_from_roots(Model& model, const CalibrationInputs& inputs, const c
   }
   const double old_threshold = model.thresholds.likely_generated;
   auto calibrated =
-      calibrate_model(model, items, copies, inputs.group_by, inputs.settings, {inputs.roots, unreadable});
+      calibrate_model(model, items, copies, inputs.group_by, inputs.settings, {roots, unreadable});
   if (!calibrated) {
     std::cerr << "residue " << command << ": " << calibrated.error().message << "\n";
     return false;

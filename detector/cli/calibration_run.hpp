@@ -19,6 +19,7 @@ struct CalibrationInputs {
   DatasetArgs data;                // cache, jobs, extraction limits; `root` is set per root
   GroupBy group_by = GroupBy::kDuplicates;
   CalibrationSettings settings;
+  std::string verdicts;  // verdict store whose judged images join the calibration images
 };
 
 // Calibrates `model` in place and prints what changed. Returns false after printing the error.

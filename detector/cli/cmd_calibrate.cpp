@@ -60,7 +60,11 @@ void add_calibrate_command(CLI::App& app, int& exit_code) {
   cmd->add_option("roots", args->inputs.roots,
                   "labelled folders (ROOT/camera/**, optionally ROOT/generated/<generator>/** for the "
                   "likely-camera threshold) or CSV manifests (path,label[,generator[,group]])")
-      ->required();
+;
+  cmd->add_option("--verdicts", args->inputs.verdicts,
+                  "verdict store (residue verdict, serve --verdicts): its judged images with stored vectors "
+                  "join the calibration images (camera verdicts for the likely-generated threshold and the "
+                  "camera tail, generated ones for likely-camera); conflicts are left out");
   cmd->add_option("-o,--output", args->output, "recalibrated model file to write (atomically)")->required();
   cmd->add_option("--cache", args->inputs.data.cache_path,
                   "feature cache file (SQLite; default " + default_cache_path() + ")");
@@ -86,7 +90,14 @@ void add_calibrate_command(CLI::App& app, int& exit_code) {
       ->check(CLI::IsMember({"none", "light", "full"}))
       ->capture_default_str();
   cmd->footer("Exit status: 0 model written, 1 failure (too few camera photos among them), 2 usage error.");
-  cmd->callback([args, &exit_code] { exit_code = run_calibrate(*args); });
+  cmd->callback([args, &exit_code] {
+    if (args->inputs.roots.empty() && args->inputs.verdicts.empty()) {
+      std::cerr << "residue calibrate: give calibration folders or manifests, --verdicts FILE, or both\n";
+      exit_code = static_cast<int>(ExitCode::kUsage);
+      return;
+    }
+    exit_code = run_calibrate(*args);
+  });
 }
 
 }  // namespace residue::cli
