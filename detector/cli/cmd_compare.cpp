@@ -12,6 +12,7 @@
 #include "residue/detector/scoring/record.hpp"
 #include "residue/training/atomic_file.hpp"
 #include "residue/training/comparison.hpp"
+#include "residue/training/verdicts.hpp"
 #include "residue/training/model.hpp"
 #include "residue/training/trainer.hpp"
 
@@ -27,6 +28,7 @@ struct CompareArgs {
   std::string html;
   std::optional<double> prior;
   std::string group_by = "duplicates";
+  std::string verdicts;
 };
 
 std::set<std::string> generators_seen(const Model& model) {
@@ -106,7 +108,41 @@ int run_compare(const CompareArgs& args) {
   }
   const Comparison c = compare_models(labels, generators, old_scores, new_scores, args.settings,
                                       assign_groups(items, parse_group_by(args.group_by)));
-  const auto notes = notes_for(*old_model, *new_model, items, c);
+  auto notes = notes_for(*old_model, *new_model, items, c);
+  // Reviewers' verdicts: what each model was trained and calibrated on, and how its bands agreed.
+  nlohmann::ordered_json verdicts_json = nlohmann::ordered_json::object();
+  std::string verdicts_text = "\nVerdicts: OLD " + verdicts_used_text(*old_model) + ".\n          NEW " +
+                              verdicts_used_text(*new_model) + ".\n";
+  if (!args.verdicts.empty()) {
+    auto store = VerdictStore::open(args.verdicts);
+    auto judged = store ? verdict_items(**store) : Result<VerdictItems>(store.error());
+    if (!judged) {
+      std::cerr << "residue compare: --verdicts: " << judged.error().message << "\n";
+      return static_cast<int>(ExitCode::kFailure);
+    }
+    verdicts_json["file"] = args.verdicts;
+    verdicts_json["verdicts"] = judged->verdicts;
+    for (const auto& [key, m] : {std::pair{"old", &*old_model}, std::pair{"new", &*new_model}}) {
+      const VerdictAgreement a = agreement_of(*m, judged->items);
+      verdicts_json[key] = agreement_to_json(a);
+      verdicts_text += std::string("Bands of ") + (std::string(key) == "old" ? "OLD" : "NEW") + " on the " +
+                       std::to_string(a.images) + " judged images of " + args.verdicts + ":\n" +
+                       agreement_to_text(a);
+      notes.push_back(std::string(std::string(key) == "old" ? "OLD" : "NEW") + " on " + std::to_string(a.images) +
+                      " judged images of " + args.verdicts + ": " +
+                      std::to_string(a.count("camera", "likely-generated")) +
+                      " judged camera photos in likely-generated, " +
+                      std::to_string(a.count("generated", "likely-camera")) +
+                      " judged generated images in likely-camera, " +
+                      std::to_string(a.count("generated", "likely-generated")) + " of " +
+                      std::to_string(a.count("generated", "likely-camera") + a.count("generated", "inconclusive") +
+                                     a.count("generated", "likely-generated")) +
+                      " judged generated images caught.");
+    }
+    for (const auto& n : judged->notes) verdicts_text += "  " + n + "\n";
+  }
+  verdicts_json["old_used"] = verdicts_used_text(*old_model);
+  verdicts_json["new_used"] = verdicts_used_text(*new_model);
   if (args.json) {
     nlohmann::ordered_json j = comparison_to_json(c);
     j["data"] = args.data.root;
@@ -118,11 +154,13 @@ int run_compare(const CompareArgs& args) {
                                   : nlohmann::ordered_json(nullptr);
       j["calibration"][key]["promise"] = promise_text(m->thresholds);
     }
+    j["verdicts"] = verdicts_json;
     j["advisory"] = kAdvisoryNotice;
     std::cout << j.dump(2) << "\n";
   } else {
     std::cout << comparison_to_text(c);
     std::cout << "\nOLD " << calibration_summary(*old_model) << "NEW " << calibration_summary(*new_model);
+    std::cout << verdicts_text;
     for (const auto& n : notes) std::cout << "Note: " << n << "\n";
     std::cout << "\n" << kAdvisoryNotice << "\n";
   }
@@ -150,6 +188,9 @@ void add_compare_command(CLI::App& app, int& exit_code) {
   add_dataset_options(*cmd, args->data,
                       "labelled folder ROOT (ideally held back from both models' training)");
   cmd->add_flag("--json", args->json, "print the comparison as JSON");
+  cmd->add_option("--verdicts", args->verdicts,
+                  "verdict store: also show how each model's bands agreed with the reviewers' verdicts (judged "
+                  "images a model trained on are left out of its table)");
   cmd->add_option("--html", args->html, "also write the comparison as a page");
   cmd->add_option("--resamples", args->settings.resamples, "bootstrap resamples for the noise margin")
       ->check(CLI::Range(100, 100000))

@@ -3,6 +3,7 @@
 
 #include <sqlite3.h>
 
+#include <cstdio>
 #include <map>
 #include <set>
 
@@ -288,6 +289,81 @@ Result<VerdictItems> verdict_items(VerdictStore& store) {
     out.notes.push_back(std::to_string(out.other_extractor) + " judged images were left out: " + other_message);
   }
   return out;
+}
+
+size_t VerdictAgreement::count(const std::string& verdict, const std::string& band) const {
+  const auto v = counts.find(verdict);
+  if (v == counts.end()) return 0;
+  const auto b = v->second.find(band);
+  return b == v->second.end() ? 0 : b->second;
+}
+
+void add_agreement(VerdictAgreement& agreement, const std::string& verdict, const std::string& band) {
+  agreement.counts[verdict][band] += 1;
+  agreement.images += 1;
+}
+
+VerdictAgreement agreement_of(const Model& model, const std::vector<PreparedItem>& judged) {
+  std::set<std::string> trained;
+  const nlohmann::json provenance =
+      model.provenance.is_object() ? nlohmann::json(model.provenance) : nlohmann::json::object();
+  for (const auto& h : provenance.value("training_files", nlohmann::json::array())) trained.insert(h.get<std::string>());
+  VerdictAgreement out;
+  for (const auto& it : judged) {
+    if (trained.contains(training_file_key(it.sha256))) {
+      ++out.trained_on;
+      continue;
+    }
+    const Score s = score(model, it.features, std::nullopt, &it.facts.processing);
+    add_agreement(out, it.file.label == Label::kCamera ? "camera" : "generated", s.band);
+  }
+  return out;
+}
+
+nlohmann::ordered_json agreement_to_json(const VerdictAgreement& a) {
+  nlohmann::ordered_json table = nlohmann::ordered_json::object();
+  for (const char* verdict : {"camera", "generated"}) {
+    nlohmann::ordered_json row = nlohmann::ordered_json::object();
+    for (const char* band : {"likely-camera", "inconclusive", "likely-generated"}) row[band] = a.count(verdict, band);
+    table[verdict] = row;
+  }
+  return {{"images", a.images},
+          {"left_out_trained_on", a.trained_on},
+          {"by_verdict", table},
+          {"camera_judged_in_likely_generated", a.count("camera", "likely-generated")},
+          {"generated_judged_in_likely_camera", a.count("generated", "likely-camera")}};
+}
+
+std::string agreement_to_text(const VerdictAgreement& a) {
+  char line[200];
+  std::string out;
+  std::snprintf(line, sizeof line, "  %-20s %14s %14s %17s\n", "verdict \\ band", "likely-camera", "inconclusive",
+                "likely-generated");
+  out += line;
+  for (const char* verdict : {"camera", "generated"}) {
+    std::snprintf(line, sizeof line, "  %-20s %14zu %14zu %17zu\n", verdict, a.count(verdict, "likely-camera"),
+                  a.count(verdict, "inconclusive"), a.count(verdict, "likely-generated"));
+    out += line;
+  }
+  out += "  " + std::to_string(a.count("camera", "likely-generated")) +
+         " judged camera photos were in likely-generated (people wrongly suspected), " +
+         std::to_string(a.count("generated", "likely-camera")) +
+         " judged generated images in likely-camera (fakes waved through)";
+  if (a.trained_on > 0)
+    out += "; " + std::to_string(a.trained_on) + " judged images the model trained on are left out";
+  return out + ".\n";
+}
+
+std::string verdicts_used_text(const Model& model) {
+  const nlohmann::json p = model.provenance.is_object() ? nlohmann::json(model.provenance) : nlohmann::json::object();
+  const auto trained = p.value("verdicts", nlohmann::json::object());
+  const auto calibrated = p.value("calibration_verdicts", nlohmann::json::object());
+  const size_t added = trained.value("images_added", size_t{0});
+  const size_t cal = calibrated.value("camera_images", size_t{0}) + calibrated.value("generated_images", size_t{0});
+  return "trained on " + std::to_string(added) + " judged images" +
+         (trained.empty() ? std::string(" (no verdicts)") : " from " + trained.value("file", std::string())) +
+         ", calibrated on " + std::to_string(cal) +
+         (calibrated.empty() ? std::string(" (no verdicts)") : " from " + calibrated.value("file", std::string()));
 }
 
 }  // namespace residue

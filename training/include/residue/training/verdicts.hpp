@@ -9,6 +9,7 @@
 #pragma once
 
 #include <cstdint>
+#include <map>
 #include <filesystem>
 #include <memory>
 #include <mutex>
@@ -18,6 +19,7 @@
 #include <vector>
 
 #include "residue/features/status.hpp"
+#include "residue/training/model.hpp"
 #include "residue/training/prepare.hpp"
 
 struct sqlite3;
@@ -85,5 +87,28 @@ struct VerdictItems {
   std::vector<std::string> notes;  // one line per kind of omission
 };
 Result<VerdictItems> verdict_items(VerdictStore& store);
+
+// How bands agreed with reviewers' verdicts: judged images counted by (verdict, band). A camera
+// verdict in likely-generated is a person wrongly suspected; a generated verdict in likely-camera a
+// fake waved through.
+struct VerdictAgreement {
+  std::map<std::string, std::map<std::string, size_t>> counts;  // verdict -> band -> images
+  size_t images = 0;
+  size_t trained_on = 0;  // judged images the model trained on: left out (their scores are in-sample)
+  [[nodiscard]] size_t count(const std::string& verdict, const std::string& band) const;
+};
+
+// The model's bands on the judged images' stored vectors (scored as scan scores them, guards
+// included), leaving out those it trained on.
+VerdictAgreement agreement_of(const Model& model, const std::vector<PreparedItem>& judged);
+// One judged image with the band a record gave it.
+void add_agreement(VerdictAgreement& agreement, const std::string& verdict, const std::string& band);
+
+nlohmann::ordered_json agreement_to_json(const VerdictAgreement& agreement);
+// A plain-text confusion table (verdicts down, bands across) and what its corners mean.
+std::string agreement_to_text(const VerdictAgreement& agreement);
+
+// How many verdicts a model was trained and calibrated on (its provenance), as one line.
+std::string verdicts_used_text(const Model& model);
 
 }  // namespace residue
