@@ -70,7 +70,7 @@ def run(*a, **kw):
     return r
 
 
-items = devset.items(args.dev, work)
+items = devset.items(os.path.abspath(args.dev), work)
 held = lambda g: hashed(g) % 10 < 3  # noqa: E731
 family = [it for it in items if it[2] == args.family]
 train = [it for it in items if it[2] != args.family and not held(it[3])]

@@ -1,5 +1,7 @@
 // `residue report SCAN.jsonl... -o REPORT.html` and `residue explain MODEL IMAGE -o DIR`.
 #include <fstream>
+#include <map>
+#include <set>
 #include <iostream>
 #include <memory>
 
@@ -18,6 +20,7 @@ struct ReportArgs {
   std::vector<std::string> scans;
   std::string output;
   std::string model_path;
+  std::string verdicts;
   int top = 24;
 };
 
@@ -57,6 +60,27 @@ int run_report(const ReportArgs& args) {
     }
     in.model = std::move(*model);
   }
+  if (!args.verdicts.empty()) {
+    auto store = VerdictStore::open(args.verdicts);
+    auto all = store ? (*store)->list() : Result<std::vector<Verdict>>(store.error());
+    if (!all) {
+      std::cerr << "residue report: --verdicts: " << all.error().message << "\n";
+      return static_cast<int>(ExitCode::kFailure);
+    }
+    std::map<std::string, std::set<std::string>> judged;  // sha256 -> verdicts given
+    for (const auto& v : *all) judged[v.sha256].insert(v.verdict);
+    VerdictAgreement agreement;
+    std::set<std::string> counted;
+    for (const auto& r : in.records) {
+      if (!r.contains("sha256") || !r["sha256"].is_string() || !r.contains("band") || !r["band"].is_string()) continue;
+      const std::string sha = r["sha256"];
+      const auto j = judged.find(sha);
+      if (j == judged.end() || j->second.size() != 1 || !counted.insert(sha).second) continue;
+      add_agreement(agreement, *j->second.begin(), r["band"]);
+    }
+    in.verdicts = agreement;
+    in.verdicts_source = args.verdicts;
+  }
   if (auto w = write_file_atomically(args.output, report_page(in)); !w) {
     std::cerr << "residue report: " << w.error().message << "\n";
     return static_cast<int>(ExitCode::kFailure);
@@ -90,6 +114,8 @@ void add_report_command(CLI::App& app, int& exit_code) {
       ->required();
   cmd->add_option("-o,--output", args->output, "HTML file to write (atomically)")->required();
   cmd->add_option("--model", args->model_path, "the model file, to include its provenance");
+  cmd->add_option("--verdicts", args->verdicts,
+                  "verdict store: show how the records' bands agreed with reviewers' verdicts on the same images");
   cmd->add_option("--top", args->top, "highest-scoring files shown with pictures")
       ->check(CLI::Range(0, 500))
       ->capture_default_str();

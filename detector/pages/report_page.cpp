@@ -334,8 +334,31 @@ std::string report_page(const ReportInput& in) {
     }
     h += "</table>";
   }
+  if (in.verdicts) {
+    const VerdictAgreement& a = *in.verdicts;
+    h += "<h2>Reviewers' verdicts</h2><p>" + std::to_string(a.images) + " of these images were judged by a reviewer (" +
+         html_escape(in.verdicts_source) +
+         "; images judged both ways are left out). The records' bands against the verdicts:</p>"
+         "<table><tr><th>verdict \\ band</th><th>likely-camera</th><th>inconclusive</th><th>likely-generated</th></tr>";
+    for (const char* verdict : {"camera", "generated"}) {
+      h += std::string("<tr><td>") + verdict + "</td>";
+      for (const char* band : {"likely-camera", "inconclusive", "likely-generated"}) {
+        const bool wrong = (std::string(verdict) == "camera" && std::string(band) == "likely-generated") ||
+                           (std::string(verdict) == "generated" && std::string(band) == "likely-camera");
+        h += std::string("<td class='n'") + (wrong && a.count(verdict, band) > 0 ? " style='font-weight:bold'" : "") +
+             ">" + std::to_string(a.count(verdict, band)) + "</td>";
+      }
+      h += "</tr>";
+    }
+    h += "</table><p>" + std::to_string(a.count("camera", "likely-generated")) +
+         " judged camera photos were in likely-generated: people wrongly suspected. " +
+         std::to_string(a.count("generated", "likely-camera")) +
+         " judged generated images were in likely-camera: fakes waved through. Reviewers judge the images "
+         "that reach them, not a random sample: these counts describe that queue, not the archive.</p>";
+  }
   h += "<h2>Model provenance</h2>";
   if (in.model) {
+    h += "<p>Reviewers' verdicts: " + html_escape(verdicts_used_text(*in.model)) + ".</p>";
     const auto& p = in.model->provenance;
     h += "<p>Model <code>" + html_escape(in.model->id) + "</code>, trained " +
          html_escape(in.model->created) + ". Likely-generated threshold " +

@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "residue/training/model.hpp"
+#include "residue/training/verdicts.hpp"
 
 namespace residue {
 
@@ -17,6 +18,10 @@ struct ReportInput {
   std::vector<std::string> sources;     // the scan files
   std::optional<Model> model;           // for the provenance section, when given
   int top = 24;                         // highest-scoring files shown with pictures
+  // Reviewers' verdicts on images of these records (matched by SHA-256): the records' bands against
+  // them, and where they came from.
+  std::optional<VerdictAgreement> verdicts;
+  std::string verdicts_source;
 };
 
 // Builds the page. Pictures of the top files are made by reading the files again where they are
