@@ -103,9 +103,10 @@ void record_verdict(ServiceState& s, const httplib::Request& req, httplib::Respo
         {{"recorded", verdict_to_json(added->verdict, false)},
          {"conflict", added->conflict},
          {"earlier", earlier},
-         {"note", added->conflict ? "an earlier verdict on this image disagrees: both are kept, and the image is "
-                                    "left out of training until one is removed (residue verdict list --conflicts)"
-                                  : ""},
+         {"note", added->conflict ? Json("an earlier verdict on this image disagrees: both are kept, and the image "
+                                         "is left out of training until one is removed (residue verdict list "
+                                         "--conflicts)")
+                                  : Json(nullptr)},
          {"advisory", kAdvisoryNotice}});
 }
 
@@ -182,7 +183,8 @@ void add_handlers(ServiceState& s, const std::function<Result<std::string>()>& r
                                         const httplib::ContentReader& content_reader) {
     s.observe("/v1/explain", req, res, [&]() -> std::string {
       const auto body = read_upload(req, res, content_reader, cfg.max_body_bytes);
-      const auto settings = body ? request_settings(req, res, cfg.scan) : std::nullopt;
+      auto settings = body ? request_settings(req, res, cfg.scan) : std::nullopt;
+      if (settings) settings->with_features = s.memory != nullptr;
       std::optional<Result<Explanation>> explained;
       if (!settings || !s.on_a_worker(res, [&](const Model& model) {
             explained = explain_bytes(upload_name(req), as_bytes(*body), model, *settings);
@@ -195,8 +197,10 @@ void add_handlers(ServiceState& s, const std::function<Result<std::string>()>& r
         reply(res, status_for(code), error_body(code, e.message));
         return "";
       }
-      const Explanation& x = **explained;
+      Explanation& x = **explained;
+      remember(s, x.summary);
       Json answer = x.summary;
+      answer["verdicts"] = s.memory != nullptr;
       answer["pictures"] = {{"preview", png_data_uri(x.pictures.preview)},
                             {"noise_residual", png_data_uri(x.pictures.noise_residual)},
                             {"residual_spectrum", png_data_uri(x.pictures.residual_spectrum)},

@@ -6,7 +6,9 @@ chromium-driver and python3-selenium. The page gets the token typed once, then a
 scikit-image crop) and a SIMULATED generated image (tests/cli/make_labelled.py), each uploaded
 through the page's file chooser, then both dropped at once; the band and probability it shows must
 be those /v1/score gives for the same bytes. A truncated file must show its error, an upload without the token must show
-the 401 and what to do. The page must load nothing from outside, keep the advisory in view, and
+the 401 and what to do. Under a result, the verdict buttons record the reviewer's decision (by hash,
+or with the image when the service has forgotten it) and a conflicting second verdict is shown as
+such. The page must load nothing from outside, keep the advisory in view, and
 give every control a label. Traffic goes only to 127.0.0.1.
 
 Usage: test_review_page.py PATH/TO/residue [SCREENSHOT.png]
@@ -40,6 +42,7 @@ screenshot = sys.argv[2] if len(sys.argv) > 2 else None
 run = runner(residue)
 here = os.path.dirname(os.path.abspath(__file__))
 TOKEN = "review-page-test-token"
+STORE = None
 
 
 def post(base, route, data, token=TOKEN, name="upload"):
@@ -161,6 +164,53 @@ def check_shown_score(browser, base, path, what):
     return scored
 
 
+def verdicts_stored():
+    out = run(["verdict", "list", "--verdicts", STORE, "--json"])
+    return [json.loads(line) for line in out.stdout.splitlines() if line.strip()]
+
+
+def judge(browser, card, button, generator=None):
+    """Clicks one of a card's verdict buttons and waits for its confirmation."""
+    status = card.find_element(By.CSS_SELECTOR, ".verdict-status")
+    before = status.text
+    if generator:
+        field = card.find_element(By.CSS_SELECTOR, "input.generator")
+        field.clear()
+        field.send_keys(generator)
+    card.find_element(By.CSS_SELECTOR, button).click()
+    WebDriverWait(browser, 60).until(lambda b: status.text not in ("", before, "Recording\u2026"))
+    return status
+
+
+def check_verdict_buttons(browser, base, camera, generated):
+    """The two verdict buttons under a result record what the reviewer decided, say so, and show a
+    conflict; the service remembers one image only (--remember 1), so the earlier card's verdict
+    goes through the fallback that sends the image itself."""
+    cards = {p: browser.find_element(By.CSS_SELECTOR, f'article.result[data-file="{os.path.basename(p)}"]')
+             for p in (camera, generated)}
+    for card in cards.values():
+        labels = card.find_elements(By.CSS_SELECTOR, ".verdict-buttons label")
+        field = card.find_element(By.CSS_SELECTOR, "input.generator")
+        check(len(labels) == 1 and labels[0].get_attribute("for") == field.get_attribute("id"),
+              "the generator field under a result has its label")
+    status = judge(browser, cards[generated], ".judge-generated", "sim-tconv")
+    check(status.get_attribute("data-recorded") == "generated" and "Recorded: generated (sim-tconv)" in status.text,
+          f"the page confirms a generated verdict with its generator: {status.text}")
+    status = judge(browser, cards[camera], ".judge-camera")
+    check(status.get_attribute("data-recorded") == "camera" and "Recorded: camera photo" in status.text,
+          f"a verdict on an image the service has forgotten is recorded by sending the image: {status.text}")
+    status = judge(browser, cards[camera], ".judge-generated")
+    check(status.get_attribute("data-conflict") == "true" and "disagrees" in status.text,
+          f"a second, different verdict on the same image is recorded and the conflict is said: {status.text}")
+    stored = verdicts_stored()
+    check([(v["verdict"], v["generator"], v["has_features"], v["conflict"]) for v in stored] ==
+          [("generated", "sim-tconv", True, False), ("camera", None, True, True), ("generated", None, True, True)],
+          f"the store holds the three verdicts, each with its vector, the conflict marked: {stored}")
+    _, scored = post(base, "/v1/score", open(generated, "rb").read())
+    check(stored[0]["sha256"] == scored["sha256"] and stored[0]["band"] == scored["band"],
+          "the verdict records the image's hash and the band the reviewer saw")
+
+
 def check_page(base, camera, generated, broken):
     browser = start_browser()
     try:
@@ -211,6 +261,8 @@ def check_page(base, camera, generated, broken):
                   expected["p_generated"], f"a dropped image ({name}) gets the same result as when chosen")
         check("2 images scored" in browser.find_element(By.ID, "status").text, "the status line counts both")
 
+        check_verdict_buttons(browser, base, camera, generated)
+
         # The token is typed once: it survives a reload of the tab, and is gone when forgotten.
         browser.refresh()
         check(browser.find_element(By.ID, "token").get_attribute("value") == TOKEN, "the token is kept for the tab")
@@ -230,8 +282,10 @@ def check_page(base, camera, generated, broken):
         if screenshot:
             browser.set_window_size(1280, 2400)
             browser.save_screenshot(screenshot)
+        # Expected refusals: the 401 without a token, the 422 of the broken file, and the 404 of a
+        # verdict by hash on an image the service forgot (the page then sends the image).
         logs = [e for e in browser.get_log("browser") if e["level"] == "SEVERE" and "401" not in e["message"]
-                and "422" not in e["message"]]
+                and "422" not in e["message"] and not ("/v1/verdicts" in e["message"] and "404" in e["message"])]
         check(not logs, f"no script errors or blocked resources in the browser console: {logs}")
     finally:
         browser.quit()
@@ -255,7 +309,10 @@ def main():
         with open(token_file, "w") as f:
             f.write(TOKEN + "\n")
 
-        proc = subprocess.Popen([residue, "serve", model, "--port", "0", "--token-file", token_file],
+        global STORE
+        STORE = os.path.join(tmp, "verdicts.sqlite")
+        proc = subprocess.Popen([residue, "serve", model, "--port", "0", "--token-file", token_file,
+                                 "--verdicts", STORE, "--remember", "1"],
                                 stderr=subprocess.PIPE, text=True)
         try:
             port = json.loads(proc.stderr.readline())["port"]
