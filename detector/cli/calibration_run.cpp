@@ -63,8 +63,9 @@ bool calibrate_from_roots(Model& model, const CalibrationInputs& inputs, const c
       (it.file.label == Label::kCamera ? camera : generated) += 1;
       items.push_back(std::move(it));
     }
-    std::printf("Verdicts from %s: %zu verdicts; %zu camera and %zu generated judged images join the calibration.\n",
-                inputs.verdicts.c_str(), judged->verdicts, camera, generated);
+    std::printf(
+        "Verdicts from %s: %zu verdicts; %zu camera and %zu generated judged images join the calibration.\n",
+        inputs.verdicts.c_str(), judged->verdicts, camera, generated);
     for (const auto& note : judged->notes) std::printf("  %s\n", note.c_str());
     model.provenance["calibration_verdicts"] = {{"file", inputs.verdicts},
                                                 {"verdicts", judged->verdicts},

@@ -59,8 +59,7 @@ void add_calibrate_command(CLI::App& app, int& exit_code) {
   cmd->add_option("model", args->model_path, "model file from residue train")->required();
   cmd->add_option("roots", args->inputs.roots,
                   "labelled folders (ROOT/camera/**, optionally ROOT/generated/<generator>/** for the "
-                  "likely-camera threshold) or CSV manifests (path,label[,generator[,group]])")
-;
+                  "likely-camera threshold) or CSV manifests (path,label[,generator[,group]])");
   cmd->add_option("--verdicts", args->inputs.verdicts,
                   "verdict store (residue verdict, serve --verdicts): its judged images with stored vectors "
                   "join the calibration images (camera verdicts for the likely-generated threshold and the "

@@ -12,9 +12,9 @@
 #include "residue/detector/scoring/record.hpp"
 #include "residue/training/atomic_file.hpp"
 #include "residue/training/comparison.hpp"
-#include "residue/training/verdicts.hpp"
 #include "residue/training/model.hpp"
 #include "residue/training/trainer.hpp"
+#include "residue/training/verdicts.hpp"
 
 namespace residue::cli {
 
@@ -128,14 +128,15 @@ int run_compare(const CompareArgs& args) {
       verdicts_text += std::string("Bands of ") + (std::string(key) == "old" ? "OLD" : "NEW") + " on the " +
                        std::to_string(a.images) + " judged images of " + args.verdicts + ":\n" +
                        agreement_to_text(a);
-      notes.push_back(std::string(std::string(key) == "old" ? "OLD" : "NEW") + " on " + std::to_string(a.images) +
-                      " judged images of " + args.verdicts + ": " +
+      notes.push_back(std::string(std::string(key) == "old" ? "OLD" : "NEW") + " on " +
+                      std::to_string(a.images) + " judged images of " + args.verdicts + ": " +
                       std::to_string(a.count("camera", "likely-generated")) +
                       " judged camera photos in likely-generated, " +
                       std::to_string(a.count("generated", "likely-camera")) +
                       " judged generated images in likely-camera, " +
                       std::to_string(a.count("generated", "likely-generated")) + " of " +
-                      std::to_string(a.count("generated", "likely-camera") + a.count("generated", "inconclusive") +
+                      std::to_string(a.count("generated", "likely-camera") +
+                                     a.count("generated", "inconclusive") +
                                      a.count("generated", "likely-generated")) +
                       " judged generated images caught.");
     }
@@ -188,9 +189,10 @@ void add_compare_command(CLI::App& app, int& exit_code) {
   add_dataset_options(*cmd, args->data,
                       "labelled folder ROOT (ideally held back from both models' training)");
   cmd->add_flag("--json", args->json, "print the comparison as JSON");
-  cmd->add_option("--verdicts", args->verdicts,
-                  "verdict store: also show how each model's bands agreed with the reviewers' verdicts (judged "
-                  "images a model trained on are left out of its table)");
+  cmd->add_option(
+      "--verdicts", args->verdicts,
+      "verdict store: also show how each model's bands agreed with the reviewers' verdicts (judged "
+      "images a model trained on are left out of its table)");
   cmd->add_option("--html", args->html, "also write the comparison as a page");
   cmd->add_option("--resamples", args->settings.resamples, "bootstrap resamples for the noise margin")
       ->check(CLI::Range(100, 100000))

@@ -6,8 +6,8 @@
 
 #include "commands.hpp"
 #include "residue/detector/demo/demo.hpp"
-#include "residue/detector/scoring/record.hpp"
 #include "residue/detector/demo/sample_images.hpp"
+#include "residue/detector/scoring/record.hpp"
 
 namespace residue::cli {
 

@@ -1,14 +1,14 @@
 // `residue report SCAN.jsonl... -o REPORT.html` and `residue explain MODEL IMAGE -o DIR`.
 #include <fstream>
-#include <map>
-#include <set>
 #include <iostream>
+#include <map>
 #include <memory>
+#include <set>
 
 #include "commands.hpp"
+#include "residue/detector/pages/report_page.hpp"
 #include "residue/detector/scoring/explain.hpp"
 #include "residue/detector/scoring/record.hpp"
-#include "residue/detector/pages/report_page.hpp"
 #include "residue/detector/scoring/scan.hpp"
 #include "residue/training/atomic_file.hpp"
 
@@ -72,7 +72,8 @@ int run_report(const ReportArgs& args) {
     VerdictAgreement agreement;
     std::set<std::string> counted;
     for (const auto& r : in.records) {
-      if (!r.contains("sha256") || !r["sha256"].is_string() || !r.contains("band") || !r["band"].is_string()) continue;
+      if (!r.contains("sha256") || !r["sha256"].is_string() || !r.contains("band") || !r["band"].is_string())
+        continue;
       const std::string sha = r["sha256"];
       const auto j = judged.find(sha);
       if (j == judged.end() || j->second.size() != 1 || !counted.insert(sha).second) continue;
@@ -114,8 +115,9 @@ void add_report_command(CLI::App& app, int& exit_code) {
       ->required();
   cmd->add_option("-o,--output", args->output, "HTML file to write (atomically)")->required();
   cmd->add_option("--model", args->model_path, "the model file, to include its provenance");
-  cmd->add_option("--verdicts", args->verdicts,
-                  "verdict store: show how the records' bands agreed with reviewers' verdicts on the same images");
+  cmd->add_option(
+      "--verdicts", args->verdicts,
+      "verdict store: show how the records' bands agreed with reviewers' verdicts on the same images");
   cmd->add_option("--top", args->top, "highest-scoring files shown with pictures")
       ->check(CLI::Range(0, 500))
       ->capture_default_str();

@@ -29,8 +29,8 @@ struct TrainArgs {
   std::string instances = "image";
   std::string from;  // parent model whose settings are reused
   bool keep_c = false;
-  std::vector<std::string> calibration;  // camera photos (and generated images) held out for the thresholds
-  std::vector<std::string> given;        // options set on the command line (they win over --from)
+  std::vector<std::string> calibration;   // camera photos (and generated images) held out for the thresholds
+  std::vector<std::string> given;         // options set on the command line (they win over --from)
   std::vector<std::string> more_records;  // further record files after ROOT
   std::string labels;                     // with records: a labelled folder or manifest
   std::string verdicts;                   // verdict store whose judged images join the data
@@ -185,15 +185,15 @@ int run_train(TrainArgs& args) {
     return static_cast<int>(ExitCode::kUsage);
   }
   if (from_records && settings->window_instances) {
-    std::cerr << "residue train: records carry no window vectors: --instances windows needs the image files\n";
+    std::cerr
+        << "residue train: records carry no window vectors: --instances windows needs the image files\n";
     return static_cast<int>(ExitCode::kUsage);
   }
   std::optional<PreparedDataset> prepared;
   if (from_records) {
     std::vector<std::string> files = {args.data.root};
     files.insert(files.end(), args.more_records.begin(), args.more_records.end());
-    prepared = prepare_from_records(files, args.labels, settings->augment,
-                                    given(args, "--augment"), "train");
+    prepared = prepare_from_records(files, args.labels, settings->augment, given(args, "--augment"), "train");
     if (prepared) settings->augment = prepared->augment;
   } else {
     prepared = prepare_from_args(args.data, "train");
@@ -349,10 +349,11 @@ void add_train_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--labels", args->labels,
                   "with records: the labelled folder or CSV manifest that labels them (matched by path); "
                   "without it, each record's own label, generator and group members are used");
-  cmd->add_option("--verdicts", args->verdicts,
-                  "verdict store (residue verdict, serve --verdicts): its judged images with stored vectors join "
-                  "the training data, generated ones under their generator name or 'unnamed'; conflicts are "
-                  "left out");
+  cmd->add_option(
+      "--verdicts", args->verdicts,
+      "verdict store (residue verdict, serve --verdicts): its judged images with stored vectors join "
+      "the training data, generated ones under their generator name or 'unnamed'; conflicts are "
+      "left out");
   cmd->add_flag("--keep-c", args->keep_c,
                 "with --from: keep the parent's chosen C instead of searching the grid again (faster)");
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");

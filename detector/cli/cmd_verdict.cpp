@@ -152,15 +152,18 @@ int run_add(const VerdictArgs& args) {
       with_vector += stored->verdict.features.has_value();
       if (stored->conflict) {
         ++conflicts;
-        std::cerr << "  " << row.where << ": conflict: " << stored->verdict.sha256.substr(0, 12) << " is now judged "
-                  << stored->verdict.verdict << " (verdict " << stored->verdict.id << ") and otherwise before";
+        std::cerr << "  " << row.where << ": conflict: " << stored->verdict.sha256.substr(0, 12)
+                  << " is now judged " << stored->verdict.verdict << " (verdict " << stored->verdict.id
+                  << ") and otherwise before";
         for (const auto& e : stored->earlier) std::cerr << " (verdict " << e.id << ": " << e.verdict << ")";
         std::cerr << "\n";
       }
     }
   }
-  std::cout << added << " verdicts recorded in " << args.store << " (" << with_vector << " with a feature vector)";
-  if (conflicts > 0) std::cout << "; " << conflicts << " conflict with earlier verdicts (residue verdict list --conflicts)";
+  std::cout << added << " verdicts recorded in " << args.store << " (" << with_vector
+            << " with a feature vector)";
+  if (conflicts > 0)
+    std::cout << "; " << conflicts << " conflict with earlier verdicts (residue verdict list --conflicts)";
   if (failed > 0) std::cout << "; " << failed << " rows refused";
   std::cout << "\n";
   return failed > 0 ? static_cast<int>(ExitCode::kSomeInputsFailed) : 0;
@@ -191,10 +194,10 @@ int run_list(const VerdictArgs& args) {
       std::cout << record_line(j) << "\n";
       continue;
     }
-    std::printf("%-6lld %-20s %-14s %-9s %-18s %-12s %-6s %s\n", static_cast<long long>(v.id), v.recorded.c_str(),
-                v.sha256.substr(0, 12).c_str(), v.verdict.c_str(), v.generator.empty() ? "-" : v.generator.c_str(),
-                v.reviewer.empty() ? "-" : v.reviewer.c_str(), v.features ? "yes" : "no",
-                conflict ? "CONFLICT" : "");
+    std::printf(
+        "%-6lld %-20s %-14s %-9s %-18s %-12s %-6s %s\n", static_cast<long long>(v.id), v.recorded.c_str(),
+        v.sha256.substr(0, 12).c_str(), v.verdict.c_str(), v.generator.empty() ? "-" : v.generator.c_str(),
+        v.reviewer.empty() ? "-" : v.reviewer.c_str(), v.features ? "yes" : "no", conflict ? "CONFLICT" : "");
   }
   if (!args.json) {
     std::cout << shown << " verdicts; " << conflicted->size()
@@ -259,17 +262,20 @@ void add_store_option(CLI::App& cmd, VerdictArgs& args) {
 
 void add_verdict_command(CLI::App& app, int& exit_code) {
   auto args = std::make_shared<VerdictArgs>();
-  auto* cmd = app.add_subcommand("verdict", "Record reviewers' verdicts (camera or generated) for retraining");
+  auto* cmd =
+      app.add_subcommand("verdict", "Record reviewers' verdicts (camera or generated) for retraining");
   cmd->require_subcommand(1);
 
   auto* add = cmd->add_subcommand(
       "add",
-      "Record verdicts from CSV (header: path or sha256, verdict, and optionally generator, reviewer, note) or "
+      "Record verdicts from CSV (header: path or sha256, verdict, and optionally generator, reviewer, note) "
+      "or "
       "JSON lines (verdict export lines, or scan records given a \"verdict\" member); - reads stdin");
   add_store_option(*add, *args);
   add->add_option("inputs", args->inputs, "CSV or JSONL files")->required();
-  add->add_option("--cache", args->cache_path,
-                  "feature cache to take vectors from for rows given by hash (default " + default_cache_path() + ")");
+  add->add_option(
+      "--cache", args->cache_path,
+      "feature cache to take vectors from for rows given by hash (default " + default_cache_path() + ")");
   add->add_flag("--no-cache", args->no_cache, "use and store no cached vectors");
   add_extract_options(*add, args->extract);
   add->footer("Exit status: 0 all recorded, 3 some rows refused (each named on stderr), 1 failure.");

@@ -30,7 +30,9 @@ void add_dataset_options(CLI::App& command, DatasetArgs& args, const std::string
   command.add_option("--cache", args.cache_path,
                      "feature cache file (SQLite; default " + default_cache_path() + ")");
   command.add_flag("--no-cache", args.no_cache, "extract every file again and store nothing");
-  command.add_option("-j,--jobs", args.jobs, "threads for extraction, and for the cross-validation folds of training (default: cores)")
+  command
+      .add_option("-j,--jobs", args.jobs,
+                  "threads for extraction, and for the cross-validation folds of training (default: cores)")
       ->check(CLI::Range(1, 256));
   add_extract_options(command, args.extract);
 }
@@ -104,7 +106,8 @@ std::optional<PreparedDataset> prepare_from_records(const std::vector<std::strin
   }
   const auto start = std::chrono::steady_clock::now();
   const std::vector<std::filesystem::path> paths(files.begin(), files.end());
-  auto loaded = load_records_for_training(paths, labels.empty() ? nullptr : &out.dataset, augment, !augment_given);
+  auto loaded =
+      load_records_for_training(paths, labels.empty() ? nullptr : &out.dataset, augment, !augment_given);
   if (!loaded) {
     std::cerr << "residue " << command << ": " << loaded.error().message << "\n";
     return std::nullopt;
@@ -117,7 +120,8 @@ std::optional<PreparedDataset> prepare_from_records(const std::vector<std::strin
   std::cerr << "residue " << command << ": " << out.report.items.size() << " images ready from "
             << loaded->records << " records in " << files.size() << " file" << (files.size() == 1 ? "" : "s");
   if (loaded->augment != Augment::kNone)
-    std::cerr << "; " << out.report.copies.size() << " augmented copies (" << augment_name(loaded->augment) << ")";
+    std::cerr << "; " << out.report.copies.size() << " augmented copies (" << augment_name(loaded->augment)
+              << ")";
   if (!augment_given && loaded->augment != augment) {
     std::cerr << "; the records carry " << augment_name(loaded->augment) << " copies, so --augment "
               << augment_name(loaded->augment) << " is used (record them with --copies "

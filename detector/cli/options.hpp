@@ -35,9 +35,10 @@ inline void add_extract_options(CLI::App& command, ExtractOptions& options) {
 
 // Registers --with-features and --copies (records that carry their feature vectors: carried.hpp).
 inline void add_carry_options(CLI::App& command, ScanSettings& settings) {
-  auto* with = command.add_flag("--with-features", settings.with_features,
-                   "add the feature vector to each record (with the extractor version, schema and the file "
-                   "facts training needs), so that verdicts and training can use it without the image");
+  auto* with = command.add_flag(
+      "--with-features", settings.with_features,
+      "add the feature vector to each record (with the extractor version, schema and the file "
+      "facts training needs), so that verdicts and training can use it without the image");
   command
       .add_option_function<std::string>(
           "--copies", [&settings](const std::string& level) { settings.copies = *parse_augment(level); },

@@ -336,17 +336,19 @@ std::string report_page(const ReportInput& in) {
   }
   if (in.verdicts) {
     const VerdictAgreement& a = *in.verdicts;
-    h += "<h2>Reviewers' verdicts</h2><p>" + std::to_string(a.images) + " of these images were judged by a reviewer (" +
-         html_escape(in.verdicts_source) +
+    h += "<h2>Reviewers' verdicts</h2><p>" + std::to_string(a.images) +
+         " of these images were judged by a reviewer (" + html_escape(in.verdicts_source) +
          "; images judged both ways are left out). The records' bands against the verdicts:</p>"
-         "<table><tr><th>verdict \\ band</th><th>likely-camera</th><th>inconclusive</th><th>likely-generated</th></tr>";
+         "<table><tr><th>verdict \\ "
+         "band</th><th>likely-camera</th><th>inconclusive</th><th>likely-generated</th></tr>";
     for (const char* verdict : {"camera", "generated"}) {
       h += std::string("<tr><td>") + verdict + "</td>";
       for (const char* band : {"likely-camera", "inconclusive", "likely-generated"}) {
         const bool wrong = (std::string(verdict) == "camera" && std::string(band) == "likely-generated") ||
                            (std::string(verdict) == "generated" && std::string(band) == "likely-camera");
-        h += std::string("<td class='n'") + (wrong && a.count(verdict, band) > 0 ? " style='font-weight:bold'" : "") +
-             ">" + std::to_string(a.count(verdict, band)) + "</td>";
+        h += std::string("<td class='n'") +
+             (wrong && a.count(verdict, band) > 0 ? " style='font-weight:bold'" : "") + ">" +
+             std::to_string(a.count(verdict, band)) + "</td>";
       }
       h += "</tr>";
     }

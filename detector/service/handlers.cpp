@@ -20,8 +20,9 @@ namespace {
 void remember(ServiceState& s, Json& record) {
   if (!record.contains("features")) return;
   if (s.memory && record.contains("band")) {
-    s.memory->put(record["sha256"].get<std::string>(), {record["features"].dump(), record.value("model", ""),
-                                                        record.value("band", ""), record.value("p_generated", 0.0)});
+    s.memory->put(record["sha256"].get<std::string>(),
+                  {record["features"].dump(), record.value("model", ""), record.value("band", ""),
+                   record.value("p_generated", 0.0)});
   }
   record.erase("features");
 }
@@ -30,7 +31,8 @@ void remember(ServiceState& s, Json& record) {
 // form with the image as a file and those fields (sha256 then comes from the image).
 void record_verdict(ServiceState& s, const httplib::Request& req, httplib::Response& res) {
   if (!s.verdicts) {
-    reply(res, 501, error_body("not-enabled", "this service records no verdicts: start it with --verdicts FILE"));
+    reply(res, 501,
+          error_body("not-enabled", "this service records no verdicts: start it with --verdicts FILE"));
     return;
   }
   nlohmann::json fields = nlohmann::json::object();
@@ -46,8 +48,10 @@ void record_verdict(ServiceState& s, const httplib::Request& req, httplib::Respo
   } else {
     fields = nlohmann::json::parse(req.body, nullptr, false);
     if (fields.is_discarded() || !fields.is_object()) {
-      reply(res, 422, error_body("malformed", "the body must be a JSON object: {\"sha256\", \"verdict\": "
-                                              "\"camera\" or \"generated\", \"generator\", \"reviewer\", \"note\"}"));
+      reply(res, 422,
+            error_body("malformed",
+                       "the body must be a JSON object: {\"sha256\", \"verdict\": "
+                       "\"camera\" or \"generated\", \"generator\", \"reviewer\", \"note\"}"));
       return;
     }
   }
@@ -85,10 +89,11 @@ void record_verdict(ServiceState& s, const httplib::Request& req, httplib::Respo
                                                [](const Verdict& v) { return v.features.has_value(); });
     if (!stored) {
       reply(res, 404,
-            error_body("unknown-image",
-                       "this service has not scored an image with that SHA-256 recently (it remembers the last " +
-                           std::to_string(s.memory->capacity()) +
-                           "): send the image itself, as a multipart form with the verdict's fields"));
+            error_body(
+                "unknown-image",
+                "this service has not scored an image with that SHA-256 recently (it remembers the last " +
+                    std::to_string(s.memory->capacity()) +
+                    "): send the image itself, as a multipart form with the verdict's fields"));
       return;
     }
   }
@@ -103,10 +108,11 @@ void record_verdict(ServiceState& s, const httplib::Request& req, httplib::Respo
         {{"recorded", verdict_to_json(added->verdict, false)},
          {"conflict", added->conflict},
          {"earlier", earlier},
-         {"note", added->conflict ? Json("an earlier verdict on this image disagrees: both are kept, and the image "
-                                         "is left out of training until one is removed (residue verdict list "
-                                         "--conflicts)")
-                                  : Json(nullptr)},
+         {"note", added->conflict
+                      ? Json("an earlier verdict on this image disagrees: both are kept, and the image "
+                             "is left out of training until one is removed (residue verdict list "
+                             "--conflicts)")
+                      : Json(nullptr)},
          {"advisory", kAdvisoryNotice}});
 }
 
@@ -272,12 +278,13 @@ void add_handlers(ServiceState& s, const std::function<Result<std::string>()>& r
       }
       std::string text = s.metrics.text(waiting, active, s.current()->id, *s.connections);
       if (s.memory) {
-        text += "# HELP residue_remembered_vectors Feature vectors kept for verdicts by hash.\n"
-                "# TYPE residue_remembered_vectors gauge\nresidue_remembered_vectors " +
-                std::to_string(s.memory->size()) +
-                "\n# HELP residue_remembered_bytes Bytes those vectors hold.\n"
-                "# TYPE residue_remembered_bytes gauge\nresidue_remembered_bytes " +
-                std::to_string(s.memory->bytes()) + "\n";
+        text +=
+            "# HELP residue_remembered_vectors Feature vectors kept for verdicts by hash.\n"
+            "# TYPE residue_remembered_vectors gauge\nresidue_remembered_vectors " +
+            std::to_string(s.memory->size()) +
+            "\n# HELP residue_remembered_bytes Bytes those vectors hold.\n"
+            "# TYPE residue_remembered_bytes gauge\nresidue_remembered_bytes " +
+            std::to_string(s.memory->bytes()) + "\n";
       }
       res.set_content(text, "text/plain; version=0.0.4");
       return std::string();

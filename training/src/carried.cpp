@@ -30,8 +30,8 @@ Result<PreparedItem> vector_from_json(const nlohmann::json& j) {
     return make_error(ErrorCode::kCorrupt, "it has no vector");
   auto values = decode_vector(j["vector"].get<std::string>());
   if (!values || values->size() != feature_names().size()) {
-    return make_error(ErrorCode::kCorrupt, "its vector is not " + std::to_string(feature_names().size()) +
-                                               " base64 doubles");
+    return make_error(ErrorCode::kCorrupt,
+                      "its vector is not " + std::to_string(feature_names().size()) + " base64 doubles");
   }
   item.features.values = std::move(*values);
   item.from_cache = true;
@@ -74,8 +74,9 @@ std::optional<Label> parse_label(const nlohmann::json& v) {
 std::string encode_vector(const std::vector<double>& values) {
   const size_t bytes = values.size() * sizeof(double);
   std::string out(4 * ((bytes + 2) / 3) + 1, '\0');
-  const int written = EVP_EncodeBlock(reinterpret_cast<unsigned char*>(out.data()),
-                                      reinterpret_cast<const unsigned char*>(values.data()), static_cast<int>(bytes));
+  const int written =
+      EVP_EncodeBlock(reinterpret_cast<unsigned char*>(out.data()),
+                      reinterpret_cast<const unsigned char*>(values.data()), static_cast<int>(bytes));
   out.resize(static_cast<size_t>(std::max(0, written)));
   return out;
 }
@@ -83,8 +84,9 @@ std::string encode_vector(const std::vector<double>& values) {
 std::optional<std::vector<double>> decode_vector(const std::string& text) {
   if (text.size() % 4 != 0) return std::nullopt;
   std::string raw(3 * (text.size() / 4) + 1, '\0');
-  const int n = EVP_DecodeBlock(reinterpret_cast<unsigned char*>(raw.data()),
-                                reinterpret_cast<const unsigned char*>(text.data()), static_cast<int>(text.size()));
+  const int n =
+      EVP_DecodeBlock(reinterpret_cast<unsigned char*>(raw.data()),
+                      reinterpret_cast<const unsigned char*>(text.data()), static_cast<int>(text.size()));
   if (n < 0) return std::nullopt;
   // EVP_DecodeBlock counts the padding's zero bytes: take them off again.
   size_t length = static_cast<size_t>(n);
@@ -136,7 +138,8 @@ Result<CarriedFeatures> carried_from_json(const nlohmann::json& j) {
       return make_error(ErrorCode::kCorrupt, "its copies are not readable");
     out.copies_level = *level;
     for (const auto& m : c["made"]) {
-      auto copy = m.is_object() ? vector_from_json(m) : Result<PreparedItem>(make_error(ErrorCode::kCorrupt, ""));
+      auto copy =
+          m.is_object() ? vector_from_json(m) : Result<PreparedItem>(make_error(ErrorCode::kCorrupt, ""));
       if (!copy || !m.contains("transform") || !m["transform"].is_string())
         return make_error(ErrorCode::kCorrupt, "a copy is not readable");
       copy->augmentation = m["transform"];

@@ -64,18 +64,18 @@ constexpr const char* kColumns =
 }  // namespace
 
 nlohmann::ordered_json verdict_to_json(const Verdict& v, bool with_features) {
-  nlohmann::ordered_json j = {{"id", v.id},
-                              {"sha256", v.sha256},
-                              {"verdict", v.verdict},
-                              {"generator", optional_text(v.generator)},
-                              {"reviewer", optional_text(v.reviewer)},
-                              {"note", optional_text(v.note)},
-                              {"recorded", v.recorded},
-                              {"model", optional_text(v.model)},
-                              {"band", optional_text(v.band)},
-                              {"p_generated", v.p_generated ? nlohmann::ordered_json(*v.p_generated)
-                                                            : nlohmann::ordered_json()},
-                              {"has_features", v.features.has_value()}};
+  nlohmann::ordered_json j = {
+      {"id", v.id},
+      {"sha256", v.sha256},
+      {"verdict", v.verdict},
+      {"generator", optional_text(v.generator)},
+      {"reviewer", optional_text(v.reviewer)},
+      {"note", optional_text(v.note)},
+      {"recorded", v.recorded},
+      {"model", optional_text(v.model)},
+      {"band", optional_text(v.band)},
+      {"p_generated", v.p_generated ? nlohmann::ordered_json(*v.p_generated) : nlohmann::ordered_json()},
+      {"has_features", v.features.has_value()}};
   if (with_features && v.features) j["features"] = *v.features;
   return j;
 }
@@ -93,15 +93,14 @@ Result<Verdict> verdict_from_json(const nlohmann::json& j) {
     }
     return std::nullopt;
   };
-  for (const auto& [key, out, limit] :
-       {std::tuple<const char*, std::string&, size_t>{"sha256", v.sha256, 64},
-        {"verdict", v.verdict, 16},
-        {"generator", v.generator, kShortText},
-        {"reviewer", v.reviewer, kShortText},
-        {"note", v.note, kNoteText},
-        {"recorded", v.recorded, 64},
-        {"model", v.model, 64},
-        {"band", v.band, 32}}) {
+  for (const auto& [key, out, limit] : {std::tuple<const char*, std::string&, size_t>{"sha256", v.sha256, 64},
+                                        {"verdict", v.verdict, 16},
+                                        {"generator", v.generator, kShortText},
+                                        {"reviewer", v.reviewer, kShortText},
+                                        {"note", v.note, kNoteText},
+                                        {"recorded", v.recorded, 64},
+                                        {"model", v.model, 64},
+                                        {"band", v.band, 32}}) {
     if (auto e = text(key, out, limit)) return *e;
   }
   if (!is_sha256(v.sha256))
@@ -142,7 +141,8 @@ Result<std::unique_ptr<VerdictStore>> VerdictStore::open(const std::filesystem::
       "CREATE TABLE IF NOT EXISTS verdicts ("
       "  id INTEGER PRIMARY KEY AUTOINCREMENT, sha256 TEXT NOT NULL,"
       "  verdict TEXT NOT NULL CHECK (verdict IN ('camera', 'generated')),"
-      "  generator TEXT NOT NULL DEFAULT '', reviewer TEXT NOT NULL DEFAULT '', note TEXT NOT NULL DEFAULT '',"
+      "  generator TEXT NOT NULL DEFAULT '', reviewer TEXT NOT NULL DEFAULT '', note TEXT NOT NULL DEFAULT "
+      "'',"
       "  recorded TEXT NOT NULL, model TEXT NOT NULL DEFAULT '', band TEXT NOT NULL DEFAULT '',"
       "  p_generated REAL, features TEXT);"
       "CREATE INDEX IF NOT EXISTS verdicts_by_hash ON verdicts (sha256);";
@@ -164,13 +164,14 @@ Result<VerdictAdded> VerdictStore::add(Verdict v) {
   if (!earlier) return earlier.error();
   std::lock_guard lock(mutex_);
   Statement s;
-  sqlite3_prepare_v2(db_,
-                     "INSERT INTO verdicts (sha256, verdict, generator, reviewer, note, recorded, model, band, "
-                     "p_generated, features) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
-                     -1, &s.stmt, nullptr);
+  sqlite3_prepare_v2(
+      db_,
+      "INSERT INTO verdicts (sha256, verdict, generator, reviewer, note, recorded, model, band, "
+      "p_generated, features) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
+      -1, &s.stmt, nullptr);
   int k = 1;
-  for (const std::string* t : {&v.sha256, &v.verdict, &v.generator, &v.reviewer, &v.note, &v.recorded, &v.model,
-                               &v.band}) {
+  for (const std::string* t :
+       {&v.sha256, &v.verdict, &v.generator, &v.reviewer, &v.note, &v.recorded, &v.model, &v.band}) {
     sqlite3_bind_text(s.stmt, k++, t->c_str(), -1, SQLITE_TRANSIENT);
   }
   if (v.p_generated) {
@@ -185,7 +186,8 @@ Result<VerdictAdded> VerdictStore::add(Verdict v) {
     sqlite3_bind_null(s.stmt, 10);
   }
   if (sqlite3_step(s.stmt) != SQLITE_DONE)
-    return make_error(ErrorCode::kInternal, std::string("verdict store write failed: ") + sqlite3_errmsg(db_));
+    return make_error(ErrorCode::kInternal,
+                      std::string("verdict store write failed: ") + sqlite3_errmsg(db_));
   v.id = sqlite3_last_insert_rowid(db_);
   out.earlier = std::move(*earlier);
   for (const auto& e : out.earlier) out.conflict = out.conflict || e.verdict != v.verdict;
@@ -215,16 +217,17 @@ Result<size_t> VerdictStore::remove(std::int64_t id) {
   sqlite3_prepare_v2(db_, "DELETE FROM verdicts WHERE id = ?1", -1, &s.stmt, nullptr);
   sqlite3_bind_int64(s.stmt, 1, id);
   if (sqlite3_step(s.stmt) != SQLITE_DONE)
-    return make_error(ErrorCode::kInternal, std::string("verdict store write failed: ") + sqlite3_errmsg(db_));
+    return make_error(ErrorCode::kInternal,
+                      std::string("verdict store write failed: ") + sqlite3_errmsg(db_));
   return static_cast<size_t>(sqlite3_changes(db_));
 }
 
 Result<std::vector<std::string>> VerdictStore::conflicts() {
   std::lock_guard lock(mutex_);
   Statement s;
-  sqlite3_prepare_v2(db_,
-                     "SELECT sha256 FROM verdicts GROUP BY sha256 HAVING COUNT(DISTINCT verdict) > 1 ORDER BY sha256",
-                     -1, &s.stmt, nullptr);
+  sqlite3_prepare_v2(
+      db_, "SELECT sha256 FROM verdicts GROUP BY sha256 HAVING COUNT(DISTINCT verdict) > 1 ORDER BY sha256",
+      -1, &s.stmt, nullptr);
   std::vector<std::string> out;
   while (sqlite3_step(s.stmt) == SQLITE_ROW) out.push_back(column_text(s.stmt, 0));
   return out;
@@ -270,7 +273,8 @@ Result<VerdictItems> verdict_items(VerdictStore& store) {
     item.sha256 = sha;
     item.file.path = "verdict:" + sha;
     item.file.label = *kinds.begin() == "camera" ? Label::kCamera : Label::kGenerated;
-    item.file.generator = item.file.label == Label::kCamera ? "camera" : (generator.empty() ? "unnamed" : generator);
+    item.file.generator =
+        item.file.label == Label::kCamera ? "camera" : (generator.empty() ? "unnamed" : generator);
     item.file.group = "verdict:" + sha;
     item.file.folder = "verdicts";
     out.items.push_back(std::move(item));
@@ -286,7 +290,8 @@ Result<VerdictItems> verdict_items(VerdictStore& store) {
                         "service forgot the image, or added without the file) and were left out");
   }
   if (out.other_extractor > 0) {
-    out.notes.push_back(std::to_string(out.other_extractor) + " judged images were left out: " + other_message);
+    out.notes.push_back(std::to_string(out.other_extractor) +
+                        " judged images were left out: " + other_message);
   }
   return out;
 }
@@ -307,7 +312,8 @@ VerdictAgreement agreement_of(const Model& model, const std::vector<PreparedItem
   std::set<std::string> trained;
   const nlohmann::json provenance =
       model.provenance.is_object() ? nlohmann::json(model.provenance) : nlohmann::json::object();
-  for (const auto& h : provenance.value("training_files", nlohmann::json::array())) trained.insert(h.get<std::string>());
+  for (const auto& h : provenance.value("training_files", nlohmann::json::array()))
+    trained.insert(h.get<std::string>());
   VerdictAgreement out;
   for (const auto& it : judged) {
     if (trained.contains(training_file_key(it.sha256))) {
@@ -324,7 +330,8 @@ nlohmann::ordered_json agreement_to_json(const VerdictAgreement& a) {
   nlohmann::ordered_json table = nlohmann::ordered_json::object();
   for (const char* verdict : {"camera", "generated"}) {
     nlohmann::ordered_json row = nlohmann::ordered_json::object();
-    for (const char* band : {"likely-camera", "inconclusive", "likely-generated"}) row[band] = a.count(verdict, band);
+    for (const char* band : {"likely-camera", "inconclusive", "likely-generated"})
+      row[band] = a.count(verdict, band);
     table[verdict] = row;
   }
   return {{"images", a.images},
@@ -337,12 +344,13 @@ nlohmann::ordered_json agreement_to_json(const VerdictAgreement& a) {
 std::string agreement_to_text(const VerdictAgreement& a) {
   char line[200];
   std::string out;
-  std::snprintf(line, sizeof line, "  %-20s %14s %14s %17s\n", "verdict \\ band", "likely-camera", "inconclusive",
-                "likely-generated");
+  std::snprintf(line, sizeof line, "  %-20s %14s %14s %17s\n", "verdict \\ band", "likely-camera",
+                "inconclusive", "likely-generated");
   out += line;
   for (const char* verdict : {"camera", "generated"}) {
-    std::snprintf(line, sizeof line, "  %-20s %14zu %14zu %17zu\n", verdict, a.count(verdict, "likely-camera"),
-                  a.count(verdict, "inconclusive"), a.count(verdict, "likely-generated"));
+    std::snprintf(line, sizeof line, "  %-20s %14zu %14zu %17zu\n", verdict,
+                  a.count(verdict, "likely-camera"), a.count(verdict, "inconclusive"),
+                  a.count(verdict, "likely-generated"));
     out += line;
   }
   out += "  " + std::to_string(a.count("camera", "likely-generated")) +
@@ -355,15 +363,18 @@ std::string agreement_to_text(const VerdictAgreement& a) {
 }
 
 std::string verdicts_used_text(const Model& model) {
-  const nlohmann::json p = model.provenance.is_object() ? nlohmann::json(model.provenance) : nlohmann::json::object();
+  const nlohmann::json p =
+      model.provenance.is_object() ? nlohmann::json(model.provenance) : nlohmann::json::object();
   const auto trained = p.value("verdicts", nlohmann::json::object());
   const auto calibrated = p.value("calibration_verdicts", nlohmann::json::object());
   const size_t added = trained.value("images_added", size_t{0});
-  const size_t cal = calibrated.value("camera_images", size_t{0}) + calibrated.value("generated_images", size_t{0});
+  const size_t cal =
+      calibrated.value("camera_images", size_t{0}) + calibrated.value("generated_images", size_t{0});
   return "trained on " + std::to_string(added) + " judged images" +
          (trained.empty() ? std::string(" (no verdicts)") : " from " + trained.value("file", std::string())) +
          ", calibrated on " + std::to_string(cal) +
-         (calibrated.empty() ? std::string(" (no verdicts)") : " from " + calibrated.value("file", std::string()));
+         (calibrated.empty() ? std::string(" (no verdicts)")
+                             : " from " + calibrated.value("file", std::string()));
 }
 
 }  // namespace residue

@@ -9,8 +9,8 @@
 #pragma once
 
 #include <cstdint>
-#include <map>
 #include <filesystem>
+#include <map>
 #include <memory>
 #include <mutex>
 #include <nlohmann/json.hpp>
@@ -27,15 +27,15 @@ struct sqlite3;
 namespace residue {
 
 struct Verdict {
-  std::int64_t id = 0;           // assigned by the store
-  std::string sha256;            // of the image file (64 lower-case hex digits)
-  std::string verdict;           // "camera" or "generated"
-  std::string generator;         // optional: the generator the reviewer named
-  std::string reviewer;          // optional: a reference to the reviewer (not a name is best)
-  std::string note;              // optional
-  std::string recorded;          // UTC, ISO 8601; set by the store when empty
-  std::string model;             // optional: the model whose record the reviewer judged
-  std::string band;              // optional: the band that model gave
+  std::int64_t id = 0;    // assigned by the store
+  std::string sha256;     // of the image file (64 lower-case hex digits)
+  std::string verdict;    // "camera" or "generated"
+  std::string generator;  // optional: the generator the reviewer named
+  std::string reviewer;   // optional: a reference to the reviewer (not a name is best)
+  std::string note;       // optional
+  std::string recorded;   // UTC, ISO 8601; set by the store when empty
+  std::string model;      // optional: the model whose record the reviewer judged
+  std::string band;       // optional: the band that model gave
   std::optional<double> p_generated;
   std::optional<nlohmann::json> features;  // the carried "features" member (carried.hpp), when known
 };
