@@ -106,7 +106,18 @@ PY
         printf 'Transfer-Encoding: chunked\r\n\r\n5\r\nhello\r\n0\r\n\r\n'; } > "$dir/chunked"
       { printf 'POST /v1/score HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer fuzz-token\r\n'
         printf 'Content-Type: multipart/form-data; boundary=b\r\nContent-Length: 66\r\n\r\n'
-        printf -- '--b\r\nContent-Disposition: form-data; name="f"; filename="x"\r\n\r\nabc\r\n--b--\r\n'; } > "$dir/multipart" ;;
+        printf -- '--b\r\nContent-Disposition: form-data; name="f"; filename="x"\r\n\r\nabc\r\n--b--\r\n'; } > "$dir/multipart"
+      local verdict='{"sha256":"0000000000000000000000000000000000000000000000000000000000000000","verdict":"camera","note":"n"}'
+      { printf 'POST /v1/verdicts HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer fuzz-token\r\n'
+        printf 'Content-Type: application/json\r\nContent-Length: %d\r\n\r\n%s' "${#verdict}" "$verdict"; } > "$dir/verdict"
+      local body="$dir/.verdict-body"
+      { printf -- '--b\r\nContent-Disposition: form-data; name="verdict"\r\n\r\ncamera\r\n'
+        printf -- '--b\r\nContent-Disposition: form-data; name="image"; filename="i.png"\r\n\r\n'
+        cat "$image"; printf -- '\r\n--b--\r\n'; } > "$body"
+      { printf 'POST /v1/verdicts HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer fuzz-token\r\n'
+        printf 'Content-Type: multipart/form-data; boundary=b\r\nContent-Length: %d\r\n\r\n' "$(stat -c %s "$body")"
+        cat "$body"; } > "$dir/verdict-image"
+      rm "$body" ;;
   esac
 }
 

@@ -1,10 +1,15 @@
 // Fuzz target: the service's request handling, headers and body to response, without a socket
 // (Service::respond). The model comes from RESIDUE_FUZZ_MODEL (scripts/fuzz.sh trains one); a
-// bearer token is configured so that the authentication path is exercised as well.
+// bearer token is configured so that the authentication path is exercised as well, and a verdict
+// store (in the temporary folder) so that POST /v1/verdicts is.
+#include <unistd.h>
+
 #include <cstdint>
 #include <cstdio>
 #include <cstdlib>
+#include <filesystem>
 #include <memory>
+#include <string>
 #include <string_view>
 
 #include "residue/detector/service/service.hpp"
@@ -24,6 +29,11 @@ residue::Service& service() {
     settings.workers = 1;
     settings.max_body_bytes = 1U << 20;
     settings.scan.extract.limits.max_pixels = 4'000'000;
+    // Verdicts on, so that POST /v1/verdicts and the remembered vectors are exercised too.
+    settings.verdicts = (std::filesystem::temp_directory_path() /
+                         ("residue-fuzz-verdicts-" + std::to_string(getpid()) + ".sqlite"))
+                            .string();
+    settings.remember = 4;
     return std::make_unique<residue::Service>(settings, model);
   }();
   return *s;
