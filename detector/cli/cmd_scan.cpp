@@ -162,6 +162,11 @@ std::string table_line(const nlohmann::ordered_json& r) {
 }
 
 int run_scan(ScanArgs& args) {
+  if (args.settings.with_features && args.format != "jsonl") {
+    std::cerr << "residue scan: --with-features needs --format jsonl (a vector has no place in " << args.format
+              << ")\n";
+    return static_cast<int>(ExitCode::kUsage);
+  }
   auto model = load_model(args.model_path);
   if (!model) {
     std::cerr << "residue scan: " << model.error().message << "\n";

@@ -218,7 +218,8 @@ Result<RecordsForTraining> load_records_for_training(const std::vector<std::file
       }
       PreparedItem& item = carried->item;
       item.sha256 = record.value("sha256", "");
-      const std::string key = path_key(path);
+      // Bytes sent without a name (a queue's --bytes jobs, the service) are told apart by content.
+      const std::string key = path.empty() || path == "-" ? "sha256:" + item.sha256 : path_key(path);
       if (labels != nullptr) {
         const auto w = wanted.find(key);
         if (w == wanted.end()) {
