@@ -61,7 +61,7 @@ with tempfile.TemporaryDirectory() as tmp:
     for label, extra in (("without --verdicts", []),
                          (f"--verdicts --remember {args.remember}",
                           ["--verdicts", os.path.join(tmp, "v.sqlite"), "--remember", str(args.remember)])):
-        proc = subprocess.Popen([residue, "serve", model, "--port", "0", "--workers", "2", *extra],
+        proc = subprocess.Popen([residue, "serve", model, "--port", "0", "--workers", "2", "--access-log", os.devnull, *extra],
                                 stderr=subprocess.PIPE, text=True)
         port = json.loads(proc.stderr.readline())["port"]
         base = f"http://127.0.0.1:{port}"

@@ -26,6 +26,7 @@ import signal
 import subprocess
 import sys
 import tempfile
+import threading
 import time
 import urllib.error
 import urllib.request
@@ -90,6 +91,7 @@ def multipart(fields, image_path):
 def serve(model, *extra):
     proc = subprocess.Popen([residue, "serve", model, "--port", "0", *extra], stderr=subprocess.PIPE, text=True)
     port = json.loads(proc.stderr.readline())["port"]
+    threading.Thread(target=lambda: [None for _ in proc.stderr], daemon=True).start()  # the access log
     return proc, f"http://127.0.0.1:{port}"
 
 

@@ -6,7 +6,6 @@
 #include <cstring>
 #include <nlohmann/json.hpp>
 
-
 namespace residue {
 
 namespace {
@@ -61,8 +60,8 @@ std::optional<FeatureCache::Entry> FeatureCache::find(const std::string& sha256)
   if (sqlite3_step(s.stmt) != SQLITE_ROW) return std::nullopt;
   Entry e;
   try {
-    e.facts =
-        file_facts_from_json(nlohmann::json::parse(reinterpret_cast<const char*>(sqlite3_column_text(s.stmt, 0))));
+    e.facts = file_facts_from_json(
+        nlohmann::json::parse(reinterpret_cast<const char*>(sqlite3_column_text(s.stmt, 0))));
   } catch (const std::exception&) {
     return std::nullopt;  // a damaged row is re-extracted
   }

@@ -89,7 +89,7 @@ std::optional<std::vector<double>> decode_vector(const std::string& text) {
                       reinterpret_cast<const unsigned char*>(text.data()), static_cast<int>(text.size()));
   if (n < 0) return std::nullopt;
   // EVP_DecodeBlock counts the padding's zero bytes: take them off again.
-  size_t length = static_cast<size_t>(n);
+  auto length = static_cast<size_t>(n);
   for (size_t i = text.size(); i > 0 && text[i - 1] == '=' && length > 0; --i) --length;
   if (length % sizeof(double) != 0) return std::nullopt;
   std::vector<double> values(length / sizeof(double));
@@ -115,7 +115,8 @@ nlohmann::ordered_json carried_to_json(const PreparedItem& item, const PreparedC
   return j;
 }
 
-Result<CarriedFeatures> carried_from_json(const nlohmann::json& j) {
+Result<CarriedFeatures> carried_from_json(const nlohmann::json& json) {
+  const nlohmann::json& j = json;
   if (!j.is_object()) return make_error(ErrorCode::kCorrupt, "\"features\" is not an object");
   const std::string extractor = j.value("extractor", "");
   const std::string schema = j.value("schema", "");

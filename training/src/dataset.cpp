@@ -32,7 +32,6 @@ void walk(const fs::path& dir, std::vector<fs::path>& out,
   }
 }
 
-
 }  // namespace
 
 Result<Dataset> scan_labelled_folders(const fs::path& root) {

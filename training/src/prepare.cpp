@@ -103,7 +103,8 @@ PreparedCopies prepare_copies(std::span<const std::uint8_t> bytes, const std::st
   PreparedCopies out;
   for (const auto& transform : augmentation_transforms(augment, sha256)) {
     // Copies are cached under (file hash, transform): the transform is only applied on a miss.
-    const std::string key = sha256 + ":" + transform;
+    std::string key = sha256;
+    key.append(":").append(transform);
     std::optional<PreparedItem> copy;
     if (cache != nullptr) {
       if (auto hit = cache->find(key)) {

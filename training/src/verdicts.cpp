@@ -3,6 +3,7 @@
 
 #include <sqlite3.h>
 
+#include <algorithm>
 #include <cstdio>
 #include <map>
 #include <set>
@@ -23,11 +24,8 @@ constexpr size_t kShortText = 200;
 constexpr size_t kNoteText = 2000;
 
 bool is_sha256(const std::string& s) {
-  if (s.size() != 64) return false;
-  for (char c : s) {
-    if (!((c >= '0' && c <= '9') || (c >= 'a' && c <= 'f'))) return false;
-  }
-  return true;
+  return s.size() == 64 &&
+         std::ranges::all_of(s, [](char c) { return (c >= '0' && c <= '9') || (c >= 'a' && c <= 'f'); });
 }
 
 std::string column_text(sqlite3_stmt* s, int column) {
@@ -106,7 +104,7 @@ Result<Verdict> verdict_from_json(const nlohmann::json& j) {
   if (!is_sha256(v.sha256))
     return make_error(ErrorCode::kCorrupt, "sha256 must be 64 lower-case hexadecimal digits");
   if (v.verdict != "camera" && v.verdict != "generated")
-    return make_error(ErrorCode::kCorrupt, "verdict must be \"camera\" or \"generated\"");
+    return make_error(ErrorCode::kCorrupt, R"(verdict must be "camera" or "generated")");
   if (v.verdict == "camera" && !v.generator.empty())
     return make_error(ErrorCode::kCorrupt, "a camera verdict names no generator");
   if (j.contains("id") && j["id"].is_number_integer()) v.id = j["id"].get<std::int64_t>();

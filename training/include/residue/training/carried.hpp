@@ -40,7 +40,7 @@ struct CarriedFeatures {
 
 // Reads a "features" member back. Refused (kUnsupported) when it was made by another extractor
 // version or feature schema, naming both; kCorrupt when it is malformed.
-Result<CarriedFeatures> carried_from_json(const nlohmann::json& features);
+Result<CarriedFeatures> carried_from_json(const nlohmann::json& json);
 
 // Training from records (JSON lines, as scan, worker and collect write them).
 struct RecordsForTraining {
