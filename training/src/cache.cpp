@@ -1,10 +1,10 @@
 // SQLite adapter for the feature cache.
 #include "residue/training/cache.hpp"
 
-#include <sqlite3.h>
-
 #include <cstring>
 #include <nlohmann/json.hpp>
+
+#include "sqlite_file.hpp"
 
 namespace residue {
 
@@ -13,23 +13,11 @@ namespace {
 // The key's version part: extractor, schema and the blob layout ("w": with the window vectors).
 std::string cache_version() { return std::string(kExtractorVersion) + "/" + feature_schema_id() + "/w"; }
 
-struct Statement {
-  sqlite3_stmt* stmt = nullptr;
-  ~Statement() { sqlite3_finalize(stmt); }
-};
+using detail::Statement;
 
 }  // namespace
 
 Result<std::unique_ptr<FeatureCache>> FeatureCache::open(const std::filesystem::path& path) {
-  sqlite3* db = nullptr;
-  const int rc = sqlite3_open_v2(path.c_str(), &db,
-                                 SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX, nullptr);
-  if (rc != SQLITE_OK) {
-    std::string message = db != nullptr ? sqlite3_errmsg(db) : "out of memory";
-    sqlite3_close(db);
-    return make_error(ErrorCode::kUnreadable, "cannot open feature cache " + path.string() + ": " + message);
-  }
-  char* err = nullptr;
   const char* schema =
       "PRAGMA journal_mode=WAL;"
       // A cache: losing the last writes on power loss costs a re-extraction, so no fsync per row
@@ -38,13 +26,9 @@ Result<std::unique_ptr<FeatureCache>> FeatureCache::open(const std::filesystem::
       "CREATE TABLE IF NOT EXISTS vectors ("
       "  sha256 TEXT NOT NULL, extractor TEXT NOT NULL, facts TEXT NOT NULL, features BLOB NOT NULL,"
       "  PRIMARY KEY (sha256, extractor));";
-  if (sqlite3_exec(db, schema, nullptr, nullptr, &err) != SQLITE_OK) {
-    std::string message = err != nullptr ? err : "unknown error";
-    sqlite3_free(err);
-    sqlite3_close(db);
-    return make_error(ErrorCode::kCorrupt, "feature cache " + path.string() + " is not usable: " + message);
-  }
-  return std::unique_ptr<FeatureCache>(new FeatureCache(db));
+  auto db = detail::open_sqlite(path, schema, "feature cache");
+  if (!db) return db.error();
+  return std::unique_ptr<FeatureCache>(new FeatureCache(*db));
 }
 
 FeatureCache::~FeatureCache() { sqlite3_close(db_); }

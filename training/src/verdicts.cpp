@@ -1,8 +1,6 @@
 // SQLite adapter for the verdict store.
 #include "residue/training/verdicts.hpp"
 
-#include <sqlite3.h>
-
 #include <algorithm>
 #include <cstdio>
 #include <map>
@@ -10,15 +8,13 @@
 
 #include "residue/training/carried.hpp"
 #include "residue/training/trainer.hpp"
+#include "sqlite_file.hpp"
 
 namespace residue {
 
 namespace {
 
-struct Statement {
-  sqlite3_stmt* stmt = nullptr;
-  ~Statement() { sqlite3_finalize(stmt); }
-};
+using detail::Statement;
 
 constexpr size_t kShortText = 200;
 constexpr size_t kNoteText = 2000;
@@ -122,16 +118,6 @@ Result<Verdict> verdict_from_json(const nlohmann::json& j) {
 }
 
 Result<std::unique_ptr<VerdictStore>> VerdictStore::open(const std::filesystem::path& path) {
-  sqlite3* db = nullptr;
-  const int rc = sqlite3_open_v2(path.c_str(), &db,
-                                 SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX, nullptr);
-  if (rc != SQLITE_OK) {
-    std::string message = db != nullptr ? sqlite3_errmsg(db) : "out of memory";
-    sqlite3_close(db);
-    return make_error(ErrorCode::kUnreadable, "cannot open verdict store " + path.string() + ": " + message);
-  }
-  sqlite3_busy_timeout(db, 10000);
-  char* err = nullptr;
   const char* schema =
       "PRAGMA journal_mode=WAL;"
       // A verdict is a person's work: it is on disk before the service says it is recorded.
@@ -144,13 +130,9 @@ Result<std::unique_ptr<VerdictStore>> VerdictStore::open(const std::filesystem::
       "  recorded TEXT NOT NULL, model TEXT NOT NULL DEFAULT '', band TEXT NOT NULL DEFAULT '',"
       "  p_generated REAL, features TEXT);"
       "CREATE INDEX IF NOT EXISTS verdicts_by_hash ON verdicts (sha256);";
-  if (sqlite3_exec(db, schema, nullptr, nullptr, &err) != SQLITE_OK) {
-    std::string message = err != nullptr ? err : "unknown error";
-    sqlite3_free(err);
-    sqlite3_close(db);
-    return make_error(ErrorCode::kCorrupt, "verdict store " + path.string() + " is not usable: " + message);
-  }
-  return std::unique_ptr<VerdictStore>(new VerdictStore(db));
+  auto db = detail::open_sqlite(path, schema, "verdict store");
+  if (!db) return db.error();
+  return std::unique_ptr<VerdictStore>(new VerdictStore(*db));
 }
 
 VerdictStore::~VerdictStore() { sqlite3_close(db_); }
