@@ -89,7 +89,7 @@ void add_serve_command(CLI::App& app, int& exit_code) {
                   "file, with the images' feature vectors");
   cmd->add_option(
          "--remember", args->settings.remember,
-         "with --verdicts: feature vectors of the last images scored kept in memory (about 12 KB each), "
+         "with --verdicts: feature vectors of the last images scored kept in memory (about 30 KB of memory each), "
          "so that a verdict can be given by hash after the image is gone")
       ->check(CLI::Range(0, 1000000))
       ->capture_default_str();

@@ -1,6 +1,6 @@
 // What the service remembers of the images it scored, so that a reviewer's verdict can be recorded
 // with the image's feature vector after the image itself is gone: the last N records' carried
-// features (carried.hpp, about 12 KB each), with the model and band they got, keyed by SHA-256.
+// features (carried.hpp, about 10.5 KB of data each), with the model and band they got, keyed by SHA-256.
 // Least recently scored entries are forgotten first. Thread-safe.
 #pragma once
 
