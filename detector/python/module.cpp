@@ -137,10 +137,11 @@ class PyModel {
   }
 
   [[nodiscard]] py::object score(const py::object& source, const std::optional<std::string>& name,
-                                 std::optional<double> prior) const {
+                                 std::optional<double> prior, bool with_features) const {
     const Source s = source_of(source);
     ScanSettings settings = settings_;
     if (prior) settings.prior = *prior;
+    settings.with_features = with_features;
     const nlohmann::ordered_json record = without_gil([&] {
       if (s.is_path) return residue::scan_file(s.path, *model_, settings);
       return residue::scan_bytes(
@@ -154,13 +155,15 @@ class PyModel {
     return to_python(record);
   }
 
-  [[nodiscard]] py::list score_many(const py::iterable& paths, int jobs, std::optional<double> prior) const {
+  [[nodiscard]] py::list score_many(const py::iterable& paths, int jobs, std::optional<double> prior,
+                                    bool with_features) const {
     std::vector<std::string> names;
     for (const auto& p : paths) {
       names.push_back(py::bytes(py::module_::import("os").attr("fsencode")(p)).cast<std::string>());
     }
     ScanSettings settings = settings_;
     if (prior) settings.prior = *prior;
+    settings.with_features = with_features;
     if (jobs <= 0) jobs = static_cast<int>(std::max(1U, std::thread::hardware_concurrency()));
     std::vector<nlohmann::ordered_json> records(names.size());
     {
@@ -219,11 +222,12 @@ class Error(ValueError):
       .def_property_readonly("id", &PyModel::id)
       .def("info", &PyModel::info, "Id, schema, thresholds and provenance (as GET /v1/model answers).")
       .def("score", &PyModel::score, py::arg("source"), py::kw_only(), py::arg("name") = py::none(),
-           py::arg("prior") = py::none(),
-           "The scan record (a dict) of an image given as a path or as bytes (`name` is echoed as its path). "
+           py::arg("prior") = py::none(), py::arg("with_features") = false,
+           "The scan record (a dict) of an image given as a path or as bytes (`name` is echoed as its path); "
+           "with_features=True adds its feature vector as `residue scan --with-features` does. "
            "Raises residue.Error with the record's error code when it cannot be scored.")
       .def("score_many", &PyModel::score_many, py::arg("paths"), py::kw_only(), py::arg("jobs") = 0,
-           py::arg("prior") = py::none(),
+           py::arg("prior") = py::none(), py::arg("with_features") = false,
            "Scan records of many files, in order, with `jobs` threads (0: one per core). As in `residue "
            "scan`, a file that cannot be scored gets an error record and the batch goes on.");
 }

@@ -86,6 +86,11 @@ with tempfile.TemporaryDirectory() as tmp:
           all(m == scan[m["path"]] for m in many), "score_many gives scan's records in order, errors included")
     check(many[-2]["error"]["code"] == "truncated" and many[-1]["error"]["code"] == "not-an-image",
           f"score_many's error records: {many[-2].get('error')}, {many[-1].get('error')}")
+    carried = model.score(files[0], with_features=True)
+    r = run(["scan", model_path, files[0], "--with-features"])
+    check(carried == json.loads(r.stdout) and "vector" in carried["features"],
+          "score(with_features=True) equals scan --with-features, vector included")
+    check(model.score_many([files[0]], with_features=True)[0] == carried, "and score_many(with_features=True)")
     shifted = model.score(files[0], prior=0.02)
     r = run(["scan", model_path, files[0], "--prior", "0.02"])
     check(shifted == json.loads(r.stdout), "score(prior=) equals scan --prior")

@@ -16,7 +16,9 @@ namespace {
 static_assert(std::endian::native == std::endian::little, "vectors are carried as little-endian doubles");
 
 nlohmann::ordered_json vector_json(const PreparedItem& item) {
-  return {{"facts", file_facts_to_json(item.facts)}, {"vector", encode_vector(item.features.values)}};
+  nlohmann::json facts = file_facts_to_json(item.facts);
+  facts.erase("extract_ms");  // how long it took here: records of the same image stay the same
+  return {{"facts", facts}, {"vector", encode_vector(item.features.values)}};
 }
 
 Result<PreparedItem> vector_from_json(const nlohmann::json& j) {
