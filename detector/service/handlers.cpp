@@ -76,9 +76,12 @@ void record_verdict(ServiceState& s, const httplib::Request& req, httplib::Respo
       reply(res, status_for(record["error"]["code"]), record);
       return;
     }
+    verdict->features = nlohmann::json(record["features"]);
+    verdict->model = record.value("model", "");
+    verdict->band = record.value("band", "");
+    verdict->p_generated = record.value("p_generated", 0.0);
     remember(s, record);
-  }
-  if (auto known = s.memory->find(verdict->sha256)) {
+  } else if (auto known = s.memory->find(verdict->sha256)) {
     verdict->features = nlohmann::json::parse(known->features);
     verdict->model = known->model;
     verdict->band = known->band;

@@ -249,6 +249,17 @@ def service(tmp, model, fresh_root):
     stored = [json.loads(line) for line in r.stdout.splitlines()]
     check(len(stored) == acknowledged + 2 and all(v["has_features"] for v in stored),
           f"after kill -9, every acknowledged verdict is in the store ({len(stored)} of {acknowledged + 2})")
+    proc, base = serve(model, "--verdicts", os.path.join(tmp, "forgetful.sqlite"), "--remember", "0")
+    try:
+        body, kind = multipart({"verdict": "generated", "generator": "sim-new"}, gens[0])
+        status, answer = request(base, "/v1/verdicts", body, kind)
+        check(status == 201 and answer["recorded"]["has_features"],
+              "--remember 0: a verdict sent with the image still keeps its vector")
+        status, answer = request(base, "/v1/verdicts", json.dumps({"sha256": sha(cams[0]), "verdict": "camera"}).encode())
+        check(status == 404, "--remember 0: a verdict by hash alone is 404")
+    finally:
+        proc.terminate()
+        proc.wait()
     proc, base = serve(model)
     try:
         status, answer = request(base, "/v1/verdicts", json.dumps({"sha256": "0" * 64, "verdict": "camera"}).encode())
