@@ -84,7 +84,9 @@ std::string encode_vector(const std::vector<double>& values) {
 }
 
 std::optional<std::vector<double>> decode_vector(const std::string& text) {
-  if (text.size() % 4 != 0) return std::nullopt;
+  // A vector is a few kilobytes; far larger text is not one (and would overflow libcrypto's int).
+  constexpr size_t kLongest = size_t{1} << 26;
+  if (text.size() % 4 != 0 || text.size() > kLongest) return std::nullopt;
   std::string raw(3 * (text.size() / 4) + 1, '\0');
   const int n =
       EVP_DecodeBlock(reinterpret_cast<unsigned char*>(raw.data()),
