@@ -265,6 +265,15 @@ void add_verdict_command(CLI::App& app, int& exit_code) {
   auto* cmd =
       app.add_subcommand("verdict", "Record reviewers' verdicts (camera or generated) for retraining");
   cmd->require_subcommand(1);
+  cmd->footer(
+      "Examples:\n"
+      "  residue verdict add --verdicts verdicts.sqlite judged.csv      (CSV: path or "
+      "sha256,verdict[,generator,reviewer,note])\n"
+      "  residue verdict list --verdicts verdicts.sqlite --conflicts\n"
+      "  residue verdict export --verdicts verdicts.sqlite -o verdicts.jsonl\n"
+      "  residue verdict remove --verdicts verdicts.sqlite 17\n"
+      "  residue train ROOT --from OLD --verdicts verdicts.sqlite -o NEW\n"
+      "Each subcommand's --help lists its options (docs/training.md, \"Reviewers' verdicts\").");
 
   auto* add = cmd->add_subcommand(
       "add",
