@@ -2,6 +2,7 @@
 // Layouts from the format specifications: PNG (ISO/IEC 15948, IHDR), JPEG (ITU-T T.81 B.2.2,
 // SOFn), BMP (BITMAPINFOHEADER / BITMAPCOREHEADER), WebP (RIFF container, VP8 / VP8L / VP8X
 // chunks), TIFF 6.0 (first IFD, tags 256/257/258/277).
+#include <limits>
 #include <string>
 
 #include "residue/features/decode.hpp"
@@ -95,6 +96,9 @@ Result<ImageHeader> bmp_header(Bytes b) {
     if (b.size() < 30) return truncated_header("BMP");
     const auto w = static_cast<std::int32_t>(le32(b, 18));
     const auto hh = static_cast<std::int32_t>(le32(b, 22));
+    // -2^31 has no positive counterpart in 32 bits (found by fuzz_header).
+    if (w == std::numeric_limits<std::int32_t>::min() || hh == std::numeric_limits<std::int32_t>::min())
+      return make_error(ErrorCode::kCorrupt, "BMP declares a size of -2^31 pixels");
     h.width = w < 0 ? -w : w;
     h.height = hh < 0 ? -hh : hh;  // negative height: rows stored top-down
     h.bit_depth = static_cast<int>(le16(b, 28));

@@ -135,6 +135,27 @@ TEST_CASE("a quantisation table with zero steps is survived (no double-JPEG trac
   }
 }
 
+TEST_CASE("a BMP declaring a width or height of -2^31 is refused, not negated") {
+  // BITMAPINFOHEADER (40 bytes): a negative height means rows stored top-down, so the header's
+  // magnitude is taken; -2^31 has none in 32 bits (found by fuzz_header under UBSan).
+  for (const size_t field : {size_t{18}, size_t{22}}) {
+    std::vector<std::uint8_t> b(64, 0);
+    b[0] = 'B';
+    b[1] = 'M';
+    b[10] = 54;  // pixel data offset
+    b[14] = 40;  // info header size
+    b[18] = 4;   // width 4
+    b[22] = 4;   // height 4
+    b[26] = 1;   // planes
+    b[28] = 24;  // bits per pixel
+    b[field] = b[field + 1] = b[field + 2] = 0;
+    b[field + 3] = 0x80;  // -2^31, little-endian
+    auto h = read_header(b);
+    REQUIRE_FALSE(h);
+    CHECK(h.error().code == ErrorCode::kCorrupt);
+  }
+}
+
 TEST_CASE("a PNG with a known-incorrect sRGB profile gets a note, not damage") {
   // scikit-image's chelsea.png carries the 3144-byte HP/Microsoft sRGB profile that libpng's
   // png_sRGB_checks table lists as broken; libpng warns "iCCP: known incorrect sRGB profile".
