@@ -163,8 +163,8 @@ std::string table_line(const nlohmann::ordered_json& r) {
 
 int run_scan(ScanArgs& args) {
   if (args.settings.with_features && args.format != "jsonl") {
-    std::cerr << "residue scan: --with-features needs --format jsonl (a vector has no place in " << args.format
-              << ")\n";
+    std::cerr << "residue scan: --with-features needs --format jsonl (a vector has no place in "
+              << args.format << ")\n";
     return static_cast<int>(ExitCode::kUsage);
   }
   auto model = load_model(args.model_path);

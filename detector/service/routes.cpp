@@ -4,10 +4,14 @@ namespace residue {
 
 namespace {
 
-constexpr Route kRoutes[] = {{"/", "GET", false},           {"/v1/score", "POST", true},
-                             {"/v1/explain", "POST", true}, {"/v1/health", "GET", false},
-                             {"/v1/model", "GET", true},    {"/v1/model/reload", "POST", true},
-                             {"/v1/verdicts", "POST", true}, {"/metrics", "GET", false}};
+constexpr Route kRoutes[] = {{"/", "GET", false},
+                             {"/v1/score", "POST", true},
+                             {"/v1/explain", "POST", true},
+                             {"/v1/health", "GET", false},
+                             {"/v1/model", "GET", true},
+                             {"/v1/model/reload", "POST", true},
+                             {"/v1/verdicts", "POST", true},
+                             {"/metrics", "GET", false}};
 
 }  // namespace
 

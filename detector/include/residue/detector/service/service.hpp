@@ -33,9 +33,9 @@ struct ServiceSettings {
   std::string token;                       // bearer token; empty: no authentication
   bool allow_unauthenticated = false;      // needed to bind a non-loopback address without a token
   std::string access_log;                  // file for the JSON access log; empty: stderr
-  std::string verdicts;                    // verdict store (verdicts.hpp); empty: POST /v1/verdicts answers 501
-  std::size_t remember = 2000;             // with verdicts: vectors of the last images scored, kept for them
-  ScanSettings scan;                       // limits, prior and threshold overrides
+  std::string verdicts;         // verdict store (verdicts.hpp); empty: POST /v1/verdicts answers 501
+  std::size_t remember = 2000;  // with verdicts: vectors of the last images scored, kept for them
+  ScanSettings scan;            // limits, prior and threshold overrides
 };
 
 struct ServiceState;  // what a running service holds (detector/service/service_state.hpp)
