@@ -88,7 +88,7 @@ void add_serve_command(CLI::App& app, int& exit_code) {
                   "record reviewers' verdicts (POST /v1/verdicts, the review page's buttons) in this SQLite "
                   "file, with the images' feature vectors");
   cmd->add_option("--remember", args->settings.remember,
-                  "with --verdicts: feature vectors of the last images scored kept in memory (about 30 KB of "
+                  "with --verdicts: feature vectors of the last images scored kept in memory (about 25 KB of "
                   "memory each), "
                   "so that a verdict can be given by hash after the image is gone")
       ->check(CLI::Range(0, 1000000))

@@ -37,6 +37,7 @@ class VectorMemory {
   std::list<std::pair<std::string, Remembered>> order_;  // most recent first
   std::unordered_map<std::string, std::list<std::pair<std::string, Remembered>>::iterator> index_;
   std::size_t bytes_ = 0;
+  std::size_t puts_ = 0;
 };
 
 }  // namespace residue
