@@ -9,6 +9,8 @@
 #include <fstream>
 #include <map>
 
+#include "residue/training/record_paths.hpp"
+
 namespace residue {
 
 namespace {
@@ -38,25 +40,6 @@ Result<PreparedItem> vector_from_json(const nlohmann::json& j) {
   item.features.values = std::move(*values);
   item.from_cache = true;
   return item;
-}
-
-// A record's path: the exact bytes when "path_bytes" (RFC 3986 percent-encoding) is present.
-std::string record_path(const nlohmann::json& record) {
-  if (record.contains("path_bytes") && record["path_bytes"].is_string()) {
-    const std::string text = record["path_bytes"];
-    std::string out;
-    for (size_t i = 0; i < text.size(); ++i) {
-      if (text[i] == '%' && i + 2 < text.size() && std::isxdigit(static_cast<unsigned char>(text[i + 1])) &&
-          std::isxdigit(static_cast<unsigned char>(text[i + 2]))) {
-        out += static_cast<char>(std::stoi(text.substr(i + 1, 2), nullptr, 16));
-        i += 2;
-      } else {
-        out += text[i];
-      }
-    }
-    return out;
-  }
-  return record.contains("path") && record["path"].is_string() ? record["path"].get<std::string>() : "";
 }
 
 std::string path_key(const std::string& path) {
@@ -196,7 +179,7 @@ Result<RecordsForTraining> load_records_for_training(const std::vector<std::file
         out.skipped.emplace_back(where, "not a JSON object");
         continue;
       }
-      const std::string path = record_path(record);
+      const std::string path = path_of(record);
       const std::string name = path.empty() ? where : path;
       if (record.contains("error")) {
         out.skipped.emplace_back(name, "an error record: " + record["error"].value("message", ""));

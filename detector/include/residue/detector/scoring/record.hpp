@@ -5,6 +5,7 @@
 #include <string>
 
 #include "residue/features/extract.hpp"
+#include "residue/training/record_paths.hpp"
 
 namespace residue {
 
@@ -26,15 +27,10 @@ enum class ExitCode : int { kOk = 0, kFailure = 1, kUsage = 2, kSomeInputsFailed
 // it with the exact bytes, percent-encoded as in RFC 3986 (every byte other than A-Z a-z 0-9 - . _ ~ /
 // as %XX), so that no path is lost or confused with another (docs/reliability.md, "File names").
 void set_path(nlohmann::ordered_json& record, const std::string& path);
-// The exact path bytes of a record written by set_path (its "path_bytes" when present, else "path");
-// empty when the record has neither.
-std::string path_of(const nlohmann::json& record);
-std::string path_of(const nlohmann::ordered_json& record);
+// path_of, percent_encode and percent_decode: residue/training/record_paths.hpp.
 // `text` with every byte that is not part of a valid UTF-8 sequence replaced by U+FFFD.
 std::string valid_utf8(const std::string& text);
 bool is_valid_utf8(const std::string& text);
-std::string percent_encode(const std::string& bytes);
-std::string percent_decode(const std::string& text);
 
 // One JSON line of a record. Strings other than the path (an error message quoting a file name, a
 // declared camera model) may hold invalid UTF-8 too: those bytes are written as U+FFFD, never thrown.
