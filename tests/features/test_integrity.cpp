@@ -136,8 +136,10 @@ TEST_CASE("a quantisation table with zero steps is survived (no double-JPEG trac
 }
 
 TEST_CASE("a BMP declaring a width or height of -2^31 is refused, not negated") {
-  // BITMAPINFOHEADER (40 bytes): a negative height means rows stored top-down, so the header's
-  // magnitude is taken; -2^31 has none in 32 bits (found by fuzz_header under UBSan).
+  // BITMAPFILEHEADER (14 bytes) then BITMAPINFOHEADER (40 bytes), little-endian: width at byte 18,
+  // height at 22, planes at 26, bits per pixel at 28 (Microsoft's Windows GDI documentation; layout
+  // from memory). A negative height means rows stored top-down, so the header's magnitude is taken;
+  // -2^31 has none in 32 bits (found by fuzz_header under UBSan; the old code negated it).
   for (const size_t field : {size_t{18}, size_t{22}}) {
     std::vector<std::uint8_t> b(64, 0);
     b[0] = 'B';
