@@ -123,9 +123,11 @@ std::optional<PreparedDataset> prepare_from_records(const std::vector<std::strin
     std::cerr << "; " << out.report.copies.size() << " augmented copies (" << augment_name(loaded->augment)
               << ")";
   if (!augment_given && loaded->augment != augment) {
-    std::cerr << "; the records carry " << augment_name(loaded->augment) << " copies, so --augment "
-              << augment_name(loaded->augment) << " is used (record them with --copies "
-              << augment_name(augment) << " for more)";
+    std::cerr << "; the records carry "
+              << (loaded->augment == Augment::kNone ? std::string("no augmented copies")
+                                                    : augment_name(loaded->augment) + " copies only")
+              << ", so --augment " << augment_name(loaded->augment) << " is used (extract with --copies "
+              << augment_name(augment) << " to train with them)";
   }
   if (loaded->missing > 0) std::cerr << "; " << loaded->missing << " labelled files have no usable record";
   if (!loaded->skipped.empty()) std::cerr << "; " << loaded->skipped.size() << " records skipped:";
