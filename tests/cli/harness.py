@@ -2,6 +2,7 @@
 
 Each test prints the closing line "N passed, N failed" and exits non-zero on any failure.
 """
+import os
 import subprocess
 import sys
 
@@ -16,6 +17,14 @@ def check(condition, what):
     _counts["passed" if condition else "failed"] += 1
     if not condition:
         print("FAILED:", what)
+
+
+def make_labelled(root, seed, count, camera_format="png", generated_format="png"):
+    """A small labelled set under `root` (tests/cli/make_labelled.py: scikit-image photo crops and
+    SIMULATED generator output), `count` images per class."""
+    script = os.path.join(os.path.dirname(os.path.abspath(__file__)), "make_labelled.py")
+    subprocess.run(["/usr/bin/python3", script, root, str(seed), camera_format, generated_format, str(count)],
+                   check=True)
 
 
 def runner(residue):

@@ -15,12 +15,11 @@ import io
 import json
 import os
 import shutil
-import subprocess
 import sys
 import tempfile
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from harness import check, finish, runner  # noqa: E402
+from harness import check, finish, make_labelled, runner  # noqa: E402
 
 residue = sys.argv[1]
 run = runner(residue)
@@ -28,8 +27,7 @@ here = os.path.dirname(os.path.abspath(__file__))
 
 
 def make(root, seed, count):
-    subprocess.run(["/usr/bin/python3", os.path.join(here, "make_labelled.py"), root, str(seed), "jpeg", "png",
-                    str(count)], check=True)
+    make_labelled(root, seed, count, "jpeg", "png")
 
 
 def load(path):

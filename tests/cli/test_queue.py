@@ -22,7 +22,7 @@ import tempfile
 import time
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from harness import check, finish, runner  # noqa: E402
+from harness import check, finish, make_labelled, runner  # noqa: E402
 from redis_fixture import RedisServer  # noqa: E402
 
 residue = sys.argv[1]
@@ -32,8 +32,7 @@ COPIES = 10  # 100 files x 10 batches = 1,000 jobs
 
 
 def make(root, seed, count):
-    subprocess.run(["/usr/bin/python3", os.path.join(here, "make_labelled.py"), root, str(seed), "png", "jpeg",
-                    str(count)], check=True)
+    make_labelled(root, seed, count, "png", "jpeg")
 
 
 def start_worker(redis, model, stream, name, log_folder, *extra):

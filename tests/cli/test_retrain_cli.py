@@ -21,7 +21,7 @@ import sys
 import tempfile
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from harness import FAMILIES, check, finish, runner  # noqa: E402
+from harness import FAMILIES, check, finish, make_labelled, runner  # noqa: E402
 
 residue = sys.argv[1]
 run = runner(residue)
@@ -29,8 +29,7 @@ here = os.path.dirname(os.path.abspath(__file__))
 
 
 def make(root, seed, count):
-    subprocess.run(["/usr/bin/python3", os.path.join(here, "make_labelled.py"), root, str(seed), "png", "png",
-                    str(count)], check=True)
+    make_labelled(root, seed, count)
 
 
 def transformed(src, dst, how):

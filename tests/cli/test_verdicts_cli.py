@@ -27,12 +27,11 @@ import subprocess
 import sys
 import tempfile
 import threading
-import time
 import urllib.error
 import urllib.request
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from harness import check, finish, runner  # noqa: E402
+from harness import check, finish, make_labelled, runner  # noqa: E402
 import openapi_check  # noqa: E402
 from redis_fixture import RedisServer  # noqa: E402
 
@@ -42,8 +41,7 @@ here = os.path.dirname(os.path.abspath(__file__))
 
 
 def make(root, seed, count):
-    subprocess.run(["/usr/bin/python3", os.path.join(here, "make_labelled.py"), root, str(seed), "png", "png",
-                    str(count)], check=True)
+    make_labelled(root, seed, count)
 
 
 def files_of(root):
