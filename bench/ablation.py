@@ -9,6 +9,11 @@ image recompressed to JPEG q85, each grouped by source picture (in-distribution)
 images grouped by generator family (unseen generator). It prints the pooled ROC AUC and the share
 of generated images caught at 1 % camera FPR, plus the unseen-generator AUC of stylegan2.
 
+With --camera-model it prints, for each configuration, three rows from the same four models: the
+two-class score (as above), the camera-only score alone (out of fold: each fold's camera-only
+density fitted on the other folds' camera photos, no generated image), and the larger of the two
+scores' ranks among camera photos (provenance "camera_only" of the model).
+
 Usage: bench/ablation.py [--residue build/residue] [--dev ../shared/data/dev]
                          [--work /tmp/residue-quality] [NAME=ARGS ...]
   NAME=ARGS  a configuration: its name and the extra `residue train` arguments, e.g.
@@ -44,6 +49,8 @@ parser = argparse.ArgumentParser()
 parser.add_argument("--residue", default="build/residue")
 parser.add_argument("--dev", default="../shared/data/dev")
 parser.add_argument("--work", default="/tmp/residue-quality")
+parser.add_argument("--camera-model", action="store_true",
+                    help="also print the camera-only score and its combination with the two-class score")
 parser.add_argument("configs", nargs="*")
 args = parser.parse_args()
 work = os.path.abspath(args.work)
@@ -54,6 +61,10 @@ items = devset.items(os.path.abspath(args.dev), work)
 print(f"{len(items)} images; grouped 5-fold, out of fold; AUC / caught at 1 % camera FPR\n")
 print("| configuration | values | in-dist. | in-dist. q85 | unseen | unseen q85 | stylegan2 unseen AUC | train s |")
 print("|---|---:|---:|---:|---:|---:|---:|---:|")
+def cell(m):
+    return f"{m['roc_auc']:.3f} / {m['tpr_at_fpr_1pct']:.2f}"
+
+
 for name, extra in configs:
     cells = {}
     values = 0
@@ -73,11 +84,26 @@ for name, extra in configs:
                 doc = json.load(f)
             values = len(doc["schema"]["features"])
             metrics = doc["provenance"]["cross_validation"]["metrics"]
-            cells[(variant, grouping)] = metrics["overall"]
-            if (variant, grouping) == ("as-is", "unseen"):
-                cells["stylegan2"] = metrics["per_generator"].get("stylegan2", {}).get("roc_auc")
-    row = [f"{cells[(v, g)]['roc_auc']:.3f} / {cells[(v, g)]['tpr_at_fpr_1pct']:.2f}"
-           for g in ("in", "unseen") for v in ("as-is", "q85")]
-    sg = cells["stylegan2"]
-    print(f"| {name} | {values} | " + " | ".join(row) + f" | {sg:.3f} | {seconds:.0f} |" if sg is not None
-          else f"| {name} | {values} | " + " | ".join(row) + f" | – | {seconds:.0f} |", flush=True)
+            camera = doc["provenance"].get("camera_only", {})
+            kinds = {"two-class": metrics}
+            if "alone" in camera:
+                kinds["camera-only"] = camera["alone"]
+                kinds["larger rank"] = camera["larger_camera_rank_with_two_class"]
+                kinds["likely-camera"] = camera["likely_camera_out_of_fold"]
+            for kind, ms in kinds.items():
+                cells[(kind, variant, grouping)] = ms
+    kinds = ["two-class", "camera-only", "larger rank"] if args.camera_model else ["two-class"]
+    for kind in kinds:
+        row = [cell(cells[(kind, v, g)]["overall"]) for g in ("in", "unseen") for v in ("as-is", "q85")]
+        sg = cells[(kind, "as-is", "unseen")]["per_generator"].get("stylegan2", {}).get("roc_auc")
+        label = name if kind == "two-class" else f"{name}: {kind}"
+        print(f"| {label} | {values} | " + " | ".join(row) + (f" | {sg:.3f}" if sg is not None else " | –") +
+              f" | {seconds:.0f} |", flush=True)
+    if args.camera_model:
+        for v in ("as-is", "q85"):
+            for g in ("in", "unseen"):
+                lc = cells.get(("likely-camera", v, g))
+                if lc:
+                    print(f"  {name} {v} {g}: likely-camera out of fold: {lc['generated']} generated "
+                          f"({lc['generated_unusual']} unusual for a camera photo), {lc['camera']} camera "
+                          f"({lc['camera_unusual']} unusual)", flush=True)

@@ -161,15 +161,17 @@ void bench_case(const Case& c, int repeats) {
   const double sensor = med(&FamilyTimings::sensor_ms);
   const double texture = med(&FamilyTimings::texture_ms);
   const double coding = med(&FamilyTimings::coding_ms);
+  const double surprise = med(&FamilyTimings::surprise_ms);
   const double processing = processing_runs[processing_runs.size() / 2];
-  const double families = spectral + noise + resampling + sensor + texture + coding;
+  const double families = spectral + noise + resampling + sensor + texture + coding + surprise;
   const double total = window_decode + families + processing;
   const auto windows = static_cast<double>(std::max<size_t>(1, decoded->layout.origins.size()));
   std::printf(
-      "%-20s %6.1f %6.1f %8.1f %9.1f %6.1f %8.1f %7.1f %8.1f %7.1f %8.1f %7.1f %8.2f %8.2f  %5.2f  %2zu x %d "
+      "%-20s %6.1f %6.1f %8.1f %9.1f %6.1f %8.1f %7.1f %8.1f %7.1f %8.1f %8.1f %7.1f %8.2f %8.2f  %5.2f  "
+      "%2zu x %d "
       "px, %llu of %d rows decoded\n",
       c.label.c_str(), plain_decode, full_decode, window_decode, spectral, noise, resampling, sensor, texture,
-      coding, processing, total, total / plain_decode, families / windows,
+      coding, surprise, processing, total, total / plain_decode, families / windows,
       families > 0 ? families / window_decode : 0.0, decoded->layout.origins.size(), decoded->layout.size,
       static_cast<unsigned long long>(decoded->decoded_rows), decoded->header.height);
 }
@@ -204,9 +206,9 @@ int run_bench(const BenchArgs& args) {
         .write(reinterpret_cast<const char*>(encoded->data()), static_cast<std::streamsize>(encoded->size()));
     cases.push_back({s.label, path});
   }
-  std::printf("%-20s %6s %6s %8s %9s %6s %8s %7s %8s %7s %8s %7s %8s %8s  %5s\n", "image (ms)", "8-bit",
-              "float", "windows", "spectral", "noise", "resampl", "sensor", "texture", "coding", "process",
-              "total", "tot/8bit", "ms/win", "feat/dec");
+  std::printf("%-20s %6s %6s %8s %9s %6s %8s %7s %8s %7s %8s %8s %7s %8s %8s  %5s\n", "image (ms)", "8-bit",
+              "float", "windows", "spectral", "noise", "resampl", "sensor", "texture", "coding", "surprise",
+              "process", "total", "tot/8bit", "ms/win", "feat/dec");
   for (const auto& c : cases) bench_case(c, args.repeats);
   std::printf(
       "\n8-bit = the reference: the whole image decoded straight to 8-bit colour (libjpeg-turbo, libpng),\n"

@@ -79,6 +79,7 @@ std::optional<TrainSettings> resolve_settings(const TrainArgs& args, const std::
   if (given(args, "--only")) p.feature_prefixes = s.feature_prefixes;
   if (given(args, "--augment")) p.augment = s.augment;
   if (given(args, "--instances")) p.window_instances = s.window_instances;
+  if (given(args, "--camera-only")) p.camera_only = s.camera_only;
   if (args.keep_c) {
     const auto cv = parent->provenance.value("cross_validation", nlohmann::json::object());
     if (!cv.contains("chosen_c")) {
@@ -161,6 +162,44 @@ bool add_verdict_items(const std::string& path, PrepareReport& report, nlohmann:
   return true;
 }
 
+// What the camera-only score did out of fold beside the two-class score (provenance "camera_only").
+void print_camera_only_summary(const Model& model) {
+  const auto& c = model.provenance.value("camera_only", nlohmann::ordered_json::object());
+  if (!c.contains("alone")) return;
+  const auto& alone = c["alone"]["overall"];
+  const auto& lc = c["likely_camera_out_of_fold"];
+  std::printf(
+      "Camera-only score (fitted on camera photos alone, out of fold): ROC AUC %.3f, %.0f %% of generated "
+      "images above 99 %% of camera photos.\n  Of the %d generated images the two-class score put in "
+      "likely-camera, %d are unusual for a camera photo and are made inconclusive (so are %d of %d camera "
+      "photos there).\n",
+      alone.value("roc_auc", 0.0), 100.0 * alone.value("tpr_at_fpr_1pct", 0.0), lc.value("generated", 0),
+      lc.value("generated_unusual", 0), lc.value("camera_unusual", 0), lc.value("camera", 0));
+}
+
+int finish_camera_only(const Model& model, const CrossValidation& cv, const std::string& output) {
+  const auto& c = model.provenance["camera_only"];
+  std::cout << "Camera-only model: grouped " << model.provenance["cross_validation"]["folds"].get<int>()
+            << "-fold cross-validation over " << cv.groups
+            << " groups of camera photos; each fold scored by a "
+            << "density fitted without it.\n";
+  std::printf(
+      "  Camera-only score of the camera photos, out of fold: median %.3f, robust spread of its "
+      "logarithm %.3f; %d are unusual (conformal p-value <= %s).\n",
+      std::exp(c.value("median_log_score", 0.0)), c.value("log_score_spread", 0.0),
+      c.value("camera_unusual_out_of_fold", 0), percent_text(model.camera_only->unusual).c_str());
+  std::cout << calibration_summary(model);
+  std::cout << "  " << c["note"].get<std::string>() << "\n";
+  if (auto saved = save_model(model, output); !saved) {
+    std::cerr << "residue train: " << saved.error().message << "\n";
+    return static_cast<int>(ExitCode::kFailure);
+  }
+  std::cout << "\nModel " << model.id << " written to " << output << " (camera-only, "
+            << model.features.size() << " features)\n\n"
+            << kAdvisoryNotice << "\n";
+  return 0;
+}
+
 int run_train(TrainArgs& args) {
   std::optional<Model> parent;
   if (!args.from.empty()) {
@@ -209,6 +248,18 @@ int run_train(TrainArgs& args) {
     return static_cast<int>(ExitCode::kFailure);
   }
   settings->jobs = prepared->jobs;
+  const auto generated = static_cast<size_t>(
+      std::count_if(prepared->report.items.begin(), prepared->report.items.end(),
+                    [](const PreparedItem& it) { return it.file.label == Label::kGenerated; }));
+  if (generated == 0 && !settings->camera_only) {
+    std::cout << "No generated images: training a camera-only model (as --camera-only). It has seen no "
+                 "generator.\n\n";
+    settings->camera_only = true;
+  } else if (generated > 0 && settings->camera_only && !args.settings.camera_only) {
+    std::cout << "The parent model is camera-only; " << generated
+              << " generated images are given now, so this trains a two-class model.\n\n";
+    settings->camera_only = false;
+  }
   auto outcome = train_model(prepared->report.items, *settings, audit, prepared->report.copies);
   if (!outcome) {
     std::cerr << "residue train: " << outcome.error().message << "\n";
@@ -241,6 +292,7 @@ int run_train(TrainArgs& args) {
     print_lineage(model.provenance["lineage"]);
   }
   stamp_model_id(model);
+  if (model.kind == "camera-only") return finish_camera_only(model, cv, args.output);
   std::cout << "Grouped " << model.provenance["cross_validation"]["folds"].get<int>()
             << "-fold cross-validation (" << cv.groups << " groups by " << args.group_by
             << "; a group never straddles a split)\n";
@@ -287,6 +339,7 @@ int run_train(TrainArgs& args) {
               << a->camera.lossy_webp << " lossy WebP, " << jpegs << " JPEG" << qualities << ", " << resampled
               << " resampled, " << a->camera.screenshot_like << " screenshot-like.\n";
   }
+  print_camera_only_summary(model);
   if (auto saved = save_model(model, args.output); !saved) {
     std::cerr << "residue train: " << saved.error().message << "\n";
     return static_cast<int>(ExitCode::kFailure);
@@ -354,12 +407,16 @@ void add_train_command(CLI::App& app, int& exit_code) {
       "verdict store (residue verdict, serve --verdicts): its judged images with stored vectors join "
       "the training data, generated ones under their generator name or 'unnamed'; conflicts are "
       "left out");
+  cmd->add_flag("--camera-only", args->settings.camera_only,
+                "train on camera photos alone (what `train` also does when ROOT has no generated images): "
+                "the model scores how unusual an image is for a camera photo, with thresholds from camera "
+                "photos and no likely-camera band, for generators nobody has samples of yet");
   cmd->add_flag("--keep-c", args->keep_c,
                 "with --from: keep the parent's chosen C instead of searching the grid again (faster)");
   cmd->footer("Exit status: 0 model written, 1 failure (or refused with --strict), 2 usage error.");
   cmd->callback([args, cmd, &exit_code] {
     for (const char* option : {"--folds", "--c-grid", "--target-fpr", "--generated-miss", "--group-by",
-                               "--only", "--augment", "--instances"}) {
+                               "--only", "--augment", "--instances", "--camera-only"}) {
       if (cmd->count(option) > 0) args->given.emplace_back(option);
     }
     exit_code = run_train(*args);

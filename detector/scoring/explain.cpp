@@ -93,15 +93,20 @@ Result<Explanation> explain_bytes(const std::string& name, std::span<const std::
   out.pictures.noise_residual = residual_picture(centre);
   out.pictures.residual_spectrum = enlarge(spectrum_picture(residual, tile.size, true), 2);
   out.pictures.pmap_spectrum = enlarge(spectrum_picture(pmap, tile.size, false), 2);
+  if (model.camera_pixels)
+    out.pictures.surprise_map = enlarge(surprise_picture(*model.camera_pixels, luma, tile.size), 2);
   out.pictures.contributions_svg =
       bar_chart_svg(record["contributions"].get<std::map<std::string, double>>(),
                     "Contribution to the margin by family (red: towards generated)");
   // Strongest single values: |w z| largest.
   std::vector<std::pair<double, std::string>> evidence;
-  const auto features = extract_tiles(windows->tiles);
+  // A camera-only model has no weights: its strongest evidence is the values furthest from camera
+  // photos (standardised on them, signed).
+  const auto features = model_vector(model, extract_tiles(windows->tiles));
+  const bool camera_only = model.kind == "camera-only";
   for (size_t k = 0; k < model.features.size(); ++k) {
     const double z = (features.values[model.feature_index[k]] - model.scaler.mean[k]) / model.scaler.scale[k];
-    evidence.emplace_back(model.linear.weights[k] * z, model.features[k]);
+    evidence.emplace_back(camera_only ? z : model.linear.weights[k] * z, model.features[k]);
   }
   std::sort(evidence.begin(), evidence.end(),
             [](const auto& a, const auto& b) { return std::fabs(a.first) > std::fabs(b.first); });
@@ -116,7 +121,8 @@ Result<Explanation> explain_bytes(const std::string& name, std::span<const std::
     summary["strongest_evidence"].push_back(
         {{"feature", evidence[i].second},
          {"contribution", evidence[i].first},
-         {"direction", evidence[i].first >= 0 ? "towards generated" : "towards camera"}});
+         {"direction", camera_only ? (evidence[i].first >= 0 ? "above camera photos" : "below camera photos")
+                                   : (evidence[i].first >= 0 ? "towards generated" : "towards camera")}});
   }
   out.text = summary_text(name, summary, model);
   return out;
@@ -129,12 +135,18 @@ Result<Explanation> explain_image(const std::string& image, const Model& model, 
   auto explained = explain_bytes(image, *bytes, model, settings);
   if (!explained) return explained.error();
   Explanation& e = *explained;
+  const bool surprise = !e.pictures.surprise_map.samples.empty();
   e.summary["pictures"] = {"noise_residual.png", "residual_spectrum.png", "resampling_pmap_spectrum.png",
                            "contributions.svg"};
+  if (surprise) e.summary["pictures"].push_back("coding_surprise.png");
   e.text +=
       "Pictures: noise_residual.png (centre of the image), residual_spectrum.png (red marks at the N/8 grid\n"
-      "where upsampling leaves peaks), resampling_pmap_spectrum.png, contributions.svg\n\n" +
-      std::string(kAdvisoryNotice) + "\n";
+      "where upsampling leaves peaks), resampling_pmap_spectrum.png, contributions.svg" +
+      std::string(
+          surprise ? ",\ncoding_surprise.png (middle window: red where pixels cost more to code than camera "
+                     "photos'\nin the same context, blue where less)"
+                   : "") +
+      "\n\n" + std::string(kAdvisoryNotice) + "\n";
   std::error_code ec;
   std::filesystem::create_directories(output_dir, ec);
   const std::filesystem::path& dir = output_dir;
@@ -142,6 +154,7 @@ Result<Explanation> explain_image(const std::string& image, const Model& model, 
                   write_png(e.pictures.residual_spectrum, dir / "residual_spectrum.png").ok() &&
                   write_png(e.pictures.pmap_spectrum, dir / "resampling_pmap_spectrum.png").ok() &&
                   write_file_atomically(dir / "contributions.svg", e.pictures.contributions_svg).ok() &&
+                  (!surprise || write_png(e.pictures.surprise_map, dir / "coding_surprise.png").ok()) &&
                   write_file_atomically(dir / "summary.json",
                                         e.summary.dump(2, ' ', false, Json::error_handler_t::replace) + "\n")
                       .ok() &&

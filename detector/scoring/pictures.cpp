@@ -133,6 +133,19 @@ Image enlarge(const Image& image, int factor) {
   return out;
 }
 
+Image surprise_picture(const CameraPixelModel& model, const std::vector<float>& luma, int n) {
+  const auto gap = surprise_map(model, luma, n);
+  std::vector<float> magnitude(gap.size());
+  for (size_t i = 0; i < gap.size(); ++i) magnitude[i] = std::fabs(gap[i]);
+  const float top = std::max(1e-3F, percentile(magnitude, 0.99));
+  Image out = Image::zeros(n, n, 3);
+  for (size_t i = 0; i < gap.size(); ++i) {
+    const float v = std::min(255.0F, 255.0F * std::fabs(gap[i]) / top);
+    out.plane(gap[i] > 0 ? 0 : 2)[i] = v;
+  }
+  return out;
+}
+
 std::string png_data_uri(const Image& image) {
   auto png = encode_image(image, ImageFormat::kPng);
   if (!png) return "";

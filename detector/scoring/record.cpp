@@ -2,6 +2,7 @@
 
 #include <cctype>
 
+#include "residue/features/surprise.hpp"
 #include "residue/training/applicability.hpp"
 
 namespace residue {
@@ -95,7 +96,11 @@ nlohmann::ordered_json error_record(const std::string& path, const Error& error)
 nlohmann::ordered_json features_record(const std::string& path, const Extraction& e) {
   nlohmann::ordered_json values = nlohmann::ordered_json::object();
   const auto& names = feature_names();
-  for (size_t i = 0; i < names.size(); ++i) values[names[i]] = e.features.values[i];
+  // The coding surprise's NLL, expected cost and gap need a model's camera pixel model: null here.
+  for (size_t i = 0; i < names.size(); ++i) {
+    values[names[i]] = is_model_value(names[i]) ? nlohmann::ordered_json(nullptr)
+                                                : nlohmann::ordered_json(e.features.values[i]);
+  }
   nlohmann::ordered_json compression = {{"block_grid_strength", e.compression.block_grid_strength},
                                         {"jpeg_quality", nullptr}};
   if (e.compression.jpeg) {
@@ -127,6 +132,7 @@ nlohmann::ordered_json features_record(const std::string& path, const Extraction
         {"sensor", e.timings.sensor_ms},
         {"texture", e.timings.texture_ms},
         {"coding", e.timings.coding_ms},
+        {"surprise", e.timings.surprise_ms},
         {"processing", e.timings.processing_ms},
         {"total", e.timings.total_ms}}},
   };

@@ -82,6 +82,27 @@ nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::
         "this model records no calibration camera scores (trained before residue recorded them): "
         "retrain or run residue calibrate to get the camera tail";
   }
+  // The camera-only model's view (camera_model.hpp): how unusual the image is for a camera photo,
+  // with no generator in mind, and the coding surprise behind it.
+  if (s.camera_only) {
+    const CameraOnlyScore& c = *s.camera_only;
+    nlohmann::ordered_json co = {{"score", c.score},
+                                 {"unusual", c.unusual},
+                                 {"family_distance", c.distance},
+                                 {"gap_bits_per_pixel", c.gap},
+                                 {"window_gap_spread", c.gap_spread},
+                                 {"window_gap_max", c.gap_max}};
+    co["camera_tail"] = model.camera_only->tail ? tail_to_record(*model.camera_only->tail, c.score)
+                                                : nlohmann::ordered_json(nullptr);
+    if (model.kind == "camera-only") {
+      co["note"] =
+          "camera-only model: no generated image was seen in training; p_generated is the score's "
+          "place among camera photos, not a probability that the image was generated";
+    }
+    r["camera_only"] = std::move(co);
+  } else {
+    r["camera_only"] = nullptr;
+  }
   // Beyond the contract: what a reviewer may want to know about how the score was made.
   r["prior"] = settings.prior ? nlohmann::ordered_json(*settings.prior) : nlohmann::ordered_json(nullptr);
   r["windows"] = {{"size", extraction->layout.size},

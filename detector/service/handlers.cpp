@@ -215,6 +215,8 @@ void add_handlers(ServiceState& s, const std::function<Result<std::string>()>& r
                             {"residual_spectrum", png_data_uri(x.pictures.residual_spectrum)},
                             {"resampling_pmap_spectrum", png_data_uri(x.pictures.pmap_spectrum)},
                             {"contributions_svg", x.pictures.contributions_svg}};
+      if (!x.pictures.surprise_map.samples.empty())
+        answer["pictures"]["coding_surprise"] = png_data_uri(x.pictures.surprise_map);
       reply(res, 200, answer);
       return x.summary["band"];
     });

@@ -18,8 +18,9 @@ namespace {
 constexpr int kContexts = 9 * 9 * 9;
 constexpr int kSymbols = 256;
 
-// 2 x 2 block means (integer samples rounded back to integers): the next coarser scale.
-std::vector<int> halve(const std::vector<int>& x, int n) {
+}  // namespace
+
+std::vector<int> halve_samples(const std::vector<int>& x, int n) {
   const int h = n / 2;
   std::vector<int> out(static_cast<size_t>(h) * h);
   for (int y = 0; y < h; ++y) {
@@ -31,6 +32,14 @@ std::vector<int> halve(const std::vector<int>& x, int n) {
   }
   return out;
 }
+
+std::vector<int> integer_luma(const WindowInput& window) {
+  std::vector<int> out(window.luma.size());
+  for (size_t i = 0; i < out.size(); ++i) out[i] = round_half_away(window.luma[i]);
+  return out;
+}
+
+namespace {
 
 // The MED predictor written as selections, so that the coding loop keeps it inline and branch-free.
 inline int med(int a, int b, int c) {
@@ -157,10 +166,9 @@ const std::vector<std::string>& coding_names() {
 
 std::vector<double> coding_window(const WindowInput& window) {
   const int n = window.tile.size;
-  std::vector<int> full(window.luma.size());
-  for (size_t i = 0; i < full.size(); ++i) full[i] = round_half_away(window.luma[i]);
-  const auto half = halve(full, n);
-  const auto quarter = halve(half, n / 2);
+  const auto full = integer_luma(window);
+  const auto half = halve_samples(full, n);
+  const auto quarter = halve_samples(half, n / 2);
   const double b1 = coding_cost_bits(full, n);
   const double b2 = coding_cost_bits(half, n / 2);
   const double b4 = coding_cost_bits(quarter, n / 4);

@@ -5,6 +5,7 @@
 
 #include "residue/features/families.hpp"
 #include "residue/features/fingerprint.hpp"
+#include "residue/features/surprise.hpp"
 
 namespace residue {
 
@@ -32,6 +33,7 @@ const Family kFamilies[] = {
     {"sensor", sensor_names, sensor_window, &FamilyTimings::sensor_ms},
     {"texture", texture_names, texture_window, &FamilyTimings::texture_ms},
     {"coding", coding_names, coding_window, &FamilyTimings::coding_ms},
+    {"surprise", surprise_names, surprise_window, &FamilyTimings::surprise_ms},
 };
 
 struct Schema {
@@ -170,7 +172,7 @@ Result<Extraction> extract_image(const Image& image, const ExtractOptions& optio
   out.processing = assess_processing(decoded, std::nullopt, &windows);
   out.timings.processing_ms = ms_since(processing_start);
   out.timings.total_ms = out.timings.spectral_ms + out.timings.noise_ms + out.timings.resampling_ms +
-                         out.timings.sensor_ms + out.timings.texture_ms + out.timings.coding_ms +
+                         out.timings.sensor_ms + out.timings.texture_ms + out.timings.coding_ms + out.timings.surprise_ms +
                          out.timings.processing_ms;
   return out;
 }

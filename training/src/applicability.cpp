@@ -499,17 +499,36 @@ DomainCheck check_domain(const Applicability& a, const std::vector<double>& z, c
   return out;
 }
 
+nlohmann::ordered_json family_reference_to_json(const FamilyReference& f) {
+  return {{"family", f.family}, {"columns", f.columns},     {"mean", f.mean},
+          {"basis", f.basis},   {"variances", f.variances}, {"residual_variance", f.residual_variance},
+          {"limit", f.limit}};
+}
+
+FamilyReference family_reference_from_json(const nlohmann::json& f) {
+  FamilyReference r;
+  r.family = f.at("family");
+  r.columns = f.at("columns").get<std::vector<size_t>>();
+  r.mean = f.at("mean").get<std::vector<double>>();
+  r.basis = f.at("basis").get<std::vector<double>>();
+  r.variances = f.at("variances").get<std::vector<double>>();
+  r.residual_variance = f.at("residual_variance");
+  r.limit = f.at("limit");
+  const size_t d = r.columns.size();
+  if (r.mean.size() != d || r.basis.size() != r.variances.size() * d || r.variances.empty() ||
+      !(r.residual_variance > 0)) {
+    throw nlohmann::json::other_error::create(501, "PPCA reference of " + r.family + " is inconsistent",
+                                              nullptr);
+  }
+  for (double v : r.variances) {
+    if (!(v > 0)) throw nlohmann::json::other_error::create(501, "non-positive variance", nullptr);
+  }
+  return r;
+}
+
 nlohmann::ordered_json applicability_to_json(const Applicability& a) {
   nlohmann::ordered_json families = nlohmann::ordered_json::array();
-  for (const auto& f : a.families) {
-    families.push_back({{"family", f.family},
-                        {"columns", f.columns},
-                        {"mean", f.mean},
-                        {"basis", f.basis},
-                        {"variances", f.variances},
-                        {"residual_variance", f.residual_variance},
-                        {"limit", f.limit}});
-  }
+  for (const auto& f : a.families) families.push_back(family_reference_to_json(f));
   return {{"method", "ppca-tipping-bishop-1999"},
           {"coverage", a.coverage},
           {"families", families},
@@ -524,26 +543,7 @@ Applicability applicability_from_json(const nlohmann::json& j) {
   a.coverage = j.at("coverage");
   a.min_support = j.at("min_support");
   a.fine_detail_share = j.value("fine_detail_share", a.fine_detail_share);
-  for (const auto& f : j.at("families")) {
-    FamilyReference r;
-    r.family = f.at("family");
-    r.columns = f.at("columns").get<std::vector<size_t>>();
-    r.mean = f.at("mean").get<std::vector<double>>();
-    r.basis = f.at("basis").get<std::vector<double>>();
-    r.variances = f.at("variances").get<std::vector<double>>();
-    r.residual_variance = f.at("residual_variance");
-    r.limit = f.at("limit");
-    const size_t d = r.columns.size();
-    if (r.mean.size() != d || r.basis.size() != r.variances.size() * d || r.variances.empty() ||
-        !(r.residual_variance > 0)) {
-      throw nlohmann::json::other_error::create(
-          501, "applicability reference of " + r.family + " is inconsistent", nullptr);
-    }
-    for (double v : r.variances) {
-      if (!(v > 0)) throw nlohmann::json::other_error::create(501, "non-positive variance", nullptr);
-    }
-    a.families.push_back(std::move(r));
-  }
+  for (const auto& f : j.at("families")) a.families.push_back(family_reference_from_json(f));
   a.camera = counts_from_json(j.at("processing").at("camera"));
   a.generated = counts_from_json(j.at("processing").at("generated"));
   return a;

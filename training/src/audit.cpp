@@ -74,6 +74,17 @@ void add_warnings(AuditReport& r) {
   const GroupSummary& c = r.camera;
   const GroupSummary& g = r.generated;
   auto warn = [&](std::string text) { r.warnings.push_back(std::move(text)); };
+  if (g.count == 0) {
+    // Camera photos alone (a camera-only model): nothing to compare the classes by.
+    if (c.count < 100) {
+      warn("Few camera photos: " + std::to_string(c.count) +
+           ". A camera-only model's thresholds rest on them alone; a few hundred independent photos are "
+           "the least for a 1 % promise.");
+    }
+    if (r.unreadable > 0)
+      warn(std::to_string(r.unreadable) + " files could not be read or decoded and were left out.");
+    return;
+  }
   if (c.count < 20 || g.count < 20) {
     warn("Few examples: " + std::to_string(c.count) + " camera and " + std::to_string(g.count) +
          " generated images. Metrics from so few are noisy; collect at least a few hundred per class.");

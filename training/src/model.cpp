@@ -76,8 +76,82 @@ double pooled_margin(const std::vector<double>& window_margins, const std::strin
   return keep > 0 ? sum / static_cast<double>(keep) : 0.0;
 }
 
-Score score(const Model& model, const FeatureVector& features, std::optional<double> prior,
+FeatureVector model_vector(const Model& model, const FeatureVector& features) {
+  FeatureVector out = features;
+  if (model.camera_pixels) fill_surprise(*model.camera_pixels, out);
+  return out;
+}
+
+namespace {
+
+size_t gap_index() {
+  static const size_t at = [] {
+    const auto& names = feature_names();
+    return static_cast<size_t>(std::find(names.begin(), names.end(), "surprise.gap.full") - names.begin());
+  }();
+  return at;
+}
+
+CameraOnlyScore camera_only_score(const Model& model, const FeatureVector& filled) {
+  CameraOnlyScore c;
+  std::vector<double> values(model.feature_index.size());
+  for (size_t k = 0; k < values.size(); ++k) values[k] = filled.values[model.feature_index[k]];
+  c.score = model.camera_only->density->score(values, &c.distance);
+  if (const auto& tail = model.camera_only->tail; tail && !tail->margins.empty()) {
+    c.tail = tail->position(c.score);
+    c.unusual = c.tail->p_value <= model.camera_only->unusual;
+  }
+  if (gap_index() < filled.values.size()) c.gap = filled.values[gap_index()];
+  const auto gaps = window_gaps(filled);
+  if (!gaps.empty()) {
+    double mean = 0.0;
+    for (double g : gaps) mean += g / static_cast<double>(gaps.size());
+    double var = 0.0;
+    for (double g : gaps) var += (g - mean) * (g - mean) / static_cast<double>(gaps.size());
+    c.gap_spread = std::sqrt(var);
+    c.gap_max = *std::max_element(gaps.begin(), gaps.end());
+  }
+  return c;
+}
+
+std::string unusual_reason(const CameraOnlyScore& c) {
+  char buf[120];
+  std::snprintf(buf, sizeof buf, "unusual for a camera photo: the camera-only score %.2f is reached by ",
+                c.score);
+  return buf + tail_text(*c.tail) + " (conformal p-value " + percent_text(c.tail->p_value) +
+         "), though the two-class score does not call it likely-generated";
+}
+
+Score score_camera_only(const Model& model, const FeatureVector& filled, const Thresholds& t) {
+  Score s;
+  s.camera_only = camera_only_score(model, filled);
+  s.margin = camera_only_margin(s.camera_only->score);
+  const double families = static_cast<double>(std::max<size_t>(1, s.camera_only->distance.size()));
+  for (const auto& [family, d] : s.camera_only->distance) {
+    s.contributions[family] = d * d / families;
+    s.distances[family] = d;
+  }
+  s.p_generated = model.calibration.probability(s.margin);
+  s.band = band_of(t, s.p_generated);
+  if (s.band == "inconclusive") {
+    char buf[200];
+    std::snprintf(buf, sizeof buf,
+                  "the camera-only score (p %.3f) is below the likely-generated threshold (%.3f); a "
+                  "camera-only model saw no generated image and never calls one likely-camera",
+                  s.p_generated, t.likely_generated);
+    s.reasons.emplace_back(buf);
+  }
+  return s;
+}
+
+}  // namespace
+
+Score score(const Model& model, const FeatureVector& unfilled, std::optional<double> prior,
             const ProcessingEvidence* processing, const Thresholds* thresholds) {
+  const FeatureVector features = model_vector(model, unfilled);
+  const Thresholds& t = thresholds != nullptr ? *thresholds : model.thresholds;
+  const bool has_density = model.camera_only && model.camera_only->density;
+  if (model.kind == "camera-only" && has_density) return score_camera_only(model, features, t);
   Score s;
   s.margin = model.linear.bias;
   std::map<std::string, int> members;
@@ -115,11 +189,15 @@ Score score(const Model& model, const FeatureVector& features, std::optional<dou
   for (auto& [family, d] : s.distances) d = std::sqrt(d / members[family]);
   s.p_generated = model.calibration.probability(s.margin);
   if (prior) s.p_generated = shift_prior(s.p_generated, model.training_prior, *prior);
-  const Thresholds& t = thresholds != nullptr ? *thresholds : model.thresholds;
   s.band = band_of(t, s.p_generated);
   if (model.applicability) {
     s.domain = check_domain(*model.applicability, zs, processing);
     s.reasons = s.domain->reasons;
+  }
+  if (has_density) {
+    s.camera_only = camera_only_score(model, features);
+    if (s.camera_only->unusual && s.band != "likely-generated")
+      s.reasons.push_back(unusual_reason(*s.camera_only));
   }
   if (!s.reasons.empty()) {
     s.band = "inconclusive";
@@ -186,6 +264,9 @@ nlohmann::ordered_json model_to_json(const Model& m) {
   if (m.applicability) j["applicability"] = applicability_to_json(*m.applicability);
   if (m.calibration_set) j["calibration_set"] = calibration_record_to_json(*m.calibration_set);
   if (m.camera_tail) j["camera_tail"] = camera_tail_to_json(*m.camera_tail);
+  j["kind"] = m.kind;
+  if (m.camera_pixels) j["camera_pixels"] = camera_pixels_to_json(*m.camera_pixels);
+  if (m.camera_only) j["camera_only"] = camera_only_to_json(*m.camera_only);
   return j;
 }
 
@@ -310,6 +391,17 @@ Result<Model> model_from_json(const nlohmann::json& j) {
     }
     if (j.contains("calibration_set")) m.calibration_set = calibration_record_from_json(j["calibration_set"]);
     if (j.contains("camera_tail")) m.camera_tail = camera_tail_from_json(j["camera_tail"]);
+    m.kind = j.value("kind", std::string("two-class"));
+    if (m.kind != "two-class" && m.kind != "camera-only")
+      return make_error(ErrorCode::kCorrupt, "model's kind is neither two-class nor camera-only");
+    if (j.contains("camera_pixels")) m.camera_pixels = camera_pixels_from_json(j["camera_pixels"]);
+    if (j.contains("camera_only")) {
+      m.camera_only = camera_only_from_json(j["camera_only"]);
+      if (m.camera_only->density && m.camera_only->density->scaler.mean.size() != d)
+        return make_error(ErrorCode::kCorrupt, "model's camera-only density does not match its feature list");
+    }
+    if (m.kind == "camera-only" && !(m.camera_only && m.camera_only->density))
+      return make_error(ErrorCode::kCorrupt, "camera-only model without its camera-only density");
     if (m.scaler.mean.size() != d || m.scaler.scale.size() != d || m.linear.weights.size() != d) {
       return make_error(ErrorCode::kCorrupt, "model arrays do not match its feature list");
     }

@@ -283,6 +283,207 @@ std::vector<CalibrationImage> out_of_fold_calibration(const Instances& instances
   return images;
 }
 
+// The camera-only density on the model's features (camera_model.hpp), fitted without a generated
+// image: sets model.camera_only (the density on every camera instance, the tail of the camera
+// photos' out-of-fold scores) and returns every instance's out-of-fold score.
+std::vector<double> fit_camera_only(Model& model, const Instances& instances,
+                                    const std::vector<int>& labels_all, const std::vector<int>& fold_all,
+                                    const std::vector<int>& groups_all, int k, size_t n,
+                                    const TrainSettings& settings) {
+  std::vector<std::vector<double>> rows(instances.size(), std::vector<double>(model.feature_index.size()));
+  for (size_t i = 0; i < instances.size(); ++i) {
+    for (size_t c = 0; c < model.feature_index.size(); ++c)
+      rows[i][c] = instances[i]->features.values[model.feature_index[c]];
+  }
+  auto fit = fit_camera_density(rows, labels_all, fold_all, k, model.families, settings.jobs);
+  std::vector<CalibrationImage> photos;
+  for (size_t i = 0; i < n; ++i) {
+    if (labels_all[i] != 0) continue;
+    CalibrationImage im;
+    im.margin = fit.out_of_fold[i];
+    im.group = groups_all[i];
+    im.sha256 = instances[i]->sha256;
+    im.path = instances[i]->file.path;
+    photos.push_back(std::move(im));
+  }
+  CameraOnly camera;
+  camera.density = std::move(fit.density);
+  camera.tail = CameraTail::of(photos, "out-of-fold training camera photos", settings.fpr_confidence);
+  model.camera_only = std::move(camera);
+  return std::move(fit.out_of_fold);
+}
+
+// The empirical distribution function of the camera photos' values: the share strictly below x.
+std::vector<double> camera_ranks(const std::vector<double>& values, const std::vector<int>& labels) {
+  std::vector<double> camera;
+  for (size_t i = 0; i < values.size(); ++i) {
+    if (labels[i] == 0) camera.push_back(values[i]);
+  }
+  std::sort(camera.begin(), camera.end());
+  std::vector<double> out(values.size());
+  for (size_t i = 0; i < values.size(); ++i) {
+    const auto below = std::lower_bound(camera.begin(), camera.end(), values[i]) - camera.begin();
+    out[i] = camera.empty() ? 0.0 : static_cast<double>(below) / static_cast<double>(camera.size());
+  }
+  return out;
+}
+
+nlohmann::ordered_json metrics_with_generators(const EvaluationReport& r) {
+  nlohmann::ordered_json per = nlohmann::ordered_json::object();
+  for (const auto& [g, m] : r.per_generator)
+    per[g] = {{"roc_auc", m.roc_auc}, {"tpr_at_fpr_1pct", m.tpr_at_fpr_1}};
+  const MetricSet& o = r.overall;
+  return {{"overall",
+           {{"camera", o.camera},
+            {"generated", o.generated},
+            {"roc_auc", o.roc_auc},
+            {"tpr_at_fpr_1pct", o.tpr_at_fpr_1},
+            {"tpr_at_fpr_5pct", o.tpr_at_fpr_5}}},
+          {"per_generator", per}};
+}
+
+// What the camera-only score did out of fold, alone and beside the two-class score (docs/quality.md):
+// its ranking; the ranking of the larger of the two scores' camera ranks; and the images the
+// two-class score put in likely-camera that the camera-only score calls unusual.
+nlohmann::ordered_json camera_only_provenance(const Model& model, const std::vector<double>& oof_all,
+                                              const CrossValidation& cv, const std::vector<int>& labels,
+                                              const std::vector<std::string>& generators) {
+  const size_t n = labels.size();
+  const std::vector<double> scores(oof_all.begin(), oof_all.begin() + static_cast<std::ptrdiff_t>(n));
+  const auto camera_rank = camera_ranks(scores, labels);
+  const auto two_class_rank = camera_ranks(cv.margins, labels);
+  std::vector<double> fused(n);
+  for (size_t i = 0; i < n; ++i) fused[i] = std::max(camera_rank[i], two_class_rank[i]);
+  size_t generated_camera_band = 0, generated_unusual = 0, camera_camera_band = 0, camera_unusual = 0;
+  for (size_t i = 0; i < n; ++i) {
+    if (cv.probabilities[i] >= model.thresholds.likely_camera) continue;
+    const bool unusual = model.camera_only->tail->position(scores[i]).p_value <= model.camera_only->unusual;
+    (labels[i] == 1 ? generated_camera_band : camera_camera_band) += 1;
+    if (unusual) (labels[i] == 1 ? generated_unusual : camera_unusual) += 1;
+  }
+  return {{"method", "ppca-per-family-camera-only"},
+          {"alone", metrics_with_generators(evaluate_scores(camera_rank, labels, generators, 2.0))},
+          {"larger_camera_rank_with_two_class",
+           metrics_with_generators(evaluate_scores(fused, labels, generators, 2.0))},
+          {"likely_camera_out_of_fold",
+           {{"generated", generated_camera_band},
+            {"generated_unusual", generated_unusual},
+            {"camera", camera_camera_band},
+            {"camera_unusual", camera_unusual}}}};
+}
+
+// Training on camera photos alone (settings.camera_only): the camera-only score is the margin,
+// mapped to [0, 1] by a fixed logistic on the out-of-fold camera scores (median and robust spread:
+// p is the score's place among camera photos, not a probability of generation); thresholds and
+// camera tail from the out-of-fold camera scores; no likely-camera band.
+Result<TrainOutcome> train_camera_only(const std::vector<PreparedItem>& items,
+                                       const std::vector<PreparedItem>& copies,
+                                       const std::vector<size_t>& columns, const CameraPixelModel& pixels,
+                                       const TrainSettings& settings, const AuditReport& audit) {
+  const size_t n = items.size();
+  const auto generated = static_cast<size_t>(
+      std::count_if(items.begin(), items.end(), [](const PreparedItem& it) { return label_of(it) == 1; }));
+  if (generated > 0) {
+    return make_error(ErrorCode::kUnsupported,
+                      "camera-only training takes camera photos only, and " + std::to_string(generated) +
+                          " generated images were given: leave out --camera-only to learn from them");
+  }
+  if (n < 10) return make_error(ErrorCode::kTooSmall, "camera-only training needs at least 10 camera photos");
+  Instances instances;
+  for (const auto& it : items) instances.push_back(&it);
+  for (const auto& c : copies) instances.push_back(&c);
+  TrainOutcome out;
+  CrossValidation& cv = out.cv;
+  const std::vector<int> labels(n, 0);
+  const std::vector<int> labels_all(instances.size(), 0);
+  const auto groups = assign_groups(items, settings.group_by);
+  cv.groups = static_cast<size_t>(*std::max_element(groups.begin(), groups.end())) + 1;
+  if (cv.groups < 2)
+    return make_error(ErrorCode::kTooSmall, "all images fall into one group: cannot cross-validate");
+  const int k = std::clamp(settings.folds, 2, static_cast<int>(cv.groups));
+  cv.fold = grouped_folds(groups, labels, k);
+  std::vector<int> fold_all = cv.fold;
+  std::vector<int> groups_all = groups;
+  for (const auto& c : copies) {
+    fold_all.push_back(cv.fold[c.source]);
+    groups_all.push_back(groups[c.source]);
+  }
+  Model& model = out.model;
+  model.kind = "camera-only";
+  model.extractor_version = std::string(kExtractorVersion);
+  model.schema_id = feature_schema_id();
+  model.feature_index = columns;
+  for (size_t c : columns) {
+    model.features.push_back(feature_names()[c]);
+    model.families.push_back(feature_families()[c]);
+  }
+  model.camera_pixels = pixels;
+  // The margin is the logarithm of the score (scores spread multiplicatively; a logistic of the
+  // score itself would saturate at 1 for the most unusual images and lose their order).
+  auto oof = fit_camera_only(model, instances, labels_all, fold_all, groups_all, k, n, settings);
+  for (double& s : oof) s = camera_only_margin(s);
+  model.scaler = model.camera_only->density->scaler;
+  model.linear.weights.assign(columns.size(), 0.0);
+  model.linear.bias = 0.0;
+  std::vector<double> photos(oof.begin(), oof.begin() + static_cast<std::ptrdiff_t>(n));
+  std::sort(photos.begin(), photos.end());
+  auto quantile = [&](double q) {
+    return photos[static_cast<size_t>(std::lround(q * static_cast<double>(n - 1)))];
+  };
+  const double spread = std::max((quantile(0.75) - quantile(0.25)) / 1.349, 1e-6);
+  model.calibration.a = -1.0 / spread;
+  model.calibration.b = quantile(0.5) / spread;
+  model.training_prior = 0.5;
+  std::vector<double> p_all;
+  p_all.reserve(oof.size());
+  for (double s : oof) p_all.push_back(model.calibration.probability(s));
+  apply_calibration(
+      model,
+      calibrate_thresholds(out_of_fold_calibration(instances, p_all, oof, labels_all, groups_all, n),
+                           {settings.target_fpr, settings.fpr_confidence, settings.generated_miss},
+                           "out-of-fold"),
+      settings.target_fpr, settings.generated_miss);
+  model.thresholds.likely_camera = 0.0;
+  cv.margins.assign(oof.begin(), oof.begin() + static_cast<std::ptrdiff_t>(n));
+  cv.probabilities.assign(p_all.begin(), p_all.begin() + static_cast<std::ptrdiff_t>(n));
+  cv.report = evaluate_scores(cv.probabilities, labels, std::vector<std::string>(n, "camera"),
+                              model.thresholds.likely_generated);
+  model.created = utc_now();
+  if (model.calibration_set) model.calibration_set->created = model.created;
+  size_t unusual = 0;
+  for (double m : cv.margins)
+    unusual += model.camera_only->tail->position(std::exp(m)).p_value <= model.camera_only->unusual;
+  std::vector<std::string> files;
+  for (const auto& it : items) files.push_back(training_file_key(it.sha256));
+  std::sort(files.begin(), files.end());
+  model.provenance = {
+      {"counts",
+       {{"camera", n},
+        {"generated", 0},
+        {"per_generator", nlohmann::ordered_json::object()},
+        {"augmented_copies", copies.size()}}},
+      {"settings", settings_to_json(settings)},
+      {"audit_warnings", audit.warnings},
+      {"cross_validation",
+       {{"folds", k},
+        {"groups", cv.groups},
+        {"group_by", kGroupNames[static_cast<int>(settings.group_by)]},
+        {"instances", "image"},
+        {"metrics", report_to_json(cv.report)}}},
+      {"camera_only",
+       {{"method", "ppca-per-family-camera-only"},
+        {"note",
+         "No generated image was seen: the model scores how unusual an image is for a camera photo. "
+         "p_generated is that score's place among camera photos, not a probability that the image "
+         "was generated, and the model never calls an image likely-camera."},
+        {"median_log_score", quantile(0.5)},
+        {"log_score_spread", spread},
+        {"camera_unusual_out_of_fold", unusual}}},
+      {"training_files", files}};
+  stamp_model_id(model);
+  return out;
+}
+
 }  // namespace
 
 std::string utc_now() {
@@ -308,7 +509,8 @@ nlohmann::ordered_json settings_to_json(const TrainSettings& s) {
           {"augment", augment_name(s.augment)},
           {"instances", s.window_instances ? "windows" : "image"},
           {"windows_per_image", s.windows_per_image},
-          {"only", s.feature_prefixes}};
+          {"only", s.feature_prefixes},
+          {"camera_only", s.camera_only}};
 }
 
 TrainSettings settings_from_model(const Model& model) {
@@ -331,6 +533,7 @@ TrainSettings settings_from_model(const Model& model) {
     s.domain_coverage = j.value("domain_coverage", s.domain_coverage);
     group_by = j.value("group_by", group_by);
     s.feature_prefixes = j.value("only", s.feature_prefixes);
+    s.camera_only = j.value("camera_only", s.camera_only);
     // Models from before augmentation existed were trained without it.
     s.augment = parse_augment(j.value("augment", std::string("none"))).value_or(Augment::kNone);
     s.window_instances = j.value("instances", std::string("image")) == "windows";
@@ -383,10 +586,27 @@ nlohmann::ordered_json lineage_of(const Model& parent, const std::vector<Prepare
   return lineage;
 }
 
-Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const TrainSettings& settings,
-                                 const AuditReport& audit, const std::vector<PreparedItem>& copies) {
+Result<TrainOutcome> train_model(const std::vector<PreparedItem>& given_items, const TrainSettings& settings,
+                                 const AuditReport& audit, const std::vector<PreparedItem>& given_copies) {
   auto columns = select_features(settings.feature_prefixes);
   if (!columns) return columns.error();
+  // The camera pixel model of the surprise family, on the camera instances (photos and copies);
+  // then every vector gets the family's derived values from it.
+  std::vector<const std::vector<double>*> camera_vectors;
+  for (const auto* set : {&given_items, &given_copies}) {
+    for (const auto& it : *set) {
+      if (label_of(it) == 0) camera_vectors.push_back(&it.features.values);
+    }
+  }
+  if (camera_vectors.size() < 2)
+    return make_error(ErrorCode::kTooSmall, "training needs at least two camera images");
+  const CameraPixelModel pixels = fit_camera_pixels(camera_vectors);
+  std::vector<PreparedItem> items = given_items;
+  std::vector<PreparedItem> copies = given_copies;
+  for (auto* set : {&items, &copies}) {
+    for (auto& it : *set) fill_surprise(pixels, it.features);
+  }
+  if (settings.camera_only) return train_camera_only(items, copies, *columns, pixels, settings, audit);
   // Instances: the n images, then their copies; a copy shares its image's group and fold.
   Instances instances;
   instances.reserve(items.size() + copies.size());
@@ -537,6 +757,9 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& items, const T
   model.reference = training_reference(model, items, labels, cv);
   model.applicability =
       fit_applicability(instances, labels_all, fold_all, k, model, settings.domain_coverage, settings.jobs);
+  model.camera_pixels = pixels;
+  const auto camera_oof = fit_camera_only(model, instances, labels_all, fold_all, groups_all, k, n, settings);
+  model.provenance["camera_only"] = camera_only_provenance(model, camera_oof, cv, labels, generators);
   stamp_model_id(model);
   return out;
 }

@@ -23,13 +23,14 @@
 namespace residue {
 
 // Bump when any value's definition changes; models record it and refuse a mismatch.
-inline constexpr std::string_view kExtractorVersion = "2.0.0";
+inline constexpr std::string_view kExtractorVersion = "3.0.0";
 
 // Names of the learned values, in vector order (`family.group.name[.mean|.max]`).
 const std::vector<std::string>& feature_names();
 // Short fingerprint of extractor version and names (FNV-1a, hex): equal schemas, equal ids.
 const std::string& feature_schema_id();
-// The family ("spectral", "noise", "resampling", "sensor", "texture", "coding") of each value.
+// The family ("spectral", "noise", "resampling", "sensor", "texture", "coding", "surprise") of each
+// value.
 const std::vector<std::string>& feature_families();
 
 struct FeatureVector {
@@ -53,6 +54,7 @@ struct FamilyTimings {
   double sensor_ms = 0;
   double texture_ms = 0;
   double coding_ms = 0;
+  double surprise_ms = 0;
   double processing_ms = 0;  // processing evidence (not a family: reported, never learned)
   double total_ms = 0;
 };

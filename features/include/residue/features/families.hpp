@@ -26,6 +26,8 @@
 //               second-order residual co-occurrences and moments of the poorest and richest third.
 //  coding     — JPEG-LS (LOCO-I) MED prediction with its 365 gradient contexts: conditional
 //               residual entropy in bits per pixel at full, 1/2 and 1/4 scale (2 x 2 means).
+//  surprise   — the same prediction, its residuals per activity class, and what a model of camera
+//               photos makes of them (NLL, expected cost, their gap): surprise.hpp.
 // Values whose name ends in ".peak" are aggregated over windows by mean and max; others by mean.
 #pragma once
 
@@ -146,6 +148,12 @@ double texture_diversity(const float* x, int stride, int size);
 // their diversities in `diversity` when given.
 std::vector<int> patches_by_texture(const float* luma, int n, int patch,
                                     std::vector<double>* diversity = nullptr);
+
+// 2 x 2 block means of an n x n plane of integer samples, rounded half up to integers: the next
+// coarser scale of the coding and surprise families ((n / 2) x (n / 2)).
+std::vector<int> halve_samples(const std::vector<int>& x, int n);
+// Integer luma of a window (round half away from zero), n x n.
+std::vector<int> integer_luma(const WindowInput& window);
 
 // JPEG-LS (ISO/IEC 14495-1, A.3-A.4) median edge detector: min(a, b) if c >= max(a, b),
 // max(a, b) if c <= min(a, b), else a + b - c (a west, b north, c north-west).

@@ -97,6 +97,10 @@ struct FamilyMoments {
   FamilyMoments& operator+=(const FamilyMoments& other);
 };
 
+// One family's reference in JSON, and back (throws nlohmann::json::exception on an inconsistent one).
+nlohmann::ordered_json family_reference_to_json(const FamilyReference& reference);
+FamilyReference family_reference_from_json(const nlohmann::json& json);
+
 // Fits mean, basis and variances on rows of standardised values (all the model's features);
 // `columns` picks the family's. The limit is left at 0.
 FamilyReference fit_family_reference(const std::string& family, const std::vector<size_t>& columns,

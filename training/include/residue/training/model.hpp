@@ -18,6 +18,7 @@
 
 #include "residue/features/extract.hpp"
 #include "residue/training/applicability.hpp"
+#include "residue/training/camera_model.hpp"
 #include "residue/training/calibration.hpp"
 #include "residue/training/conformal.hpp"
 #include "residue/training/drift.hpp"
@@ -63,6 +64,29 @@ struct Model {
   // camera tail (conformal.hpp); absent in models from before calibration was recorded.
   std::optional<CalibrationRecord> calibration_set;
   std::optional<CameraTail> camera_tail;
+  // "two-class" (the linear SVM on camera and generated images) or "camera-only" (trained on
+  // camera photos alone: the margin is the camera-only score, `calibration` maps it monotonically
+  // to [0, 1] so that thresholds work as for any model, and no generator was seen).
+  std::string kind = "two-class";
+  // The camera model (camera_model.hpp): the surprise family's camera pixel model, and the
+  // camera-only density with its tail. Absent in models of older extractors.
+  std::optional<CameraPixelModel> camera_pixels;
+  std::optional<CameraOnly> camera_only;
+};
+
+// The vector a model scores: `features` with the surprise family's derived values filled by the
+// model's camera pixel model (a copy; unchanged without one).
+FeatureVector model_vector(const Model& model, const FeatureVector& features);
+
+// What the camera-only model says about an image.
+struct CameraOnlyScore {
+  double score = 0.0;                      // sqrt(mean over families of d_f^2)
+  std::map<std::string, double> distance;  // d_f per family
+  std::optional<TailPosition> tail;        // among the out-of-fold camera photos
+  bool unusual = false;                    // tail p-value at or below the model's `unusual`
+  double gap = 0.0;                        // surprise.gap.full of the image, bits per pixel
+  double gap_spread = 0.0;                 // standard deviation of the windows' gaps
+  double gap_max = 0.0;                    // the largest window gap
 };
 
 // Sets the model's thresholds, promise, calibration record and camera tail from `calibrated`
@@ -78,6 +102,7 @@ struct Score {
   std::optional<DomainCheck> domain;            // absent when the model has no applicability reference
   std::string band;                             // after the domain check (`reasons` say why inconclusive)
   std::vector<std::string> reasons;
+  std::optional<CameraOnlyScore> camera_only;  // absent when the model has no camera-only density
 };
 
 // The image's margin from its windows' margins under a pooling ("mean" or "top-third"), and the

@@ -40,6 +40,8 @@ struct TrainSettings {
   // Threads for the cross-validation folds (one fold each; at most `folds`). The model does not
   // depend on it; memory does: each fold in flight holds its standardised training rows as floats.
   int jobs = 1;
+  // Camera photos alone (camera_model.hpp): no SVM; the camera-only score is the model.
+  bool camera_only = false;
 };
 
 // How hard the SVM's solver worked: the most passes any of its solves took, and whether every one

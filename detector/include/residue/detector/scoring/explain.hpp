@@ -18,6 +18,10 @@ struct ExplanationPictures {
   Image noise_residual;           // centre of the image, up to 1024 px
   Image residual_spectrum;        // log power spectrum of the middle window's residual, N/8 grid marked
   Image pmap_spectrum;            // Kirchner (2008) p-map spectrum of the middle window
+  // Per-pixel coding surprise of the middle window under the model's camera pixel model
+  // (surprise.hpp): red where pixels cost more to code than camera photos' in the same context,
+  // blue where less (too smooth); empty when the model has no camera pixel model.
+  Image surprise_map;
   std::string contributions_svg;  // per-family bar chart
 };
 
@@ -33,7 +37,8 @@ Result<Explanation> explain_bytes(const std::string& name, std::span<const std::
                                   const Model& model, const ScanSettings& settings);
 
 // Reads and explains a file, and writes into `output_dir`: noise_residual.png,
-// residual_spectrum.png, resampling_pmap_spectrum.png, contributions.svg, summary.json and
+// residual_spectrum.png, resampling_pmap_spectrum.png, coding_surprise.png (when the model has a
+// camera pixel model), contributions.svg, summary.json and
 // summary.txt (summary.json then also lists the pictures).
 Result<Explanation> explain_image(const std::string& image, const Model& model, const ScanSettings& settings,
                                   const std::filesystem::path& output_dir);

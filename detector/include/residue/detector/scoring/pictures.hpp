@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "residue/features/image.hpp"
+#include "residue/features/surprise.hpp"
 #include "residue/features/status.hpp"
 
 namespace residue {
@@ -25,6 +26,10 @@ Image spectrum_picture(const std::vector<float>& window, int n, bool mark_grid);
 
 // Each pixel repeated `factor` times in both directions, for viewing small pictures.
 Image enlarge(const Image& image, int factor);
+// The per-pixel coding surprise of an n x n luma window under a camera pixel model
+// (surprise_map()): RGB, red for a positive gap, blue for a negative one, both scaled by the 99th
+// percentile of |gap|.
+Image surprise_picture(const CameraPixelModel& model, const std::vector<float>& luma, int n);
 
 // "data:image/png;base64,..." of an image (8-bit, clamped).
 std::string png_data_uri(const Image& image);
