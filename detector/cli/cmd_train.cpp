@@ -184,9 +184,9 @@ int finish_camera_only(const Model& model, const CrossValidation& cv, const std:
             << " groups of camera photos; each fold scored by a "
             << "density fitted without it.\n";
   std::printf(
-      "  Camera-only score of the camera photos, out of fold: median %.3f, robust spread of its "
-      "logarithm %.3f; %d are unusual (conformal p-value <= %s).\n",
-      std::exp(c.value("median_log_score", 0.0)), c.value("log_score_spread", 0.0),
+      "  Camera-only score of the camera photos, out of fold: median %.3f, robust spread %.3f; %d are "
+      "unusual (conformal p-value <= %s).\n",
+      c.value("median_score", 0.0), c.value("score_spread", 0.0),
       c.value("camera_unusual_out_of_fold", 0), percent_text(model.camera_only->unusual).c_str());
   std::cout << calibration_summary(model);
   std::cout << "  " << c["note"].get<std::string>() << "\n";

@@ -62,7 +62,9 @@ std::string summary_text(const std::string& name, const Json& summary, const Mod
                 : std::string("Inside the training domain: ") +
                       (summary["in_domain"].get<bool>() ? "yes" : "no") + "\n";
   }
-  text += "Strongest evidence (weight x standardised value):\n";
+  text += model.kind == "camera-only"
+              ? "Values furthest from camera photos (standardised on them; camera-only model, no weights):\n"
+              : "Strongest evidence (weight x standardised value):\n";
   for (const auto& e : summary["strongest_evidence"]) {
     std::snprintf(line, sizeof line, "  %+7.3f  %s\n", e["contribution"].get<double>(),
                   e["feature"].get<std::string>().c_str());

@@ -88,6 +88,7 @@ nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::
     const CameraOnlyScore& c = *s.camera_only;
     nlohmann::ordered_json co = {{"score", c.score},
                                  {"unusual", c.unusual},
+                                 {"density", c.density},
                                  {"family_distance", c.distance},
                                  {"gap_bits_per_pixel", c.gap},
                                  {"window_gap_spread", c.gap_spread},

@@ -139,7 +139,7 @@ CameraPixelModel fit_camera_pixels(const std::vector<const double*>& rows) {
         share += row[at];
         abs_per_pixel += row[at + 1];
       }
-      const double m = share > 0 ? abs_per_pixel / share : 0.0;
+      const double m = share > 0 && abs_per_pixel > 0 ? abs_per_pixel / share : 0.0;
       model.mean_abs[static_cast<size_t>(level)][static_cast<size_t>(c)] = m;
       model.theta[static_cast<size_t>(level)][static_cast<size_t>(c)] = tsgd_theta(m);
     }

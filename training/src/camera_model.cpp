@@ -45,6 +45,11 @@ CameraPixelModel fit_camera_pixels(const std::vector<const std::vector<double>*>
   return fit_camera_pixels(rows);
 }
 
+double image_gap(const std::vector<double>& filled) {
+  const size_t at = surprise_offset() + kGapFull;
+  return at < filled.size() ? filled[at] : 0.0;
+}
+
 std::vector<double> window_gaps(const FeatureVector& filled) {
   std::vector<double> out;
   out.reserve(filled.windows.size());
@@ -163,7 +168,14 @@ CameraPixelModel camera_pixels_from_json(const nlohmann::json& j) {
 }
 
 nlohmann::ordered_json camera_only_to_json(const CameraOnly& camera) {
-  nlohmann::ordered_json j = {{"method", "ppca-per-family-camera-only"}, {"unusual_p_value", camera.unusual}};
+  nlohmann::ordered_json j = {{"method", "coding-surprise-gap-and-ppca-per-family-camera-only"},
+                              {"unusual_p_value", camera.unusual},
+                              {"gap_median", camera.gap_median},
+                              {"gap_spread", camera.gap_spread},
+                              {"log_density_median", camera.density_median},
+                              {"log_density_spread", camera.density_spread},
+                              {"score_median", camera.score_median},
+                              {"score_spread", camera.score_spread}};
   if (camera.density) {
     nlohmann::ordered_json families = nlohmann::ordered_json::array();
     for (const auto& f : camera.density->families) families.push_back(family_reference_to_json(f));
@@ -177,6 +189,15 @@ nlohmann::ordered_json camera_only_to_json(const CameraOnly& camera) {
 CameraOnly camera_only_from_json(const nlohmann::json& j) {
   CameraOnly c;
   c.unusual = j.at("unusual_p_value");
+  c.gap_median = j.at("gap_median");
+  c.gap_spread = j.at("gap_spread");
+  c.density_median = j.at("log_density_median");
+  c.density_spread = j.at("log_density_spread");
+  c.score_median = j.at("score_median");
+  c.score_spread = j.at("score_spread");
+  if (!(c.gap_spread > 0) || !(c.density_spread > 0) || !(c.score_spread > 0) || !std::isfinite(c.score_median) || !std::isfinite(c.gap_median) ||
+      !std::isfinite(c.density_median))
+    throw nlohmann::json::other_error::create(501, "camera-only spreads must be positive", nullptr);
   if (j.contains("scaler")) {
     CameraDensity d;
     d.scaler.mean = j["scaler"].at("mean").get<std::vector<double>>();

@@ -84,24 +84,17 @@ FeatureVector model_vector(const Model& model, const FeatureVector& features) {
 
 namespace {
 
-size_t gap_index() {
-  static const size_t at = [] {
-    const auto& names = feature_names();
-    return static_cast<size_t>(std::find(names.begin(), names.end(), "surprise.gap.full") - names.begin());
-  }();
-  return at;
-}
-
 CameraOnlyScore camera_only_score(const Model& model, const FeatureVector& filled) {
   CameraOnlyScore c;
   std::vector<double> values(model.feature_index.size());
   for (size_t k = 0; k < values.size(); ++k) values[k] = filled.values[model.feature_index[k]];
-  c.score = model.camera_only->density->score(values, &c.distance);
+  c.density = model.camera_only->density->score(values, &c.distance);
+  c.score = model.camera_only->combine(image_gap(filled.values), c.density);
   if (const auto& tail = model.camera_only->tail; tail && !tail->margins.empty()) {
     c.tail = tail->position(c.score);
     c.unusual = c.tail->p_value <= model.camera_only->unusual;
   }
-  if (gap_index() < filled.values.size()) c.gap = filled.values[gap_index()];
+  c.gap = image_gap(filled.values);
   const auto gaps = window_gaps(filled);
   if (!gaps.empty()) {
     double mean = 0.0;
@@ -125,12 +118,15 @@ std::string unusual_reason(const CameraOnlyScore& c) {
 Score score_camera_only(const Model& model, const FeatureVector& filled, const Thresholds& t) {
   Score s;
   s.camera_only = camera_only_score(model, filled);
-  s.margin = camera_only_margin(s.camera_only->score);
+  s.margin = model.camera_only->margin(s.camera_only->score);
   const double families = static_cast<double>(std::max<size_t>(1, s.camera_only->distance.size()));
+  // Contributions: each family's share of the squared density, and the gap's z-value under "surprise".
   for (const auto& [family, d] : s.camera_only->distance) {
     s.contributions[family] = d * d / families;
     s.distances[family] = d;
   }
+  const CameraOnly& co = *model.camera_only;
+  s.contributions["surprise"] += (co.gap_median - s.camera_only->gap) / co.gap_spread;
   s.p_generated = model.calibration.probability(s.margin);
   s.band = band_of(t, s.p_generated);
   if (s.band == "inconclusive") {

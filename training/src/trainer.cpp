@@ -9,6 +9,7 @@
 #include <numeric>
 #include <optional>
 #include <set>
+#include <tuple>
 
 #include "residue/features/fingerprint.hpp"
 #include "residue/training/batch.hpp"
@@ -283,6 +284,20 @@ std::vector<CalibrationImage> out_of_fold_calibration(const Instances& instances
   return images;
 }
 
+// The median and the interquartile range / 1.349 (a normal law's standard deviation) of `v`, the
+// spread floored at 1e-9. numpy.quantile's linear interpolation.
+std::pair<double, double> robust_location(std::vector<double> v) {
+  if (v.empty()) return {0.0, 1.0};
+  std::sort(v.begin(), v.end());
+  auto q = [&](double p) {
+    const double at = p * static_cast<double>(v.size() - 1);
+    const auto lo = static_cast<size_t>(std::floor(at));
+    const size_t hi = std::min(lo + 1, v.size() - 1);
+    return v[lo] + (at - static_cast<double>(lo)) * (v[hi] - v[lo]);
+  };
+  return {q(0.5), std::max((q(0.75) - q(0.25)) / 1.349, 1e-9)};
+}
+
 // The camera-only density on the model's features (camera_model.hpp), fitted without a generated
 // image: sets model.camera_only (the density on every camera instance, the tail of the camera
 // photos' out-of-fold scores) and returns every instance's out-of-fold score.
@@ -296,21 +311,33 @@ std::vector<double> fit_camera_only(Model& model, const Instances& instances,
       rows[i][c] = instances[i]->features.values[model.feature_index[c]];
   }
   auto fit = fit_camera_density(rows, labels_all, fold_all, k, model.families, settings.jobs);
+  CameraOnly camera;
+  // Robust location and spread of the camera photos' gap and log density, out of fold.
+  std::vector<double> gaps, densities;
+  for (size_t i = 0; i < n; ++i) {
+    if (labels_all[i] != 0) continue;
+    gaps.push_back(image_gap(instances[i]->features.values));
+    densities.push_back(std::log(std::max(fit.out_of_fold[i], 1e-12)));
+  }
+  std::tie(camera.gap_median, camera.gap_spread) = robust_location(gaps);
+  std::tie(camera.density_median, camera.density_spread) = robust_location(densities);
+  std::vector<double> scores(instances.size());
+  for (size_t i = 0; i < instances.size(); ++i)
+    scores[i] = camera.combine(image_gap(instances[i]->features.values), fit.out_of_fold[i]);
   std::vector<CalibrationImage> photos;
   for (size_t i = 0; i < n; ++i) {
     if (labels_all[i] != 0) continue;
     CalibrationImage im;
-    im.margin = fit.out_of_fold[i];
+    im.margin = scores[i];
     im.group = groups_all[i];
     im.sha256 = instances[i]->sha256;
     im.path = instances[i]->file.path;
     photos.push_back(std::move(im));
   }
-  CameraOnly camera;
   camera.density = std::move(fit.density);
   camera.tail = CameraTail::of(photos, "out-of-fold training camera photos", settings.fpr_confidence);
   model.camera_only = std::move(camera);
-  return std::move(fit.out_of_fold);
+  return scores;
 }
 
 // The empirical distribution function of the camera photos' values: the share strictly below x.
@@ -361,7 +388,7 @@ nlohmann::ordered_json camera_only_provenance(const Model& model, const std::vec
     (labels[i] == 1 ? generated_camera_band : camera_camera_band) += 1;
     if (unusual) (labels[i] == 1 ? generated_unusual : camera_unusual) += 1;
   }
-  return {{"method", "ppca-per-family-camera-only"},
+  return {{"method", "coding-surprise-gap-and-ppca-per-family-camera-only"},
           {"alone", metrics_with_generators(evaluate_scores(camera_rank, labels, generators, 2.0))},
           {"larger_camera_rank_with_two_class",
            metrics_with_generators(evaluate_scores(fused, labels, generators, 2.0))},
@@ -418,21 +445,18 @@ Result<TrainOutcome> train_camera_only(const std::vector<PreparedItem>& items,
     model.families.push_back(feature_families()[c]);
   }
   model.camera_pixels = pixels;
-  // The margin is the logarithm of the score (scores spread multiplicatively; a logistic of the
-  // score itself would saturate at 1 for the most unusual images and lose their order).
   auto oof = fit_camera_only(model, instances, labels_all, fold_all, groups_all, k, n, settings);
-  for (double& s : oof) s = camera_only_margin(s);
+  std::tie(model.camera_only->score_median, model.camera_only->score_spread) =
+      robust_location(std::vector<double>(oof.begin(), oof.begin() + static_cast<std::ptrdiff_t>(n)));
+  size_t unusual = 0;  // camera photos out of fold at or below the unusual p-value
+  for (size_t i = 0; i < n; ++i)
+    unusual += model.camera_only->tail->position(oof[i]).p_value <= model.camera_only->unusual;
+  for (double& m : oof) m = model.camera_only->margin(m);
   model.scaler = model.camera_only->density->scaler;
   model.linear.weights.assign(columns.size(), 0.0);
   model.linear.bias = 0.0;
-  std::vector<double> photos(oof.begin(), oof.begin() + static_cast<std::ptrdiff_t>(n));
-  std::sort(photos.begin(), photos.end());
-  auto quantile = [&](double q) {
-    return photos[static_cast<size_t>(std::lround(q * static_cast<double>(n - 1)))];
-  };
-  const double spread = std::max((quantile(0.75) - quantile(0.25)) / 1.349, 1e-6);
-  model.calibration.a = -1.0 / spread;
-  model.calibration.b = quantile(0.5) / spread;
+  model.calibration.a = -1.0;
+  model.calibration.b = 0.0;
   model.training_prior = 0.5;
   std::vector<double> p_all;
   p_all.reserve(oof.size());
@@ -450,9 +474,6 @@ Result<TrainOutcome> train_camera_only(const std::vector<PreparedItem>& items,
                               model.thresholds.likely_generated);
   model.created = utc_now();
   if (model.calibration_set) model.calibration_set->created = model.created;
-  size_t unusual = 0;
-  for (double m : cv.margins)
-    unusual += model.camera_only->tail->position(std::exp(m)).p_value <= model.camera_only->unusual;
   std::vector<std::string> files;
   for (const auto& it : items) files.push_back(training_file_key(it.sha256));
   std::sort(files.begin(), files.end());
@@ -471,13 +492,13 @@ Result<TrainOutcome> train_camera_only(const std::vector<PreparedItem>& items,
         {"instances", "image"},
         {"metrics", report_to_json(cv.report)}}},
       {"camera_only",
-       {{"method", "ppca-per-family-camera-only"},
+       {{"method", "coding-surprise-gap-and-ppca-per-family-camera-only"},
         {"note",
          "No generated image was seen: the model scores how unusual an image is for a camera photo. "
          "p_generated is that score's place among camera photos, not a probability that the image "
          "was generated, and the model never calls an image likely-camera."},
-        {"median_log_score", quantile(0.5)},
-        {"log_score_spread", spread},
+        {"median_score", model.camera_only->score_median},
+        {"score_spread", model.camera_only->score_spread},
         {"camera_unusual_out_of_fold", unusual}}},
       {"training_files", files}};
   stamp_model_id(model);

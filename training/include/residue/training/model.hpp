@@ -80,7 +80,8 @@ FeatureVector model_vector(const Model& model, const FeatureVector& features);
 
 // What the camera-only model says about an image.
 struct CameraOnlyScore {
-  double score = 0.0;                      // sqrt(mean over families of d_f^2)
+  double score = 0.0;                      // the camera-only score (camera_model.hpp)
+  double density = 0.0;                    // sqrt(mean over families of d_f^2)
   std::map<std::string, double> distance;  // d_f per family
   std::optional<TailPosition> tail;        // among the out-of-fold camera photos
   bool unusual = false;                    // tail p-value at or below the model's `unusual`
