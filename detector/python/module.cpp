@@ -15,6 +15,7 @@
 #include <pybind11/pybind11.h>
 #include <pybind11/stl.h>
 
+#include <limits>
 #include <memory>
 #include <string>
 #include <thread>
@@ -24,6 +25,7 @@
 #include "residue/detector/scoring/scan.hpp"
 #include "residue/features/decode.hpp"
 #include "residue/features/extract.hpp"
+#include "residue/features/surprise.hpp"
 #include "residue/training/batch.hpp"
 #include "residue/training/model.hpp"
 
@@ -107,6 +109,12 @@ py::tuple features(const py::object& source, double max_file_mb, std::uint64_t m
   const auto& values = extraction->features.values;
   py::array_t<double> array(static_cast<py::ssize_t>(values.size()));
   std::copy(values.begin(), values.end(), array.mutable_data());
+  // The coding surprise's NLL, expected cost and gap need a model's camera pixel model: NaN here,
+  // as `residue features` prints null.
+  const auto& names = residue::feature_names();
+  for (size_t i = 0; i < names.size(); ++i) {
+    if (residue::is_model_value(names[i])) array.mutable_data()[i] = std::numeric_limits<double>::quiet_NaN();
+  }
   nlohmann::ordered_json facts = residue::features_record(s.path, *extraction);
   facts.erase("features");  // they are the array
   return py::make_tuple(residue::feature_names(), array, to_python(facts));

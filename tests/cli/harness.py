@@ -10,7 +10,7 @@ _counts = {"passed": 0, "failed": 0}
 
 
 # The feature families of the vector (features/src/extract.cpp).
-FAMILIES = {"spectral", "noise", "resampling", "sensor", "texture", "coding"}
+FAMILIES = {"spectral", "noise", "resampling", "sensor", "texture", "coding", "surprise"}
 
 
 def check(condition, what):

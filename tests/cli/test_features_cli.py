@@ -57,7 +57,11 @@ with tempfile.TemporaryDirectory() as tmp:
         if names is None:
             names = list(r.get("features", {}))
         check(list(r.get("features", {})) == names, f"{name} has the same feature names in the same order")
-        check(all(np.isfinite(v) for v in r.get("features", {}).values()), f"{name} values finite")
+        values = r.get("features", {})
+    check(all(np.isfinite(v) for v in values.values() if v is not None), f"{name} values finite")
+    # Only the coding surprise's model values (NLL, expected cost, gap) are null: no model fills them.
+    check(all(k.startswith("surprise.") and not k.startswith("surprise.stats.") for k, v in values.items()
+              if v is None), f"{name}: only model values are null")
     check(by_name["a_coffee.jpg"]["compression_history"]["jpeg_quality"] == 90, "JPEG quality 90 estimated")
     check(by_name["b_astronaut.png"]["compression_history"]["jpeg_quality"] is None, "PNG has no JPEG quality")
     paths = [r["path"] for r in records]

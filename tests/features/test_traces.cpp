@@ -242,10 +242,10 @@ TEST_CASE("chroma planes equal Pillow's JFIF YCbCr (full-range ITU-R BT.601)") {
 
 TEST_CASE("the vector holds every family, and the schema names the extractor version") {
   const auto& families = feature_families();
-  for (const char* f : {"spectral", "noise", "resampling", "sensor", "texture", "coding"}) {
+  for (const char* f : {"spectral", "noise", "resampling", "sensor", "texture", "coding", "surprise"}) {
     CAPTURE(f);
     CHECK(std::count(families.begin(), families.end(), f) > 0);
   }
-  CHECK(kExtractorVersion == "2.0.0");
+  CHECK(kExtractorVersion == "3.0.0");
   CHECK(feature_names().size() == families.size());
 }
