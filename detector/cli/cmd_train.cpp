@@ -186,8 +186,8 @@ int finish_camera_only(const Model& model, const CrossValidation& cv, const std:
   std::printf(
       "  Camera-only score of the camera photos, out of fold: median %.3f, robust spread %.3f; %d are "
       "unusual (conformal p-value <= %s).\n",
-      c.value("median_score", 0.0), c.value("score_spread", 0.0),
-      c.value("camera_unusual_out_of_fold", 0), percent_text(model.camera_only->unusual).c_str());
+      c.value("median_score", 0.0), c.value("score_spread", 0.0), c.value("camera_unusual_out_of_fold", 0),
+      percent_text(model.camera_only->unusual).c_str());
   std::cout << calibration_summary(model);
   std::cout << "  " << c["note"].get<std::string>() << "\n";
   if (auto saved = save_model(model, output); !saved) {

@@ -26,14 +26,14 @@ inline int med(int a, int b, int c) {
 const std::array<int, 511>& abs_regions() {
   static const std::array<int, 511> t = [] {
     std::array<int, 511> out{};
-    for (int d = -255; d <= 255; ++d) out[static_cast<size_t>(d + 255)] = std::abs(jpegls_gradient_region(d));
+    for (int d = -255; d <= 255; ++d) out[static_cast<size_t>(d) + 255] = std::abs(jpegls_gradient_region(d));
     return out;
   }();
   return t;
 }
 
 inline int abs_region(int d) {
-  return d >= -255 && d <= 255 ? abs_regions()[static_cast<size_t>(d + 255)]
+  return d >= -255 && d <= 255 ? abs_regions()[static_cast<size_t>(d) + 255]
                                : std::abs(jpegls_gradient_region(d));
 }
 
@@ -148,24 +148,26 @@ CameraPixelModel fit_camera_pixels(const std::vector<const double*>& rows) {
 }
 
 std::array<double, kSurpriseDerived> surprise_values(const CameraPixelModel& model, const double* stats) {
+  constexpr size_t kLevels = kSurpriseLevels;
+  constexpr size_t kClasses = kSurpriseClasses;
   std::array<double, kSurpriseDerived> out{};
-  for (size_t level = 0; level < kSurpriseLevels; ++level) {
+  for (size_t level = 0; level < kLevels; ++level) {
     double nll = 0.0;
     double expected = 0.0;
-    for (size_t c = 0; c < kSurpriseClasses; ++c) {
+    for (size_t c = 0; c < kClasses; ++c) {
       const double t = model.theta[level][c];
       const double a = -std::log2((1.0 - t) / (1.0 + t));
       const double b = -std::log2(t);
-      const double f = stats[2 * (level * kSurpriseClasses + c)];
-      const double g = stats[2 * (level * kSurpriseClasses + c) + 1];
+      const double f = stats[2 * (level * kClasses + c)];
+      const double g = stats[2 * (level * kClasses + c) + 1];
       nll += f * a + g * b;
       expected += f * (a + b * tsgd_mean_abs(t));
     }
     out[level] = nll;
-    out[kSurpriseLevels + level] = expected;
-    out[2 * kSurpriseLevels + level] = nll - expected;
+    out[kLevels + level] = expected;
+    out[2 * kLevels + level] = nll - expected;
   }
-  out[3 * kSurpriseLevels] = (out[3 * kSurpriseLevels - 1] - out[2 * kSurpriseLevels]) / 2.0;
+  out[3 * kLevels] = (out[3 * kLevels - 1] - out[2 * kLevels]) / 2.0;
   return out;
 }
 

@@ -83,6 +83,9 @@ double gap_standard_error(const CameraPixelModel& model, const ClassSums& sums) 
   return std::sqrt(var) / total;
 }
 
+constexpr size_t kGapFull =
+    2 * static_cast<size_t>(kSurpriseLevels);  // surprise.gap.full among the derived values
+
 CameraPixelModel example_model() {
   // Mean |r| per class rising with activity, as camera photos show (values of our choosing).
   const double m[kSurpriseClasses] = {0.6, 1.0, 1.5, 2.2, 3.0, 4.0, 5.5, 7.0, 12.0};
@@ -192,8 +195,9 @@ TEST_CASE("surprise: entropy and mean of the two-sided geometric law against sci
   }
 }
 
-TEST_CASE("surprise: an image drawn from the camera model has a gap of zero within its standard error; "
-          "another law does not") {
+TEST_CASE(
+    "surprise: an image drawn from the camera model has a gap of zero within its standard error; "
+    "another law does not") {
   const CameraPixelModel model = example_model();
   std::mt19937 rng(11);
   const int n = 256;
@@ -201,7 +205,7 @@ TEST_CASE("surprise: an image drawn from the camera model has a gap of zero with
   for (int trial = 0; trial < 6; ++trial) {
     ClassSums sums;
     const auto row = full_scale_stats(draw_image(model, n, rng), n, &sums);
-    const double gap = surprise_values(model, row.data())[2 * kSurpriseLevels];
+    const double gap = surprise_values(model, row.data())[kGapFull];
     const double se = gap_standard_error(model, sums);
     CAPTURE(gap);
     CAPTURE(se);
@@ -213,7 +217,7 @@ TEST_CASE("surprise: an image drawn from the camera model has a gap of zero with
   for (const double scale : {1.4, 0.6}) {
     ClassSums sums;
     const auto row = full_scale_stats(draw_image(model, n, rng, scale), n, &sums);
-    const double gap = surprise_values(model, row.data())[2 * kSurpriseLevels];
+    const double gap = surprise_values(model, row.data())[kGapFull];
     const double se = gap_standard_error(model, sums);
     CAPTURE(scale);
     CAPTURE(gap);
@@ -225,10 +229,10 @@ TEST_CASE("surprise: an image drawn from the camera model has a gap of zero with
 TEST_CASE("surprise: fitting on drawn images recovers the model, and derived values are linear") {
   const CameraPixelModel model = example_model();
   std::mt19937 rng(3);
-  std::vector<std::vector<double>> rows;
-  for (int i = 0; i < 4; ++i) rows.push_back(full_scale_stats(draw_image(model, 128, rng), 128));
-  std::vector<const double*> pointers;
-  for (const auto& r : rows) pointers.push_back(r.data());
+  std::vector<std::vector<double>> rows(4);
+  for (auto& r : rows) r = full_scale_stats(draw_image(model, 128, rng), 128);
+  std::vector<const double*> pointers(rows.size());
+  for (size_t i = 0; i < rows.size(); ++i) pointers[i] = rows[i].data();
   const CameraPixelModel fitted = fit_camera_pixels(pointers);
   CHECK(fitted.images == 4);
   // Classes with a few thousand pixels recover their mean |r| within 5 %; a drawn image leaves the
@@ -267,7 +271,8 @@ TEST_CASE("surprise: the family in the vector: statistics from extraction, model
   const auto& v = extraction->features.values;
   for (int level = 0; level < kSurpriseLevels; ++level) {
     double share = 0.0;
-    for (int c = 0; c < kSurpriseClasses; ++c) share += v[at + 2 * static_cast<size_t>(level * kSurpriseClasses + c)];
+    for (int c = 0; c < kSurpriseClasses; ++c)
+      share += v[at + 2 * static_cast<size_t>(level * kSurpriseClasses + c)];
     CHECK(share == doctest::Approx(1.0).epsilon(1e-12));  // every pixel falls in one class
   }
   for (size_t k = at + kSurpriseStats; k < names.size(); ++k) CHECK(v[k] == 0.0);

@@ -43,8 +43,9 @@ DensityRows simulated_rows(size_t n, double shift, unsigned seed) {
 
 }  // namespace
 
-TEST_CASE("camera-only density: its score is the root mean square of the per-family PPCA distances, out "
-          "of fold, and no generated image moves it") {
+TEST_CASE(
+    "camera-only density: its score is the root mean square of the per-family PPCA distances, out "
+    "of fold, and no generated image moves it") {
   DensityRows r = simulated_rows(240, 3.0, 7);
   const auto fit = fit_camera_density(r.rows, r.labels, r.fold, 3, r.families, 2);
   REQUIRE(fit.density.families.size() == 2);
@@ -117,10 +118,10 @@ TEST_CASE("camera-only training: a working model from camera photos alone") {
     CHECK(s.margin == doctest::Approx(std::asinh((s.camera_only->score - co.score_median) / co.score_spread))
                           .epsilon(1e-12));
     CHECK(s.p_generated == doctest::Approx(1.0 / (1.0 + std::exp(-s.margin))).epsilon(1e-12));
-    CHECK(s.camera_only->score == doctest::Approx((co.gap_median - s.camera_only->gap) / co.gap_spread +
-                                                  (std::log(s.camera_only->density) - co.density_median) /
-                                                      co.density_spread)
-                                      .epsilon(1e-12));
+    CHECK(s.camera_only->score ==
+          doctest::Approx((co.gap_median - s.camera_only->gap) / co.gap_spread +
+                          (std::log(s.camera_only->density) - co.density_median) / co.density_spread)
+              .epsilon(1e-12));
     p.push_back(s.p_generated);
     y.push_back(it.file.label == Label::kGenerated ? 1 : 0);
   }
@@ -135,7 +136,8 @@ TEST_CASE("camera-only training: a working model from camera photos alone") {
   CHECK_FALSE(model_from_json(broken));
 }
 
-TEST_CASE("a two-class model fills the surprise values and says when an image is unusual for a camera photo") {
+TEST_CASE(
+    "a two-class model fills the surprise values and says when an image is unusual for a camera photo") {
   const auto items = test::simulated_items(150, 3, 5, 2.5);
   TrainSettings settings;
   settings.augment = Augment::kNone;

@@ -195,8 +195,8 @@ CameraOnly camera_only_from_json(const nlohmann::json& j) {
   c.density_spread = j.at("log_density_spread");
   c.score_median = j.at("score_median");
   c.score_spread = j.at("score_spread");
-  if (!(c.gap_spread > 0) || !(c.density_spread > 0) || !(c.score_spread > 0) || !std::isfinite(c.score_median) || !std::isfinite(c.gap_median) ||
-      !std::isfinite(c.density_median))
+  if (!(c.gap_spread > 0) || !(c.density_spread > 0) || !(c.score_spread > 0) ||
+      !std::isfinite(c.score_median) || !std::isfinite(c.gap_median) || !std::isfinite(c.density_median))
     throw nlohmann::json::other_error::create(501, "camera-only spreads must be positive", nullptr);
   if (j.contains("scaler")) {
     CameraDensity d;

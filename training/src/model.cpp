@@ -142,9 +142,9 @@ Score score_camera_only(const Model& model, const FeatureVector& filled, const T
 
 }  // namespace
 
-Score score(const Model& model, const FeatureVector& unfilled, std::optional<double> prior,
+Score score(const Model& model, const FeatureVector& given, std::optional<double> prior,
             const ProcessingEvidence* processing, const Thresholds* thresholds) {
-  const FeatureVector features = model_vector(model, unfilled);
+  const FeatureVector features = model_vector(model, given);
   const Thresholds& t = thresholds != nullptr ? *thresholds : model.thresholds;
   const bool has_density = model.camera_only && model.camera_only->density;
   if (model.kind == "camera-only" && has_density) return score_camera_only(model, features, t);

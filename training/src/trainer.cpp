@@ -475,6 +475,7 @@ Result<TrainOutcome> train_camera_only(const std::vector<PreparedItem>& items,
   model.created = utc_now();
   if (model.calibration_set) model.calibration_set->created = model.created;
   std::vector<std::string> files;
+  files.reserve(items.size());
   for (const auto& it : items) files.push_back(training_file_key(it.sha256));
   std::sort(files.begin(), files.end());
   model.provenance = {

@@ -65,9 +65,12 @@ struct CameraOnly {
   // unusual images (a logistic of the score itself rounds them all to 1).
   double score_median = 0.0;
   double score_spread = 1.0;
-  [[nodiscard]] double margin(double score) const { return std::asinh((score - score_median) / score_spread); }
+  [[nodiscard]] double margin(double score) const {
+    return std::asinh((score - score_median) / score_spread);
+  }
   [[nodiscard]] double combine(double gap, double density) const {
-    return (gap_median - gap) / gap_spread + (std::log(std::max(density, 1e-12)) - density_median) / density_spread;
+    return (gap_median - gap) / gap_spread +
+           (std::log(std::max(density, 1e-12)) - density_median) / density_spread;
   }
   std::optional<CameraTail> tail;  // out-of-fold camera photos (originals)
   // At or below this conformal p-value a record is "unusual for a camera photo" (a reason, when the

@@ -18,8 +18,8 @@
 
 #include "residue/features/extract.hpp"
 #include "residue/training/applicability.hpp"
-#include "residue/training/camera_model.hpp"
 #include "residue/training/calibration.hpp"
+#include "residue/training/camera_model.hpp"
 #include "residue/training/conformal.hpp"
 #include "residue/training/drift.hpp"
 #include "residue/training/linear.hpp"
@@ -111,12 +111,14 @@ struct Score {
 double pooled_margin(const std::vector<double>& window_margins, const std::string& pooling,
                      std::vector<size_t>* chosen = nullptr);
 
-// Scores a vector. A window-level model pools its windows' margins (`features.windows`; without
+// Scores a vector (`given`, its surprise values filled by the model first: model_vector; a
+// camera-only model scores it by its camera-only score). A window-level model pools its windows'
+// margins (`features.windows`; without
 // them it scores the pooled vector, which equals mean pooling for every non-peak value); the
 // contributions are then those of the averaged windows, exactly. The applicability check always
 // looks at the image's vector. With `processing` (the file's evidence), processing the training data never
 // showed also makes the band "inconclusive". `thresholds` overrides the model's.
-Score score(const Model& model, const FeatureVector& features, std::optional<double> prior = std::nullopt,
+Score score(const Model& model, const FeatureVector& given, std::optional<double> prior = std::nullopt,
             const ProcessingEvidence* processing = nullptr, const Thresholds* thresholds = nullptr);
 std::string band_of(const Thresholds& thresholds, double p);
 
