@@ -75,7 +75,7 @@ def check_explain_route(base, camera, broken):
                      "likely-camera" if p < t["likely_camera"] else "inconclusive")
     check(explained["band"] == expected_band or explained["reasons"],
           "the band follows from p and the thresholds returned (or reasons say why inconclusive)")
-    for name in ("preview", "noise_residual", "residual_spectrum", "resampling_pmap_spectrum"):
+    for name in ("preview", "noise_residual", "residual_spectrum", "resampling_pmap_spectrum", "coding_surprise"):
         uri = explained["pictures"][name]
         png = base64.b64decode(uri.split(",", 1)[1])
         with tempfile.NamedTemporaryFile(suffix=".png") as f:
@@ -149,8 +149,8 @@ def check_shown_score(browser, base, path, what):
         check(abs(shown - value) < 0.0005 and cells[1].text == ("towards generated" if value >= 0 else "towards camera"),
               f"{what}: family {row.get_attribute('data-family')} shows its value and direction in words")
     images = card.find_elements(By.CSS_SELECTOR, ".pictures img")
-    check(len(images) == 3 and all(i.get_attribute("alt") for i in images),
-          f"{what}: three explanation pictures, each with a text alternative")
+    check(len(images) == 4 and all(i.get_attribute("alt") for i in images),
+          f"{what}: four explanation pictures (the coding-surprise map among them), each with a text alternative")
     loaded = browser.execute_script(
         "return Array.from(arguments[0].querySelectorAll('img')).every(i => i.complete && i.naturalWidth > 0);", card)
     check(loaded, f"{what}: every picture decodes in the browser")
