@@ -377,7 +377,9 @@ void add_train_command(CLI::App& app, int& exit_code) {
       ->capture_default_str();
   add_group_by_option(*cmd, args->group_by, "what must stay on one side of a split");
   cmd->add_option("--only", args->only,
-                  "use only features whose names start with these prefixes (e.g. spectral.)");
+                  "use only features whose names start with these prefixes (e.g. spectral.); by default every "
+                  "feature but the coding surprise's statistics (surprise.stats.), which the model reads through "
+                  "its camera pixel model");
   cmd->add_option(
          "--augment", args->augment,
          "also train on processed copies of every image, both classes alike (drawn from each file's "

@@ -212,7 +212,9 @@ Result<std::vector<size_t>> select_features(const std::vector<std::string>& pref
   const auto& names = feature_names();
   std::vector<size_t> index;
   for (size_t i = 0; i < names.size(); ++i) {
-    bool keep = prefixes.empty();
+    // By default every value but the coding surprise's statistics: they are the camera pixel
+    // model's input, and the model learns from what it makes of them (docs/quality.md, ablation).
+    bool keep = prefixes.empty() && !names[i].starts_with(kSurpriseStatsPrefix);
     for (const auto& p : prefixes) keep = keep || names[i].starts_with(p);
     if (keep) index.push_back(i);
   }
