@@ -39,6 +39,26 @@ inline int abs_region(int d) {
 
 }  // namespace
 
+namespace {
+
+// Calls fn(index, class, residual) for every pixel of an n x n plane with all four causal
+// neighbours (rows 1.., columns 1..n-2), in raster order.
+template <typename Fn>
+inline void for_each_residual(const std::vector<int>& samples, int n, Fn&& fn) {
+  if (n < 3) return;
+  for (int y = 1; y < n; ++y) {
+    const int* row = samples.data() + static_cast<size_t>(y) * n;
+    const int* up = row - n;
+    for (int x = 1; x + 1 < n; ++x) {
+      const int a = row[x - 1], b = up[x], c = up[x - 1], d = up[x + 1];
+      fn(static_cast<size_t>(y) * n + x, static_cast<size_t>(surprise_class(a, b, c, d)),
+         reduced_residual(row[x], med(a, b, c)));
+    }
+  }
+}
+
+}  // namespace
+
 int surprise_class(int a, int b, int c, int d) {
   return std::min(abs_region(d - b) + abs_region(b - c) + abs_region(c - a), kSurpriseClasses - 1);
 }
@@ -47,19 +67,12 @@ int reduced_residual(int x, int prediction) { return ((x - prediction + 128) & 2
 
 RESIDUE_VECTOR_CLONES ClassSums class_sums(const std::vector<int>& samples, int n) {
   ClassSums out;
-  if (n < 3) return out;
   std::array<long long, kSurpriseClasses> pixels{};
   std::array<long long, kSurpriseClasses> abs_sum{};
-  for (int y = 1; y < n; ++y) {
-    const int* row = samples.data() + static_cast<size_t>(y) * n;
-    const int* up = row - n;
-    for (int x = 1; x + 1 < n; ++x) {
-      const int a = row[x - 1], b = up[x], c = up[x - 1], d = up[x + 1];
-      const auto k = static_cast<size_t>(surprise_class(a, b, c, d));
-      pixels[k] += 1;
-      abs_sum[k] += std::abs(reduced_residual(row[x], med(a, b, c)));
-    }
-  }
+  for_each_residual(samples, n, [&](size_t, size_t k, int r) {
+    pixels[k] += 1;
+    abs_sum[k] += std::abs(r);
+  });
   for (size_t k = 0; k < pixels.size(); ++k) {
     out.pixels[k] = static_cast<double>(pixels[k]);
     out.abs_sum[k] = static_cast<double>(abs_sum[k]);
@@ -175,18 +188,10 @@ std::vector<float> surprise_map(const CameraPixelModel& model, const std::vector
   std::vector<int> samples(luma.size());
   for (size_t i = 0; i < samples.size(); ++i) samples[i] = round_half_away(luma[i]);
   std::vector<float> out(luma.size(), 0.0f);
-  for (int y = 1; y < n; ++y) {
-    const int* row = samples.data() + static_cast<size_t>(y) * n;
-    const int* up = row - n;
-    for (int x = 1; x + 1 < n; ++x) {
-      const int a = row[x - 1], b = up[x], c = up[x - 1], d = up[x + 1];
-      const auto k = static_cast<size_t>(surprise_class(a, b, c, d));
-      const double t = model.theta[0][k];
-      const int r = reduced_residual(row[x], med(a, b, c));
-      out[static_cast<size_t>(y) * n + x] =
-          static_cast<float>(-std::log2(t) * (std::abs(r) - tsgd_mean_abs(t)));
-    }
-  }
+  for_each_residual(samples, n, [&](size_t at, size_t k, int r) {
+    const double t = model.theta[0][k];
+    out[at] = static_cast<float>(-std::log2(t) * (std::abs(r) - tsgd_mean_abs(t)));
+  });
   return out;
 }
 

@@ -5,7 +5,10 @@
 #include <boost/math/special_functions/beta.hpp>
 #include <cmath>
 #include <cstdio>
+#include <exception>
 #include <set>
+
+#include "residue/training/batch.hpp"
 
 namespace residue {
 
@@ -343,6 +346,51 @@ FamilyReference fit_family_reference(const std::string& family, const std::vecto
   r.residual_variance =
       values.size() > k ? std::max(rest / static_cast<double>(values.size() - k), floor) : floor;
   return r;
+}
+
+FamilyFits fit_families_out_of_fold(const Matrix& z, const std::vector<std::string>& families,
+                                    const std::vector<std::vector<size_t>>& fit_rows,
+                                    const std::vector<std::vector<size_t>>& score_rows, int jobs) {
+  std::map<std::string, std::vector<size_t>> columns;
+  for (size_t c = 0; c < families.size(); ++c) columns[families[c]].push_back(c);
+  const std::vector<std::pair<std::string, std::vector<size_t>>> list(columns.begin(), columns.end());
+  FamilyFits out;
+  out.references.resize(list.size());
+  out.out_of_fold.assign(list.size(), std::vector<double>(z.rows, 0.0));
+  auto fit_family = [&](size_t k) {
+    const auto& [family, cols] = list[k];
+    std::vector<FamilyMoments> moments;
+    moments.reserve(fit_rows.size());
+    for (const auto& rows : fit_rows) moments.push_back(FamilyMoments::of(z, cols, rows));
+    FamilyMoments every;
+    for (const auto& m : moments) every += m;
+    for (size_t f = 0; f < fit_rows.size(); ++f) {
+      if (score_rows[f].empty() || every.count - moments[f].count < 3) continue;
+      FamilyMoments train;
+      for (size_t g = 0; g < moments.size(); ++g) {
+        if (g != f) train += moments[g];
+      }
+      const auto d = fit_family_reference(family, cols, train).distances(z, score_rows[f]);
+      for (size_t r = 0; r < d.size(); ++r) out.out_of_fold[k][score_rows[f][r]] = d[r];
+    }
+    out.references[k] = fit_family_reference(family, cols, every);
+  };
+  std::exception_ptr failure;
+  ordered_parallel<std::exception_ptr>(
+      list.size(), jobs,
+      [&](size_t k) -> std::exception_ptr {
+        try {
+          fit_family(k);
+          return nullptr;
+        } catch (...) {
+          return std::current_exception();
+        }
+      },
+      [&](size_t, std::exception_ptr& e) {
+        if (e && !failure) failure = e;
+      });
+  if (failure) std::rethrow_exception(failure);
+  return out;
 }
 
 std::vector<double> joint_limits(const std::vector<std::vector<double>>& distances, double coverage) {

@@ -84,8 +84,6 @@ CameraDensityFit fit_camera_density(const std::vector<std::vector<double>>& rows
   out.density.scaler = Scaler::fit(camera, all_columns);
   Matrix z{rows.size(), d, std::vector<double>(rows.size() * d)};
   for (size_t i = 0; i < rows.size(); ++i) out.density.scaler.apply_row(rows[i].data(), z.row(i));
-  std::map<std::string, std::vector<size_t>> columns;
-  for (size_t c = 0; c < d; ++c) columns[families[c]].push_back(c);
   // Per fold: its camera rows (what a fit may see) and all its rows (what the fit without it scores).
   std::vector<std::vector<size_t>> camera_rows(static_cast<size_t>(folds));
   std::vector<std::vector<size_t>> fold_rows(static_cast<size_t>(folds));
@@ -94,45 +92,14 @@ CameraDensityFit fit_camera_density(const std::vector<std::vector<double>>& rows
     fold_rows[static_cast<size_t>(fold[i])].push_back(i);
     if (labels[i] == 0) camera_rows[static_cast<size_t>(fold[i])].push_back(i);
   }
-  std::vector<std::pair<std::string, std::vector<size_t>>> list(columns.begin(), columns.end());
-  std::vector<std::vector<double>> squared(list.size(), std::vector<double>(rows.size(), 0.0));
-  std::vector<FamilyReference> references(list.size());
-  std::exception_ptr failure;
-  ordered_parallel<std::exception_ptr>(
-      list.size(), jobs,
-      [&](size_t k) -> std::exception_ptr {
-        try {
-          const auto& [family, cols] = list[k];
-          std::vector<FamilyMoments> moments;
-          moments.reserve(camera_rows.size());
-          for (const auto& r : camera_rows) moments.push_back(FamilyMoments::of(z, cols, r));
-          FamilyMoments every;
-          for (const auto& m : moments) every += m;
-          for (size_t f = 0; f < fold_rows.size(); ++f) {
-            if (fold_rows[f].empty() || every.count - moments[f].count < 3) continue;
-            FamilyMoments train;
-            for (size_t g = 0; g < moments.size(); ++g) {
-              if (g != f) train += moments[g];
-            }
-            const auto dist = fit_family_reference(family, cols, train).distances(z, fold_rows[f]);
-            for (size_t r = 0; r < dist.size(); ++r) squared[k][fold_rows[f][r]] = dist[r] * dist[r];
-          }
-          references[k] = fit_family_reference(family, cols, every);
-          return nullptr;
-        } catch (...) {
-          return std::current_exception();
-        }
-      },
-      [&](size_t, std::exception_ptr& e) {
-        if (e && !failure) failure = e;
-      });
-  if (failure) std::rethrow_exception(failure);
-  out.density.families = std::move(references);
+  auto fits = fit_families_out_of_fold(z, families, camera_rows, fold_rows, jobs);
+  out.density.families = std::move(fits.references);
   out.out_of_fold.assign(rows.size(), 0.0);
   for (size_t i = 0; i < rows.size(); ++i) {
     double sum = 0.0;
-    for (const auto& s : squared) sum += s[i];
-    out.out_of_fold[i] = list.empty() ? 0.0 : std::sqrt(sum / static_cast<double>(list.size()));
+    for (const auto& d : fits.out_of_fold) sum += d[i] * d[i];
+    out.out_of_fold[i] =
+        fits.out_of_fold.empty() ? 0.0 : std::sqrt(sum / static_cast<double>(fits.out_of_fold.size()));
   }
   return out;
 }

@@ -102,54 +102,14 @@ Applicability fit_applicability(const Instances& items, const std::vector<int>& 
     for (size_t c = 0; c < raw.size(); ++c) raw[c] = items[i]->features.values[model.feature_index[c]];
     model.scaler.apply_row(raw.data(), z.row(i));
   }
-  std::map<std::string, std::vector<size_t>> columns;
-  for (size_t c = 0; c < model.families.size(); ++c) columns[model.families[c]].push_back(c);
-  // Per family and fold, the moments of the fold's rows once; a fold's reference is fitted on the
-  // sum of the other folds' moments and measures the fold's rows, the final one on all of them.
+  // Per family, references fitted on the other folds measure each fold's rows; the final ones on all.
   std::vector<std::vector<size_t>> fold_rows(static_cast<size_t>(folds));
   for (size_t i = 0; i < items.size(); ++i) {
     if (fold[i] >= 0 && fold[i] < folds) fold_rows[static_cast<size_t>(fold[i])].push_back(i);
   }
-  std::vector<std::vector<double>> oof(columns.size(), std::vector<double>(items.size(), 0.0));
-  std::vector<FamilyReference> references(columns.size());
-  std::vector<std::pair<const std::string*, const std::vector<size_t>*>> families;
-  families.reserve(columns.size());
-  for (const auto& [family, cols] : columns) families.emplace_back(&family, &cols);
-  auto fit_family = [&](size_t k) {
-    const auto& [family, cols] = families[k];
-    std::vector<FamilyMoments> moments;
-    moments.reserve(fold_rows.size());
-    for (const auto& rows : fold_rows) moments.push_back(FamilyMoments::of(z, *cols, rows));
-    FamilyMoments all;
-    for (const auto& m : moments) all += m;
-    for (size_t f = 0; f < fold_rows.size(); ++f) {
-      if (fold_rows[f].empty() || all.count - moments[f].count < 3) continue;
-      FamilyMoments train;
-      for (size_t g = 0; g < moments.size(); ++g) {
-        if (g != f) train += moments[g];
-      }
-      const auto d = fit_family_reference(*family, *cols, train).distances(z, fold_rows[f]);
-      for (size_t r = 0; r < d.size(); ++r) oof[k][fold_rows[f][r]] = d[r];
-    }
-    references[k] = fit_family_reference(*family, *cols, all);
-  };
-  // Families are independent: spread over `jobs` threads; an exception (out of memory) is thrown
-  // again here, in the caller's thread.
-  std::exception_ptr failure;
-  ordered_parallel<std::exception_ptr>(
-      families.size(), jobs,
-      [&](size_t k) -> std::exception_ptr {
-        try {
-          fit_family(k);
-          return nullptr;
-        } catch (...) {
-          return std::current_exception();
-        }
-      },
-      [&](size_t, std::exception_ptr& e) {
-        if (e && !failure) failure = e;
-      });
-  if (failure) std::rethrow_exception(failure);
+  auto fits = fit_families_out_of_fold(z, model.families, fold_rows, fold_rows, jobs);
+  auto& references = fits.references;
+  const auto& oof = fits.out_of_fold;
   const auto limits = joint_limits(oof, coverage);
   Applicability a;
   a.coverage = coverage;
@@ -282,6 +242,33 @@ std::vector<CalibrationImage> out_of_fold_calibration(const Instances& instances
     im.path = instances[i]->file.path;
   }
   return images;
+}
+
+// The grouped folds of the images (cv.groups, cv.fold) and of every instance, the copies in their
+// image's fold and group.
+struct FoldPlan {
+  int k = 2;
+  std::vector<int> fold_all;    // per instance: the images, then their copies
+  std::vector<int> groups_all;  // the same for groups
+};
+
+Result<FoldPlan> plan_folds(const std::vector<PreparedItem>& items, const std::vector<PreparedItem>& copies,
+                            const std::vector<int>& labels, const TrainSettings& settings,
+                            CrossValidation& cv) {
+  FoldPlan plan;
+  const auto groups = assign_groups(items, settings.group_by);
+  cv.groups = static_cast<size_t>(*std::max_element(groups.begin(), groups.end())) + 1;
+  if (cv.groups < 2)
+    return make_error(ErrorCode::kTooSmall, "all images fall into one group: cannot cross-validate");
+  plan.k = std::clamp(settings.folds, 2, static_cast<int>(cv.groups));
+  cv.fold = grouped_folds(groups, labels, plan.k);
+  plan.fold_all = cv.fold;
+  plan.groups_all = groups;
+  for (const auto& c : copies) {
+    plan.fold_all.push_back(cv.fold[c.source]);
+    plan.groups_all.push_back(groups[c.source]);
+  }
+  return plan;
 }
 
 // The median and the interquartile range / 1.349 (a normal law's standard deviation) of `v`, the
@@ -423,18 +410,11 @@ Result<TrainOutcome> train_camera_only(const std::vector<PreparedItem>& items,
   CrossValidation& cv = out.cv;
   const std::vector<int> labels(n, 0);
   const std::vector<int> labels_all(instances.size(), 0);
-  const auto groups = assign_groups(items, settings.group_by);
-  cv.groups = static_cast<size_t>(*std::max_element(groups.begin(), groups.end())) + 1;
-  if (cv.groups < 2)
-    return make_error(ErrorCode::kTooSmall, "all images fall into one group: cannot cross-validate");
-  const int k = std::clamp(settings.folds, 2, static_cast<int>(cv.groups));
-  cv.fold = grouped_folds(groups, labels, k);
-  std::vector<int> fold_all = cv.fold;
-  std::vector<int> groups_all = groups;
-  for (const auto& c : copies) {
-    fold_all.push_back(cv.fold[c.source]);
-    groups_all.push_back(groups[c.source]);
-  }
+  auto plan = plan_folds(items, copies, labels, settings, cv);
+  if (!plan) return plan.error();
+  const int k = plan->k;
+  const std::vector<int>& fold_all = plan->fold_all;
+  const std::vector<int>& groups_all = plan->groups_all;
   Model& model = out.model;
   model.kind = "camera-only";
   model.extractor_version = std::string(kExtractorVersion);
@@ -646,18 +626,11 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& given_items, c
 
   TrainOutcome out;
   CrossValidation& cv = out.cv;
-  const auto groups = assign_groups(items, settings.group_by);
-  cv.groups = static_cast<size_t>(*std::max_element(groups.begin(), groups.end())) + 1;
-  const int k = std::clamp(settings.folds, 2, static_cast<int>(cv.groups));
-  if (cv.groups < 2)
-    return make_error(ErrorCode::kTooSmall, "all images fall into one group: cannot cross-validate");
-  cv.fold = grouped_folds(groups, labels, k);
-  std::vector<int> fold_all = cv.fold;
-  std::vector<int> groups_all = groups;
-  for (const auto& c : copies) {
-    fold_all.push_back(cv.fold[c.source]);
-    groups_all.push_back(groups[c.source]);
-  }
+  auto plan = plan_folds(items, copies, labels, settings, cv);
+  if (!plan) return plan.error();
+  const int k = plan->k;
+  const std::vector<int>& fold_all = plan->fold_all;
+  const std::vector<int>& groups_all = plan->groups_all;
   std::vector<double> c_grid = settings.c_grid;
   if (settings.large_set > 0 && instances.size() > settings.large_set) {
     std::erase_if(c_grid, [](double c) { return c > 1.0; });

@@ -109,6 +109,19 @@ FamilyReference fit_family_reference(const std::string& family, const std::vecto
 FamilyReference fit_family_reference(const std::string& family, const std::vector<size_t>& columns,
                                      const FamilyMoments& moments, double explained = 0.95);
 
+// Per family (columns of z, grouped by family name, in name order): the reference fitted on the
+// rows `fit_rows` of every fold together, and the distances out of fold: row r of `score_rows[f]`
+// measured by the reference fitted on the other folds' `fit_rows` (no distance, 0, when those hold
+// fewer than 3 rows). The moments of each fold are computed once and added (FamilyMoments).
+// Families run on `jobs` threads; an exception in one is thrown again in the caller's thread.
+struct FamilyFits {
+  std::vector<FamilyReference> references;
+  std::vector<std::vector<double>> out_of_fold;  // per family, per row of z
+};
+FamilyFits fit_families_out_of_fold(const Matrix& z, const std::vector<std::string>& families,
+                                    const std::vector<std::vector<size_t>>& fit_rows,
+                                    const std::vector<std::vector<size_t>>& score_rows, int jobs);
+
 // The common quantile level q at which per-family limits (the q-quantile of each family's
 // out-of-fold distances, linear interpolation as numpy.quantile) let `coverage` of the images
 // pass every family; returns the limits (one per family, in the order given).
