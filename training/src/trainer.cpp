@@ -244,6 +244,15 @@ std::vector<CalibrationImage> out_of_fold_calibration(const Instances& instances
   return images;
 }
 
+// Provenance's "training_files": each image's training_file_key, sorted.
+std::vector<std::string> training_file_keys(const std::vector<PreparedItem>& items) {
+  std::vector<std::string> files;
+  files.reserve(items.size());
+  for (const auto& it : items) files.push_back(training_file_key(it.sha256));
+  std::sort(files.begin(), files.end());
+  return files;
+}
+
 // The grouped folds of the images (cv.groups, cv.fold) and of every instance, the copies in their
 // image's fold and group.
 struct FoldPlan {
@@ -454,10 +463,7 @@ Result<TrainOutcome> train_camera_only(const std::vector<PreparedItem>& items,
                               model.thresholds.likely_generated);
   model.created = utc_now();
   if (model.calibration_set) model.calibration_set->created = model.created;
-  std::vector<std::string> files;
-  files.reserve(items.size());
-  for (const auto& it : items) files.push_back(training_file_key(it.sha256));
-  std::sort(files.begin(), files.end());
+  const std::vector<std::string> files = training_file_keys(items);
   model.provenance = {
       {"counts",
        {{"camera", n},
@@ -729,10 +735,7 @@ Result<TrainOutcome> train_model(const std::vector<PreparedItem>& given_items, c
                     {"solver_passes", cv.solver_by_c[ci].passes},
                     {"solver_converged", cv.solver_by_c[ci].converged}});
   }
-  std::vector<std::string> files;
-  files.reserve(items.size());
-  for (const auto& it : items) files.push_back(training_file_key(it.sha256));
-  std::sort(files.begin(), files.end());
+  const std::vector<std::string> files = training_file_keys(items);
   model.provenance = {
       {"counts", counts},
       {"settings", settings_to_json(settings)},
