@@ -125,8 +125,9 @@ CameraPixelModel camera_pixels_from_json(const nlohmann::json& j) {
       throw nlohmann::json::other_error::create(501, "camera pixel model has the wrong number of classes",
                                                 nullptr);
     for (size_t c = 0; c < kSurpriseClasses; ++c) {
-      if (!std::isfinite(classes[c]) || classes[c] < 0)
-        throw nlohmann::json::other_error::create(501, "camera pixel model has a negative mean", nullptr);
+      // A residual reduced modulo 256 has |r| <= 128.
+      if (!std::isfinite(classes[c]) || classes[c] < 0 || classes[c] > 128)
+        throw nlohmann::json::other_error::create(501, "camera pixel model's mean |r| lies outside [0, 128]", nullptr);
       m.mean_abs[l][c] = classes[c];
       m.theta[l][c] = tsgd_theta(classes[c]);
     }
