@@ -82,6 +82,7 @@ nlohmann::ordered_json scan_bytes(const std::string& path, std::span<const std::
         "this model records no calibration camera scores (trained before residue recorded them): "
         "retrain or run residue calibrate to get the camera tail";
   }
+  if (!model.note.empty()) r["model_note"] = model.note;
   // The camera-only model's view (camera_model.hpp): how unusual the image is for a camera photo,
   // with no generator in mind, and the coding surprise behind it.
   if (s.camera_only) {

@@ -1,6 +1,6 @@
 """End to end: a camera-only model (train on camera photos alone), the camera-only view on every
-record of a two-class model, the coding-surprise map of `explain`, and models of the previous
-extractor refused with a clear message.
+record of a two-class model, the coding-surprise map of `explain`, models of extractor 2.0.0
+still scoring as they did (with a note), and older ones refused with a clear message.
 
 Data: tests/cli/make_labelled.py (scikit-image photo crops and SIMULATED generator output).
 Usage: test_camera_only_cli.py PATH/TO/residue
@@ -91,14 +91,33 @@ try:
     check(ex.returncode == 0 and "Values furthest from camera photos" in ex.stdout,
           f"explain of a camera-only model lists the values furthest from camera photos: {ex.stderr[-200:]}")
 
-    # 6. A model of the previous extractor is refused, naming both versions.
-    old = json.load(open(two))
+    # 6. A model of extractor 2.0.0 (whose 887 values 3.0.0 keeps bit for bit) still loads and scores
+    #    exactly as before, with a note on every record; an older one is refused, naming both versions.
+    before = os.path.join(work, "before.json")
+    out = run(["train", labelled, "-o", before, "--cache", cache, "--augment", "none", "--only", "spectral.",
+               "noise.", "resampling.", "sensor.", "texture.", "coding."])
+    check(out.returncode == 0, f"train on the 887 values of 2.0.0: {out.stderr[-300:]}")
+    old = json.load(open(before))
+    for key in ("camera_pixels", "camera_only", "kind"):
+        old.pop(key, None)
     old["schema"]["extractor_version"] = "2.0.0"
+    old["schema"]["schema_id"] = "0123456789abcdef"
     old_path = os.path.join(work, "old.json")
     json.dump(old, open(old_path, "w"))
+    now = run(["scan", before, image])
+    then = run(["scan", old_path, image])
+    check(then.returncode == 0, f"a 2.0.0 model loads: {then.stderr[-300:]}")
+    if then.returncode == 0:
+        a, b = json.loads(now.stdout), json.loads(then.stdout)
+        check(a["p_generated"] == b["p_generated"] and a["margin"] == b["margin"],
+              "a 2.0.0 model scores exactly as the same model under 3.0.0")
+        check("2.0.0" in b.get("model_note", "") and "retrain" in b["model_note"] and b["camera_only"] is None,
+              "its records say what it lacks")
+    old["schema"]["extractor_version"] = "1.0.0"
+    json.dump(old, open(old_path, "w"))
     refused = run(["scan", old_path, image])
-    check(refused.returncode != 0 and "2.0.0" in refused.stderr and "3.0.0" in refused.stderr and
-          "retrain" in refused.stderr, f"an extractor-2.0.0 model is refused clearly: {refused.stderr[-300:]}")
+    check(refused.returncode != 0 and "1.0.0" in refused.stderr and "3.0.0" in refused.stderr and
+          "retrain" in refused.stderr, f"an extractor-1.0.0 model is refused clearly: {refused.stderr[-300:]}")
 finally:
     shutil.rmtree(work, ignore_errors=True)
 finish()

@@ -325,7 +325,15 @@ Result<Model> model_from_json(const nlohmann::json& j) {
     m.created = j.at("created");
     m.extractor_version = j.at("schema").at("extractor_version");
     m.schema_id = j.at("schema").at("schema_id");
-    if (m.extractor_version != kExtractorVersion || m.schema_id != feature_schema_id()) {
+    // Extractor 3.0.0 added the coding surprise and left the 887 values of 2.0.0 bit for bit as they
+    // were: a 2.0.0 model still scores exactly as it did (by name), without the new family.
+    const bool earlier_compatible = m.extractor_version == kCompatibleExtractorVersion;
+    if (earlier_compatible) {
+      m.note = "model trained with feature extractor " + m.extractor_version + ": its values are unchanged in " +
+               std::string(kExtractorVersion) +
+               ", so it scores as it did, but it has no coding surprise and no camera-only score; retrain for "
+               "them (the feature cache makes it quick)";
+    } else if (m.extractor_version != kExtractorVersion || m.schema_id != feature_schema_id()) {
       return make_error(ErrorCode::kUnsupported,
                         "model was trained with feature extractor " + m.extractor_version + " (schema " +
                             m.schema_id + "); this residue extracts " + std::string(kExtractorVersion) +

@@ -14,6 +14,7 @@
 #include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "residue/features/extract.hpp"
@@ -28,6 +29,8 @@ namespace residue {
 
 inline constexpr const char* kModelFormat = "residue-model";
 inline constexpr int kModelFormatVersion = 1;
+// The earlier extractor whose models still load (their values are unchanged in this one).
+inline constexpr std::string_view kCompatibleExtractorVersion = "2.0.0";
 
 struct Thresholds {
   double likely_generated = 0.5;      // P at or above: "likely-generated" (chosen for target_fpr)
@@ -72,6 +75,9 @@ struct Model {
   // camera-only density with its tail. Absent in models of older extractors.
   std::optional<CameraPixelModel> camera_pixels;
   std::optional<CameraOnly> camera_only;
+  // Set on loading a model of kCompatibleExtractorVersion: what it lacks (every record says it).
+  // Not part of the file.
+  std::string note;
 };
 
 // The vector a model scores: `features` with the surprise family's derived values filled by the
