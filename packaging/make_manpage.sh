@@ -11,7 +11,9 @@ name=residue${sub:+-$sub}
 # usage lines say "residue" rather than the build folder's path.
 printf '#!/bin/bash\nexec -a residue "%s" %s "$@"\n' "$bin" "$sub" > "$tmp/$name"
 chmod +x "$tmp/$name"
-what=$("$tmp/$name" --help | head -1)
+# sed reads the whole help: `head -1` would exit after one line, and a long help still being
+# written would then die of SIGPIPE (exit 141, fatal under pipefail).
+what=$("$tmp/$name" --help | sed -n 1p)
 what=${what#residue: }
 help2man --no-info --no-discard-stderr --section=1 --version-string="$version" --name="$what" \
   --include="$include" --output="$tmp/$name.1" "$tmp/$name"
