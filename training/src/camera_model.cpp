@@ -53,7 +53,9 @@ double image_gap(const std::vector<double>& filled) {
 std::vector<double> window_gaps(const FeatureVector& filled) {
   std::vector<double> out;
   out.reserve(filled.windows.size());
-  for (const auto& w : filled.windows) out.push_back(w[surprise_offset() + kGapFull]);
+  for (const auto& w : filled.windows) {
+    if (w.size() > surprise_offset() + kGapFull) out.push_back(w[surprise_offset() + kGapFull]);
+  }
   return out;
 }
 
