@@ -132,7 +132,7 @@ Score score_camera_only(const Model& model, const FeatureVector& filled, const T
   if (s.band == "inconclusive") {
     char buf[200];
     std::snprintf(buf, sizeof buf,
-                  "the camera-only score (p %.3f) is below the likely-generated threshold (%.3f); a "
+                  "the camera-only score (p %.4f) is below the likely-generated threshold (%.4f); a "
                   "camera-only model saw no generated image and never calls one likely-camera",
                   s.p_generated, t.likely_generated);
     s.reasons.emplace_back(buf);
