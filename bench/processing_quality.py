@@ -23,13 +23,15 @@ With --old OTHER_RESIDUE it repeats everything with another build (e.g. the prev
 a before/after table; an older build has no guards, so its guarded share reads 0.
 
 Usage: bench/processing_quality.py [--residue build/residue] [--old PATH] [--dev ../shared/data/dev]
-                                   [--work /tmp/residue-processing] [--jobs 2]
+                                   [--work /tmp/residue-processing] [--jobs 2] [--tag NAME]
+                                   [--train-args ARGS] [--transforms NAME...] [--cache FILE]
 """
 import argparse
 import csv
 import hashlib
 import json
 import os
+import shlex
 import subprocess
 import sys
 
@@ -44,6 +46,10 @@ parser.add_argument("--jobs", default="2")
 parser.add_argument("--folds", type=int, default=3)
 parser.add_argument("--fold", type=int, default=None,
                     help="evaluate this fold only (a grouped held-back split of about 1/FOLDS)")
+parser.add_argument("--tag", default="new", help="name of this build's files under --work (default new)")
+parser.add_argument("--train-args", default="", help="extra `residue train` arguments, e.g. \"--only spectral.\"")
+parser.add_argument("--transforms", nargs="*", default=None, help="only these transforms (default: all)")
+parser.add_argument("--cache", default=None, help="feature cache (default WORK/TAG-cache.sqlite)")
 args = parser.parse_args()
 dev = os.path.abspath(args.dev)
 work = os.path.abspath(args.work)
@@ -51,7 +57,7 @@ os.makedirs(work, exist_ok=True)
 items = devset.items(dev, os.path.join(work, "set"))
 
 
-TRANSFORMS = devset.TRANSFORMS
+TRANSFORMS = {k: v for k, v in devset.TRANSFORMS.items() if args.transforms is None or k in args.transforms}
 
 
 def processed(path, name):
@@ -100,7 +106,7 @@ def evaluate(binary, tag):
         model = os.path.join(work, f"{tag}-model-{f}.json")
         if not os.path.exists(model):  # a finished fold is reused when the script runs again
             run([binary, "train", manifest, "-o", model, "--group-by", "manifest", "--jobs", args.jobs,
-                 "--cache", os.path.join(work, f"{tag}-cache.sqlite")])
+                 "--cache", args.cache or os.path.join(work, f"{tag}-cache.sqlite")] + shlex.split(args.train_args))
         with open(model) as fh:
             promises.append(json.load(fh)["thresholds"])
         threshold = promises[-1]["likely_generated"]
@@ -192,7 +198,7 @@ def print_table(title, rows):
 
 print(f"{len(items)} images ({sum(1 for i in items if i[1] == 'camera')} camera), {args.folds} grouped folds"
       + (f", fold {args.fold} held back" if args.fold is not None else "") + "\n")
-builds = [("new", args.residue)] + ([("old", args.old)] if args.old else [])
+builds = [(args.tag, args.residue)] + ([("old", args.old)] if args.old else [])
 for tag, binary in builds:
     records, promises = evaluate(binary, tag)
     for f, t in enumerate(promises):

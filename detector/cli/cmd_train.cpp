@@ -378,8 +378,8 @@ void add_train_command(CLI::App& app, int& exit_code) {
   add_group_by_option(*cmd, args->group_by, "what must stay on one side of a split");
   cmd->add_option("--only", args->only,
                   "use only features whose names start with these prefixes (e.g. spectral.); by default every "
-                  "feature but the coding surprise's statistics (surprise.stats.), which the model reads through "
-                  "its camera pixel model");
+                  "feature but the coding surprise's (surprise.), which the camera model reads instead (give "
+                  "--only with surprise. among the prefixes to let the SVM learn from them)");
   cmd->add_option(
          "--augment", args->augment,
          "also train on processed copies of every image, both classes alike (drawn from each file's "

@@ -1,12 +1,32 @@
 // exiv2 adapter: the only file that includes exiv2.
 #include <algorithm>
 #include <exiv2/exiv2.hpp>
+#include <mutex>
 
 #include "residue/features/metadata.hpp"
 
 namespace residue {
 
 namespace {
+
+// Exiv2's XMP toolkit is not thread-safe: XmpParser::initialize must run once before threads parse
+// XMP, given a lock that serialises the toolkit's calls (exiv2's documentation of
+// XmpParser::initialize). Without it, two threads reading XMP packets at once crashed in
+// initialize (seen in cli.scan_report_explain: two tagged PNGs scanned on two threads).
+std::mutex xmp_mutex;
+
+void lock_xmp(void*, bool lock) {
+  if (lock) {
+    xmp_mutex.lock();
+  } else {
+    xmp_mutex.unlock();
+  }
+}
+
+void initialise_xmp() {
+  static std::once_flag once;
+  std::call_once(once, [] { Exiv2::XmpParser::initialize(lock_xmp, nullptr); });
+}
 
 bool looks_like_generation_settings(const std::string& text) {
   static const char* const kMarkers[] = {
@@ -80,6 +100,7 @@ std::string value_of(const Exiv2::ExifData& exif, const char* key) {
 
 std::vector<std::uint8_t> with_digital_source_type(std::span<const std::uint8_t> bytes,
                                                    const std::string& type) {
+  initialise_xmp();
   try {
     auto image = Exiv2::ImageFactory::open(bytes.data(), static_cast<long>(bytes.size()));
     image->readMetadata();
@@ -107,6 +128,7 @@ bool declares_generated(const std::string& digital_source_type) {
 DeclaredMetadata read_metadata(std::span<const std::uint8_t> bytes) {
   DeclaredMetadata out;
   out.c2pa_manifest = has_c2pa(bytes);
+  initialise_xmp();
   try {
     Exiv2::LogMsg::setLevel(Exiv2::LogMsg::mute);
     auto image = Exiv2::ImageFactory::open(bytes.data(), static_cast<long>(bytes.size()));

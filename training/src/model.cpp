@@ -212,9 +212,10 @@ Result<std::vector<size_t>> select_features(const std::vector<std::string>& pref
   const auto& names = feature_names();
   std::vector<size_t> index;
   for (size_t i = 0; i < names.size(); ++i) {
-    // By default every value but the coding surprise's statistics: they are the camera pixel
-    // model's input, and the model learns from what it makes of them (docs/quality.md, ablation).
-    bool keep = prefixes.empty() && !names[i].starts_with(kSurpriseStatsPrefix);
+    // By default every value but the coding surprise's: with them the SVM put 1 to 2 more camera
+    // photos in 603 into likely-generated after halving or blurring (docs/quality.md); the camera
+    // model reads them instead (camera_model.hpp). `--only surprise.` gives them to the SVM.
+    bool keep = prefixes.empty() && !names[i].starts_with(kSurprisePrefix);
     for (const auto& p : prefixes) keep = keep || names[i].starts_with(p);
     if (keep) index.push_back(i);
   }

@@ -139,9 +139,9 @@ Result<bool> save_model(const Model& model, const std::filesystem::path& path);
 Result<Model> load_model(const std::filesystem::path& path);
 
 // Positions of the named features in the full vector, for a subset selected by name prefixes
-// (empty: every value but the coding surprise's statistics, `surprise.stats.*`, whose NLL,
-// expected cost and gap the model uses instead). Fails on a prefix that matches nothing.
-inline constexpr const char* kSurpriseStatsPrefix = "surprise.stats.";
+// (empty: every value but the coding surprise's, `surprise.*`, which the camera model reads
+// instead). Fails on a prefix that matches nothing.
+inline constexpr const char* kSurprisePrefix = "surprise.";
 Result<std::vector<size_t>> select_features(const std::vector<std::string>& prefixes);
 
 }  // namespace residue
