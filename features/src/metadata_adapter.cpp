@@ -15,7 +15,7 @@ namespace {
 // initialize (seen in cli.scan_report_explain: two tagged PNGs scanned on two threads).
 std::mutex xmp_mutex;
 
-void lock_xmp(void*, bool lock) {
+void lock_xmp(void* /*unused*/, bool lock) {
   if (lock) {
     xmp_mutex.lock();
   } else {
