@@ -3,7 +3,10 @@
 Usage:
   surprise_reference.py entropy THETA
       -> scipy.stats.entropy (base 2) of the two-sided geometric distribution
-         P(r) = (1 - t) / (1 + t) t^|r| over r = -4000..4000, and its mean |r| by a direct sum
+         P(r) = (1 - t) / (1 + t) t^|r| over r = -4000..4000, its mean |r| and its mean r^2 by
+         direct sums
+  surprise_reference.py quantiles VALUES...
+      -> numpy.quantile (linear interpolation) at 0.25, 0.5 and 0.75
   surprise_reference.py classes IMAGE.csv
       -> per activity class 0..8: pixels and sum of |r|, written independently with numpy: the
          JPEG-LS MED prediction (ISO/IEC 14495-1, A.3-A.4) on an n x n integer image, the residual
@@ -20,7 +23,10 @@ if mode == "entropy":
     t = float(sys.argv[2])
     r = np.arange(-4000, 4001)
     p = (1 - t) / (1 + t) * t ** np.abs(r)
-    print(repr(stats.entropy(p, base=2)), repr(float(np.sum(np.abs(r) * p))))
+    print(repr(stats.entropy(p, base=2)), repr(float(np.sum(np.abs(r) * p))), repr(float(np.sum(r * r * p))))
+elif mode == "quantiles":
+    v = np.array([float(x) for x in sys.argv[2:]])
+    print(" ".join(repr(float(q)) for q in np.quantile(v, [0.25, 0.5, 0.75])))
 elif mode == "classes":
     x = np.loadtxt(sys.argv[2], delimiter=",", dtype=np.int64, ndmin=2)
     n = x.shape[0]

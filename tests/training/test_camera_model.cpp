@@ -5,6 +5,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdio>
 #include <random>
 
 #include "residue/training/camera_model.hpp"
@@ -12,6 +13,7 @@
 #include "residue/training/model.hpp"
 #include "residue/training/trainer.hpp"
 #include "simulated_items.hpp"
+#include "support.hpp"
 
 using namespace residue;
 
@@ -105,6 +107,19 @@ TEST_CASE("camera-only training: a working model from camera photos alone") {
   REQUIRE(model.camera_only->tail);
   CHECK(model.camera_only->tail->margins.size() == camera.size());
   CHECK(model.provenance["counts"]["generated"] == 0);
+  // The gap's location and spread: numpy.quantile's median and interquartile range / 1.349 of the
+  // camera photos' gaps (tests/reference/surprise_reference.py).
+  std::vector<std::string> gaps;
+  for (const auto& it : camera) {
+    char buf[40];
+    std::snprintf(buf, sizeof buf, "%.17g", image_gap(model_vector(model, it.features).values));
+    gaps.emplace_back(buf);
+  }
+  gaps.insert(gaps.begin(), "quantiles");
+  const auto q = test::numbers(test::python("surprise_reference.py", gaps));
+  REQUIRE(q.size() == 3);
+  CHECK(model.camera_only->gap_median == doctest::Approx(q[1]).epsilon(1e-12));
+  CHECK(model.camera_only->gap_spread == doctest::Approx((q[2] - q[0]) / 1.349).epsilon(1e-12));
   // Generated images it never saw score higher than camera photos it never saw.
   std::vector<double> p;
   std::vector<int> y;
