@@ -88,13 +88,13 @@ CameraOnlyScore camera_only_score(const Model& model, const FeatureVector& fille
   CameraOnlyScore c;
   std::vector<double> values(model.feature_index.size());
   for (size_t k = 0; k < values.size(); ++k) values[k] = filled.values[model.feature_index[k]];
+  c.gap = image_gap(filled.values);
   c.density = model.camera_only->density->score(values, &c.distance);
-  c.score = model.camera_only->combine(image_gap(filled.values), c.density);
+  c.score = model.camera_only->combine(c.gap, c.density);
   if (const auto& tail = model.camera_only->tail; tail && !tail->margins.empty()) {
     c.tail = tail->position(c.score);
     c.unusual = c.tail->p_value <= model.camera_only->unusual;
   }
-  c.gap = image_gap(filled.values);
   const auto gaps = window_gaps(filled);
   if (!gaps.empty()) {
     double mean = 0.0;
