@@ -6,6 +6,7 @@
 #include <set>
 
 #include "commands.hpp"
+#include "options.hpp"
 #include "residue/detector/pages/report_page.hpp"
 #include "residue/detector/scoring/explain.hpp"
 #include "residue/detector/scoring/record.hpp"
@@ -132,6 +133,7 @@ void add_explain_command(CLI::App& app, int& exit_code) {
   cmd->add_option("-o,--output-dir", args->output_dir, "folder for the pictures and summary")->required();
   cmd->add_option("--prior", args->settings.prior, "deployment share of generated images")
       ->check(CLI::Range(0.0001, 0.9999));
+  add_window_threads_option(*cmd, args->settings.extract);
   cmd->callback([args, &exit_code] { exit_code = run_explain(*args); });
 }
 

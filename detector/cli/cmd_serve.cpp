@@ -96,6 +96,7 @@ void add_serve_command(CLI::App& app, int& exit_code) {
   cmd->add_option("--prior", args->settings.scan.prior, "default deployment share of generated images")
       ->check(CLI::Range(0.0001, 0.9999));
   add_extract_options(*cmd, args->settings.scan.extract);
+  add_window_threads_option(*cmd, args->settings.scan.extract);
   cmd->callback([args, &exit_code] { exit_code = run_serve(*args); });
 }
 

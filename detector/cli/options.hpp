@@ -8,6 +8,7 @@
 
 #include "residue/detector/scoring/scan.hpp"
 #include "residue/features/extract.hpp"
+#include "residue/features/window_threads.hpp"
 
 namespace residue::cli {
 
@@ -31,6 +32,17 @@ inline void add_extract_options(CLI::App& command, ExtractOptions& options) {
                   "smallest analysis window in px (power of two, 32..256); smaller images are refused")
       ->check(CLI::IsMember({32, 64, 128, 256}))
       ->capture_default_str();
+}
+
+// Registers --window-threads (one image's windows on idle cores: window_threads.hpp), defaulting
+// to every core, for the commands that score one image at a time (serve, explain).
+inline void add_window_threads_option(CLI::App& command, ExtractOptions& options) {
+  options.window_threads = available_cores();
+  command
+      .add_option("--window-threads", options.window_threads,
+                  "threads one image's analysis windows may use while cores are idle (under load each image "
+                  "keeps to one; 1: never split; default: cores)")
+      ->check(CLI::Range(1, 256));
 }
 
 // Registers --with-features and --copies (records that carry their feature vectors: carried.hpp).

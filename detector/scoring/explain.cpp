@@ -104,7 +104,8 @@ Result<Explanation> explain_bytes(const std::string& name, std::span<const std::
   std::vector<std::pair<double, std::string>> evidence;
   // A camera-only model has no weights: its strongest evidence is the values furthest from camera
   // photos (standardised on them, signed).
-  const auto features = model_vector(model, extract_tiles(windows->tiles));
+  const auto features =
+      model_vector(model, extract_tiles(windows->tiles, nullptr, nullptr, settings.extract.window_threads));
   const bool camera_only = model.kind == "camera-only";
   for (size_t k = 0; k < model.features.size(); ++k) {
     const double z = (features.values[model.feature_index[k]] - model.scaler.mean[k]) / model.scaler.scale[k];

@@ -5,10 +5,12 @@
 #include <bit>
 #include <cmath>
 #include <cstdint>
+#include <cstdlib>
 #include <numbers>
 
 #include "residue/features/families.hpp"
 #include "residue/features/filters.hpp"
+#include "residue/features/surprise.hpp"
 #include "residue/features/vector_clones.hpp"
 
 namespace residue {
@@ -66,7 +68,8 @@ int jpegls_gradient_region(int d) {
   return 4;
 }
 
-RESIDUE_VECTOR_CLONES double coding_cost_bits(const std::vector<int>& samples, int n) {
+RESIDUE_VECTOR_CLONES double coding_cost_bits(const std::vector<int>& samples, int n, ClassSums* classes) {
+  if (classes != nullptr) *classes = ClassSums{};
   if (n < 3) return 0.0;
   // counts[context][residual + 128]; the context is (q1, q2, q3) with the sign merged so that the
   // first non-zero region is positive (the residual's sign flips with it), as the standard does.
@@ -95,7 +98,8 @@ RESIDUE_VECTOR_CLONES double coding_cost_bits(const std::vector<int>& samples, i
   // The context of every (q1, q2, q3) before the sign is merged, with the sign it was merged by.
   struct Folded {
     std::uint16_t context;
-    int sign;
+    std::int16_t sign;
+    std::uint16_t activity;  // the surprise family's class, min(|q1| + |q2| + |q3|, 8)
   };
   static const std::array<Folded, kContexts> kFold = [] {
     std::array<Folded, kContexts> t{};
@@ -106,12 +110,18 @@ RESIDUE_VECTOR_CLONES double coding_cost_bits(const std::vector<int>& samples, i
           const int s = flip ? -1 : 1;
           const int raw = ((q1 + 4) * 9 + (q2 + 4)) * 9 + (q3 + 4);
           const int folded = ((s * q1 + 4) * 9 + (s * q2 + 4)) * 9 + (s * q3 + 4);
-          t[static_cast<size_t>(raw)] = {static_cast<std::uint16_t>(folded), s};
+          const int activity = std::min(std::abs(q1) + std::abs(q2) + std::abs(q3), kSurpriseClasses - 1);
+          t[static_cast<size_t>(raw)] = {static_cast<std::uint16_t>(folded), static_cast<std::int16_t>(s),
+                                         static_cast<std::uint16_t>(activity)};
         }
       }
     }
     return t;
   }();
+  // The surprise family's per-class pixels and sum of |r| (|symbol - 128| is |r| whichever sign
+  // the context merged in), counted as integers.
+  std::array<long long, kSurpriseClasses> class_pixels{};
+  std::array<long long, kSurpriseClasses> class_abs{};
   // Interior pixels with all four causal neighbours a (W), b (N), c (NW), d (NE).
   for (int y = 1; y < n; ++y) {
     for (int x = 1; x + 1 < n; ++x) {
@@ -126,6 +136,14 @@ RESIDUE_VECTOR_CLONES double coding_cost_bits(const std::vector<int>& samples, i
       ++counts[context][symbol];
       ++totals[context];
       seen_symbols[context][symbol / 64] |= std::uint64_t{1} << (symbol % 64);
+      class_pixels[f.activity] += 1;
+      class_abs[f.activity] += std::abs(static_cast<int>(symbol) - 128);
+    }
+  }
+  if (classes != nullptr) {
+    for (size_t k = 0; k < class_pixels.size(); ++k) {
+      classes->pixels[k] = static_cast<double>(class_pixels[k]);
+      classes->abs_sum[k] = static_cast<double>(class_abs[k]);
     }
   }
   // Conditional empirical entropy with the Miller (1955) correction (K - 1) / (2 N ln 2) per
@@ -164,14 +182,31 @@ const std::vector<std::string>& coding_names() {
   return names;
 }
 
+const WindowInput::Prediction& WindowInput::prediction() const {
+  if (prediction_kept) return *prediction_kept;
+  Prediction p;
+  p.surprise_stats.reserve(surprise_names().size());
+  int n = tile.size;
+  std::vector<int> plane = integer_luma(*this);
+  for (size_t level = 0; level < p.bits.size(); ++level) {
+    if (level > 0) {
+      plane = halve_samples(plane, n);
+      n /= 2;
+    }
+    ClassSums classes;
+    p.bits[level] = coding_cost_bits(plane, n, &classes);
+    append_class_stats(classes, p.surprise_stats);
+  }
+  p.surprise_stats.resize(surprise_names().size(), 0.0);  // the model-filled values: zeros
+  prediction_kept = std::move(p);
+  return *prediction_kept;
+}
+
 std::vector<double> coding_window(const WindowInput& window) {
-  const int n = window.tile.size;
-  const auto full = integer_luma(window);
-  const auto half = halve_samples(full, n);
-  const auto quarter = halve_samples(half, n / 2);
-  const double b1 = coding_cost_bits(full, n);
-  const double b2 = coding_cost_bits(half, n / 2);
-  const double b4 = coding_cost_bits(quarter, n / 4);
+  const auto& bits = window.prediction().bits;
+  const double b1 = bits[0];
+  const double b2 = bits[1];
+  const double b4 = bits[2];
   constexpr double kFloor = 0.05;  // bits: keeps ratios finite on flat windows
   return {b1, b2, b4, (b2 + kFloor) / (b1 + kFloor), (b4 + kFloor) / (b2 + kFloor)};
 }

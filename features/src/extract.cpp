@@ -1,11 +1,13 @@
 #include "residue/features/extract.hpp"
 
+#include <array>
 #include <chrono>
 #include <cstdio>
 
 #include "residue/features/families.hpp"
 #include "residue/features/fingerprint.hpp"
 #include "residue/features/surprise.hpp"
+#include "residue/features/window_threads.hpp"
 
 namespace residue {
 
@@ -86,16 +88,37 @@ std::vector<WindowInput> window_inputs(const std::vector<Tile>& tiles) {
   return inputs;
 }
 
-FeatureVector extract_tiles(const std::vector<Tile>& tiles, FamilyTimings* timings, double* grid_strength) {
-  return extract_windows(window_inputs(tiles), timings, grid_strength);
+FeatureVector extract_tiles(const std::vector<Tile>& tiles, FamilyTimings* timings, double* grid_strength,
+                            int threads) {
+  return extract_windows(window_inputs(tiles), timings, grid_strength, threads);
 }
 
 FeatureVector extract_windows(const std::vector<WindowInput>& windows, FamilyTimings* timings,
-                              double* grid_strength) {
+                              double* grid_strength, int threads) {
   FamilyTimings local;
   FamilyTimings& t = timings != nullptr ? *timings : local;
+  constexpr size_t kCount = std::size(kFamilies);
+  // Every window's values and times, family by family, computed on whichever thread takes the
+  // window (all of a window's families on one thread: they share what the window keeps), then
+  // pooled here in window order, so that the vector is the same on any number of threads.
+  struct WindowResult {
+    std::array<std::vector<double>, kCount> values;
+    std::array<double, kCount> ms{};
+    double grid = 0.0;
+  };
+  std::vector<WindowResult> results(windows.size());
+  parallel_indices(windows.size(), threads, [&](size_t w) {
+    const WindowInput& input = windows[w];
+    WindowResult& r = results[w];
+    r.grid = block_grid_strength(input.luma.data(), input.tile.size);
+    for (size_t f = 0; f < kCount; ++f) {
+      const auto start = Clock::now();
+      r.values[f] = kFamilies[f].window(input);
+      r.ms[f] = ms_since(start);
+    }
+  });
   double grid = 0.0;
-  for (const auto& input : windows) grid += block_grid_strength(input.luma.data(), input.tile.size);
+  for (const auto& r : results) grid += r.grid;
   if (grid_strength != nullptr)
     *grid_strength = windows.empty() ? 1.0 : grid / static_cast<double>(windows.size());
 
@@ -103,25 +126,24 @@ FeatureVector extract_windows(const std::vector<WindowInput>& windows, FamilyTim
   out.values.reserve(feature_names().size());
   out.windows.assign(windows.size(), {});
   for (auto& w : out.windows) w.reserve(feature_names().size());
-  for (const auto& family : kFamilies) {
-    const auto start = Clock::now();
-    const auto& names = family.names();
+  for (size_t f = 0; f < kCount; ++f) {
+    const auto& names = kFamilies[f].names();
     std::vector<double> mean(names.size(), 0.0);
     std::vector<double> max(names.size(), -1e300);
     for (size_t w = 0; w < windows.size(); ++w) {
-      const auto values = family.window(windows[w]);
+      const auto& values = results[w].values[f];
       for (size_t i = 0; i < values.size(); ++i) {
         mean[i] += values[i] / static_cast<double>(windows.size());
         max[i] = std::max(max[i], values[i]);
         out.windows[w].push_back(values[i]);
         if (is_peak(names[i])) out.windows[w].push_back(values[i]);  // a window's mean and max are its value
       }
+      t.*(kFamilies[f].timing) += results[w].ms[f];
     }
     for (size_t i = 0; i < names.size(); ++i) {
       out.values.push_back(mean[i]);
       if (is_peak(names[i])) out.values.push_back(max[i]);
     }
-    t.*(family.timing) += ms_since(start);
   }
   return out;
 }
@@ -139,7 +161,8 @@ Result<Extraction> extract_bytes(std::span<const std::uint8_t> bytes, const Extr
   out.decoded_rows = decoded->decoded_rows;
   if (decoded->jpeg_tables) out.compression.jpeg = estimate_jpeg_quality(*decoded->jpeg_tables);
   const auto windows = window_inputs(decoded->tiles);
-  out.features = extract_windows(windows, &out.timings, &out.compression.block_grid_strength);
+  out.features =
+      extract_windows(windows, &out.timings, &out.compression.block_grid_strength, options.window_threads);
   const auto processing_start = Clock::now();
   out.processing = assess_processing(*decoded, out.compression.jpeg, &windows);
   out.timings.processing_ms = ms_since(processing_start);
@@ -167,13 +190,14 @@ Result<Extraction> extract_image(const Image& image, const ExtractOptions& optio
   decoded.layout = *layout;
   decoded.tiles = cut_tiles(image, *layout);
   const auto windows = window_inputs(decoded.tiles);
-  out.features = extract_windows(windows, &out.timings, &out.compression.block_grid_strength);
+  out.features =
+      extract_windows(windows, &out.timings, &out.compression.block_grid_strength, options.window_threads);
   const auto processing_start = Clock::now();
   out.processing = assess_processing(decoded, std::nullopt, &windows);
   out.timings.processing_ms = ms_since(processing_start);
   out.timings.total_ms = out.timings.spectral_ms + out.timings.noise_ms + out.timings.resampling_ms +
-                         out.timings.sensor_ms + out.timings.texture_ms + out.timings.coding_ms + out.timings.surprise_ms +
-                         out.timings.processing_ms;
+                         out.timings.sensor_ms + out.timings.texture_ms + out.timings.coding_ms +
+                         out.timings.surprise_ms + out.timings.processing_ms;
   return out;
 }
 

@@ -103,27 +103,16 @@ bool is_model_value(const std::string& name) {
   return name.starts_with("surprise.") && !name.starts_with("surprise.stats.");
 }
 
-std::vector<double> surprise_window(const WindowInput& window) {
-  int n = window.tile.size;
-  std::vector<int> plane = integer_luma(window);
-  std::vector<double> out;
-  out.reserve(surprise_names().size());
-  for (int level = 0; level < kSurpriseLevels; ++level) {
-    if (level > 0) {
-      plane = halve_samples(plane, n);
-      n /= 2;
-    }
-    const ClassSums sums = class_sums(plane, n);
-    double total = 0.0;
-    for (double p : sums.pixels) total += p;
-    for (int c = 0; c < kSurpriseClasses; ++c) {
-      out.push_back(total > 0 ? sums.pixels[static_cast<size_t>(c)] / total : 0.0);
-      out.push_back(total > 0 ? sums.abs_sum[static_cast<size_t>(c)] / total : 0.0);
-    }
+void append_class_stats(const ClassSums& sums, std::vector<double>& out) {
+  double total = 0.0;
+  for (double p : sums.pixels) total += p;
+  for (int c = 0; c < kSurpriseClasses; ++c) {
+    out.push_back(total > 0 ? sums.pixels[static_cast<size_t>(c)] / total : 0.0);
+    out.push_back(total > 0 ? sums.abs_sum[static_cast<size_t>(c)] / total : 0.0);
   }
-  out.resize(surprise_names().size(), 0.0);
-  return out;
 }
+
+std::vector<double> surprise_window(const WindowInput& window) { return window.prediction().surprise_stats; }
 
 double tsgd_theta(double mean_abs) {
   const double m = std::max(mean_abs, kMinMeanAbs);

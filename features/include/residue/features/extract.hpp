@@ -44,6 +44,9 @@ struct ExtractOptions {
   DecodeLimits limits;
   WindowPolicy windows;
   bool skip_unused_rows = true;  // JPEG: decode only the rows the windows need
+  // Threads one image's windows may use (window_threads.hpp: idle cores only). 1 for batches,
+  // which keep every core busy with whole images; the service and `explain` give the cores.
+  int window_threads = 1;
 };
 
 struct FamilyTimings {
@@ -72,11 +75,12 @@ struct Extraction {
 };
 
 // Features of tiles already in memory (all the same size), with per-family timings.
+// `threads`: as ExtractOptions::window_threads; the vector is the same for any number.
 FeatureVector extract_tiles(const std::vector<Tile>& tiles, FamilyTimings* timings = nullptr,
-                            double* grid_strength = nullptr);
+                            double* grid_strength = nullptr, int threads = 1);
 // The same for windows made by window_inputs(), which keep what the processing evidence reuses.
 FeatureVector extract_windows(const std::vector<WindowInput>& windows, FamilyTimings* timings = nullptr,
-                              double* grid_strength = nullptr);
+                              double* grid_strength = nullptr, int threads = 1);
 
 Result<Extraction> extract_bytes(std::span<const std::uint8_t> bytes, const ExtractOptions& options = {});
 Result<Extraction> extract_file(const std::filesystem::path& path, const ExtractOptions& options = {});

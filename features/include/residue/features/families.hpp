@@ -32,6 +32,7 @@
 #pragma once
 
 #include <array>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -50,6 +51,15 @@ struct WindowInput {
   // the N x N spectrum: a request keeps every window's).
   [[nodiscard]] const std::vector<double>& pmap_profile() const;
   mutable std::vector<double> pmap_profile_kept;  // empty until made
+  // The MED prediction at full, 1/2 and 1/4 scale of the window's integer luma, one pass per scale
+  // shared by the coding family (its cost in bits) and the surprise family (its per-class
+  // statistics, then zeros for the model-filled values): made on first use and kept.
+  struct Prediction {
+    std::array<double, 3> bits{};
+    std::vector<double> surprise_stats;
+  };
+  [[nodiscard]] const Prediction& prediction() const;
+  mutable std::optional<Prediction> prediction_kept;
 };
 
 // The Hann-windowed power spectrum of a window's centred Kirchner p-map.
@@ -163,7 +173,9 @@ int med_predict(int a, int b, int c);
 int jpegls_gradient_region(int d);
 // Conditional entropy of the MED residuals (reduced modulo 256) given the JPEG-LS context
 // (q1, q2, q3, sign-merged: 365 contexts), in bits per pixel, over pixels with all four causal
-// neighbours, with Miller's (1955) bias correction. Integer samples 0..255, n x n.
-double coding_cost_bits(const std::vector<int>& samples, int n);
+// neighbours, with Miller's (1955) bias correction. Integer samples 0..255, n x n. The same pass
+// gives the surprise family's class sums when `classes` is given (equal to class_sums()).
+struct ClassSums;
+double coding_cost_bits(const std::vector<int>& samples, int n, ClassSums* classes = nullptr);
 
 }  // namespace residue

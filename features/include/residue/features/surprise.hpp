@@ -55,10 +55,15 @@ struct ClassSums {
   std::array<double, kSurpriseClasses> pixels{};
   std::array<double, kSurpriseClasses> abs_sum{};
 };
+// (A plain pass of its own, kept as the reference the shared pass is tested against: extraction
+// takes the sums from coding_cost_bits' pass, families.hpp.)
 ClassSums class_sums(const std::vector<int>& samples, int n);
+// Appends f_c then g_c for each class (one level's kSurpriseClasses * 2 statistics).
+void append_class_stats(const ClassSums& sums, std::vector<double>& out);
 
 // The family: kSurpriseStats values (f_c then g_c for each class, level by level) followed by
 // kSurpriseDerived zeros, which a camera model fills (fill_surprise).
+// The statistics come from the window's shared prediction pass (WindowInput::prediction()).
 const std::vector<std::string>& surprise_names();
 std::vector<double> surprise_window(const WindowInput& window);
 
