@@ -14,6 +14,7 @@
 #include "commands.hpp"
 #include "residue/detector/demo/sample_images.hpp"
 #include "residue/features/families.hpp"
+#include "residue/features/window_threads.hpp"
 #include "residue/training/batch.hpp"
 #include "residue/training/trainer.hpp"
 
@@ -217,6 +218,26 @@ int run_bench(const BenchArgs& args) {
       "process = processing evidence (reported, not learned: palette, resampling, JPEG history);\n"
       "total = windows + the six families + processing; tot/8bit = total / the 8-bit reference;\n"
       "ms/win = the six families' time per analysis window; feat/dec = that time / window-decode time.\n\n");
+
+  // One image at a time, as an idle service or `explain` scores it: the whole path's wall time with
+  // its windows on 1 .. cores threads (window_threads.hpp).
+  std::printf("one image on an idle machine, whole path (extract_bytes), wall ms by window threads:\n");
+  for (const auto& c : cases) {
+    std::ifstream in(c.path, std::ios::binary);
+    const std::vector<std::uint8_t> bytes((std::istreambuf_iterator<char>(in)),
+                                          std::istreambuf_iterator<char>());
+    std::printf("  %-20s", c.label.c_str());
+    double single = 0.0;
+    for (int threads = 1; threads <= available_cores(); ++threads) {
+      ExtractOptions options;
+      options.window_threads = threads;
+      const double ms = median_ms(args.repeats, [&] { (void)extract_bytes(bytes, options); });
+      if (threads == 1) single = ms;
+      std::printf("  %d: %6.1f (x%.2f)", threads, ms, single / ms);
+    }
+    std::printf("\n");
+  }
+  std::printf("\n");
 
   std::vector<std::string> batch;
   batch.reserve(static_cast<size_t>(args.batch));

@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <bit>
 #include <cmath>
+#include <cstring>
 #include <numbers>
 #include <numeric>
 
@@ -35,12 +36,34 @@ std::uint8_t level(float v) {
   return static_cast<std::uint8_t>(round_half_away(std::clamp(v, 0.0F, 255.0F)));
 }
 
-// The 8-bit levels of each channel of a tile, as level() gives them.
+// The 8-bit levels of each channel of a tile, as level() gives them. Eight at a time in GCC's
+// vector extension: the compiler does not vectorise level()'s float -> int -> byte conversion
+// itself, and this loop was 4 % of extraction (three conversions per pixel per window). For
+// v in [0, 255] rounding half away from zero is truncation plus one when the fraction, exact in
+// float arithmetic, is at least one half: the same bytes as level().
 RESIDUE_VECTOR_CLONES void tile_levels(const Tile& t, std::vector<std::uint8_t>& out) {
+  using Floats = float __attribute__((vector_size(32)));
+  using Ints = int __attribute__((vector_size(32)));
+  using Bytes = std::uint8_t __attribute__((vector_size(8)));
   const size_t count = static_cast<size_t>(t.channels) * t.size * t.size;
   out.resize(count);
   const float* v = t.samples.data();
-  for (size_t i = 0; i < count; ++i) out[i] = level(v[i]);
+  const Floats zero{};
+  const Floats top = zero + 255.0F;
+  const Floats half = zero + 0.5F;
+  size_t i = 0;
+  for (; i + 8 <= count; i += 8) {
+    Floats x;
+    std::memcpy(&x, v + i, sizeof x);
+    x = x < zero ? zero : x;
+    x = x > top ? top : x;
+    Ints k = __builtin_convertvector(x, Ints);
+    const Floats fraction = x - __builtin_convertvector(k, Floats);
+    k += fraction >= half ? 1 : 0;
+    const Bytes b = __builtin_convertvector(k, Bytes);
+    std::memcpy(out.data() + i, &b, sizeof b);
+  }
+  for (; i < count; ++i) out[i] = level(v[i]);
 }
 
 void assess_colours(const std::vector<Tile>& tiles, ProcessingEvidence& e) {

@@ -4,6 +4,8 @@
 
 #include <cmath>
 #include <nlohmann/json.hpp>
+#include <thread>
+#include <vector>
 
 #include "residue/features/spectrum.hpp"
 #include "support.hpp"
@@ -52,4 +54,21 @@ TEST_CASE("a pure sinusoid at an exact bin puts all its power within one bin of 
   CHECK(main / total == doctest::Approx(1.0).epsilon(1e-9));
   CHECK(dft_frequency(8, n) == doctest::Approx(0.125));
   CHECK(dft_frequency(n - 8, n) == doctest::Approx(-0.125));
+}
+
+TEST_CASE("the FFTW plan cache under concurrent first use: every thread gets the one-thread spectrum") {
+  // FFTW's planner is not thread-safe (FFTW manual, 5.4 "Thread safety"); plans are made under a
+  // lock, once per size, and executed on each thread's own arrays. Sizes no other test uses, so
+  // that the threads race to create them.
+  const Image camera = test::load(test::sample("camera.png"));
+  for (const int n : {40, 72, 88, 104, 120}) {
+    const Image window = crop(camera, 100, 100, n, n);
+    std::vector<std::vector<double>> got(8);
+    std::vector<std::thread> threads;
+    for (size_t t = 0; t < got.size(); ++t)
+      threads.emplace_back([&, t] { got[t] = hann_power_spectrum(window.samples.data(), n); });
+    for (auto& t : threads) t.join();
+    const auto alone = hann_power_spectrum(window.samples.data(), n);
+    for (const auto& g : got) CHECK(g == alone);
+  }
 }

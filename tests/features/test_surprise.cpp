@@ -156,11 +156,16 @@ TEST_CASE("surprise: class counts and residual sums equal an independent numpy i
   const auto expected = test::numbers(test::python("surprise_reference.py", {"classes", csv.string()}));
   REQUIRE(expected.size() == 2 * kSurpriseClasses);
   const ClassSums sums = class_sums(x, n);
+  // Extraction takes them from the coding family's pass (one pass per scale for both families).
+  ClassSums shared;
+  (void)coding_cost_bits(x, n, &shared);
   double used = 0;
   for (size_t c = 0; c < kSurpriseClasses; ++c) {
     CAPTURE(c);
     CHECK(sums.pixels[c] == expected[2 * c]);
     CHECK(sums.abs_sum[c] == expected[2 * c + 1]);
+    CHECK(shared.pixels[c] == expected[2 * c]);
+    CHECK(shared.abs_sum[c] == expected[2 * c + 1]);
     used += sums.pixels[c] > 0;
   }
   CHECK(used >= 7);  // the image exercises the classes
