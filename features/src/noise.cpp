@@ -93,6 +93,11 @@ CfaTraces cfa_traces(const Tile& tile) {
   return out;
 }
 
+double WindowInput::luma_noise_sigma() const {
+  if (!luma_noise_sigma_kept) luma_noise_sigma_kept = immerkaer_sigma(luma.data(), tile.size, tile.size);
+  return *luma_noise_sigma_kept;
+}
+
 const std::vector<std::string>& noise_names() {
   static const std::vector<std::string> names = [] {
     std::vector<std::string> v;
@@ -193,7 +198,7 @@ std::vector<double> noise_window(const WindowInput& window) {
     values.push_back(std::log10(m.variance + 1e-6));
     values.push_back(std::log10(m.excess_kurtosis + 3.0));  // log of the (non-excess) kurtosis, >= 0
   }
-  values.push_back(immerkaer_sigma(y, n, n));
+  values.push_back(window.luma_noise_sigma());
   const CfaTraces cfa = cfa_traces(window.tile);
   values.insert(values.end(), {cfa.lattice_contrast[0], cfa.lattice_contrast[1], cfa.lattice_contrast[2],
                                cfa.residual_corr_rg, cfa.residual_corr_bg});

@@ -360,7 +360,8 @@ ProcessingEvidence assess_processing(const DecodedWindows& decoded,
   }
   std::vector<double> detail;
   detail.reserve(windows->size());
-  for (const auto& w : *windows) detail.push_back(fine_detail(w.luma.data(), w.tile.size, w.tile.size));
+  // fine_detail() of each window: the noise family's Immerkaer sigma, kept by the window.
+  for (const auto& w : *windows) detail.push_back(w.tile.size >= 3 ? w.luma_noise_sigma() : 0.0);
   if (!detail.empty()) {
     std::nth_element(detail.begin(), detail.begin() + static_cast<std::ptrdiff_t>(detail.size() / 2),
                      detail.end());

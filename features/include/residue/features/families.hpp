@@ -60,6 +60,10 @@ struct WindowInput {
   };
   [[nodiscard]] const Prediction& prediction() const;
   mutable std::optional<Prediction> prediction_kept;
+  // immerkaer_sigma() of the luma: the noise family's noise level and the processing evidence's
+  // fine detail, made once.
+  [[nodiscard]] double luma_noise_sigma() const;
+  mutable std::optional<double> luma_noise_sigma_kept;
 };
 
 // The Hann-windowed power spectrum of a window's centred Kirchner p-map.
