@@ -1,7 +1,6 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
-#include <vector>
 
 #include "residue/features/compression.hpp"
 
@@ -58,49 +57,35 @@ QualityEstimate estimate_jpeg_quality(const JpegQuantTables& tables) {
   return best;
 }
 
-namespace {
-
-// Mean of e(x) = |2 g(x) - g(x-1) - g(x+1)| at each of the 8 phases x mod 8 over the lines (rows)
-// of an n x n plane, peak phase over the median of the other seven.
-double line_grid_strength(const float* plane, int n) {
-  double phase[8] = {0, 0, 0, 0, 0, 0, 0, 0};
-  for (int line = 0; line < n; ++line) {
-    const float* y = plane + static_cast<size_t>(line) * n;
-    for (int x = 1; x + 2 < n; ++x) {
-      const double g0 = y[x] - y[x - 1];
-      const double g1 = y[x + 1] - y[x];
-      const double g2 = y[x + 2] - y[x + 1];
-      phase[x % 8] += std::fabs(2 * g1 - g0 - g2);
-    }
-  }
-  for (int p = 0; p < 8; ++p) {
-    // The positions x in [1, n - 3] of phase p on every line (a count, not a sum of ones).
-    const int first = p >= 1 ? p : 8;
-    const double per_line = first <= n - 3 ? (n - 3 - first) / 8 + 1 : 0;
-    phase[p] /= std::max(per_line * n, 1.0);
-  }
-  const int peak = static_cast<int>(std::max_element(phase, phase + 8) - phase);
-  double others[7];
-  int k = 0;
-  for (int p = 0; p < 8; ++p) {
-    if (p != peak) others[k++] = phase[p];
-  }
-  std::nth_element(others, others + 3, others + 7);
-  return (phase[peak] + 1e-9) / (others[3] + 1e-9);
-}
-
-}  // namespace
-
 double block_grid_strength(const float* luma, int n) {
   // For each line, g(x) = Y(x+1) - Y(x) and e(x) = |2 g(x) - g(x-1) - g(x+1)|: a gradient that
-  // jumps against its neighbours, as at a block edge, while smooth ramps give 0. Rows, then
-  // columns read as the rows of the transposed plane (contiguous, so the pass stays in cache).
-  std::vector<float> columns(static_cast<size_t>(n) * n);
-  for (int y = 0; y < n; ++y) {
-    for (int x = 0; x < n; ++x)
-      columns[static_cast<size_t>(x) * n + y] = luma[static_cast<size_t>(y) * n + x];
-  }
-  return 0.5 * (line_grid_strength(luma, n) + line_grid_strength(columns.data(), n));
+  // jumps against its neighbours, as at a block edge, while smooth ramps give 0.
+  auto strength = [&](bool rows) {
+    double phase[8] = {0, 0, 0, 0, 0, 0, 0, 0};
+    double count[8] = {0, 0, 0, 0, 0, 0, 0, 0};
+    auto at = [&](int line, int x) {
+      return rows ? luma[static_cast<size_t>(line) * n + x] : luma[static_cast<size_t>(x) * n + line];
+    };
+    for (int line = 0; line < n; ++line) {
+      for (int x = 1; x + 2 < n; ++x) {
+        const double g0 = at(line, x) - at(line, x - 1);
+        const double g1 = at(line, x + 1) - at(line, x);
+        const double g2 = at(line, x + 2) - at(line, x + 1);
+        phase[x % 8] += std::fabs(2 * g1 - g0 - g2);
+        count[x % 8] += 1.0;
+      }
+    }
+    for (int p = 0; p < 8; ++p) phase[p] /= std::max(count[p], 1.0);
+    const int peak = static_cast<int>(std::max_element(phase, phase + 8) - phase);
+    double others[7];
+    int k = 0;
+    for (int p = 0; p < 8; ++p) {
+      if (p != peak) others[k++] = phase[p];
+    }
+    std::nth_element(others, others + 3, others + 7);
+    return (phase[peak] + 1e-9) / (others[3] + 1e-9);
+  };
+  return 0.5 * (strength(true) + strength(false));
 }
 
 }  // namespace residue
