@@ -142,6 +142,10 @@ Result<bool> Service::prepare() {
   server.set_payload_max_length(cfg.max_body_bytes);
   server.set_read_timeout(cfg.timeout_seconds, 0);
   server.set_write_timeout(cfg.timeout_seconds, 0);
+  // A response goes out in more than one write (head, then body). With Nagle's algorithm the later
+  // write waits for the client to acknowledge the first, and clients delay that acknowledgement
+  // (40 ms on Linux): measured, a 1 MP image scored in 47 ms reached wrk after 88 ms.
+  server.set_tcp_nodelay(true);
 
   add_handlers(s, [this] { return load_model(); });
 

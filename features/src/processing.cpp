@@ -197,7 +197,7 @@ DoubleJpegTrace assess_double_jpeg(const std::vector<WindowInput>& windows, cons
   // A quantiser step of 0 breaks the standard (ITU-T T.81 B.2.4.1: 1..255) but libjpeg accepts it
   // from a damaged table: nothing can be said of such a file's history.
   for (const auto& mode : kModes) {
-    if (tables.luma[static_cast<size_t>(mode[0] * 8 + mode[1])] <= 0) return {};
+    if (tables.luma[static_cast<size_t>(mode[0]) * 8 + static_cast<size_t>(mode[1])] <= 0) return {};
   }
   std::vector<std::vector<double>> histograms(std::size(kModes), std::vector<double>(kRange + 1, 0.0));
   for (const auto& w : windows) {

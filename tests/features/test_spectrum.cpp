@@ -65,6 +65,7 @@ TEST_CASE("the FFTW plan cache under concurrent first use: every thread gets the
     const Image window = crop(camera, 100, 100, n, n);
     std::vector<std::vector<double>> got(8);
     std::vector<std::thread> threads;
+    threads.reserve(got.size());
     for (size_t t = 0; t < got.size(); ++t)
       threads.emplace_back([&, t] { got[t] = hann_power_spectrum(window.samples.data(), n); });
     for (auto& t : threads) t.join();

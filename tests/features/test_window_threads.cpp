@@ -33,6 +33,7 @@ TEST_CASE("parallel_indices from many callers at once: each gets all of its own 
   std::vector<std::vector<std::atomic<int>>> runs(kCallers);
   for (auto& r : runs) r = std::vector<std::atomic<int>>(kCount);
   std::vector<std::thread> callers;
+  callers.reserve(kCallers);
   for (int c = 0; c < kCallers; ++c) {
     callers.emplace_back([&, c] {
       for (int round = 0; round < 20; ++round)
