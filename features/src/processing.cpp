@@ -360,8 +360,9 @@ ProcessingEvidence assess_processing(const DecodedWindows& decoded,
   }
   std::vector<double> detail;
   detail.reserve(windows->size());
-  // fine_detail() of each window: the noise family's Immerkaer sigma, kept by the window.
-  for (const auto& w : *windows) detail.push_back(w.tile.size >= 3 ? w.luma_noise_sigma() : 0.0);
+  // fine_detail() of each window's luma, which is the Immerkaer sigma the noise family keeps in the
+  // window (windows are at least 32 px, so fine_detail's guard for tiny planes never applies).
+  for (const auto& w : *windows) detail.push_back(w.luma_noise_sigma());
   if (!detail.empty()) {
     std::nth_element(detail.begin(), detail.begin() + static_cast<std::ptrdiff_t>(detail.size() / 2),
                      detail.end());

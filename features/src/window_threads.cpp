@@ -69,7 +69,7 @@ class HelperPool {
       std::atomic<int>& n;
       ~Leave() { n.fetch_sub(1); }
     } leave{callers_};
-    if (callers >= cores_ || cores_ < 2) {
+    if (callers >= cores_) {  // also a one-core machine: no helper exists
       for (size_t i = 0; i < count; ++i) work(i);
       return;
     }

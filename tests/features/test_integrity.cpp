@@ -4,6 +4,7 @@
 #include <doctest/doctest.h>
 #include <zlib.h>
 
+#include <algorithm>
 #include <array>
 #include <cmath>
 #include <random>
@@ -292,6 +293,20 @@ TEST_CASE("fine detail falls under blur, a median filter and strong JPEG, and th
   REQUIRE(original);
   const double before = original->processing.fine_detail;
   CHECK(before > 1.0);
+  {
+    // The evidence takes each window's value from the noise family's shared Immerkaer level: it
+    // must be fine_detail() of the window's luma, median over the windows.
+    auto decoded = decode_windows(bytes);
+    REQUIRE(decoded);
+    std::vector<double> per_window;
+    for (const auto& tile : decoded->tiles) {
+      const auto luma = tile.luma();
+      per_window.push_back(fine_detail(luma.data(), tile.size, tile.size));
+    }
+    REQUIRE(per_window.size() == 4);
+    std::sort(per_window.begin(), per_window.end());
+    CHECK(before == per_window[2]);  // the median of an even count is nth_element's upper middle
+  }
   for (const char* name : {"blur-1.5", "median-3", "jpeg-q50"}) {
     CAPTURE(name);
     auto processed = apply_transform(bytes, name);

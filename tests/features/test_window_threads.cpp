@@ -3,6 +3,9 @@
 #include <doctest/doctest.h>
 
 #include <atomic>
+#include <chrono>
+#include <mutex>
+#include <set>
 #include <stdexcept>
 #include <thread>
 #include <vector>
@@ -24,6 +27,28 @@ TEST_CASE("parallel_indices runs every index exactly once, whatever the threads 
         CHECK(runs[i].load() == 1);
       }
     }
+  }
+}
+
+TEST_CASE("parallel_indices: idle helpers join a caller's work, and max_threads 1 keeps it on the caller") {
+  // Work slow enough (2 ms an index) that an idle helper wakes and takes some of it.
+  std::mutex mutex;
+  std::set<std::thread::id> seen;
+  auto work = [&](size_t) {
+    std::this_thread::sleep_for(std::chrono::milliseconds(2));
+    std::lock_guard lock(mutex);
+    seen.insert(std::this_thread::get_id());
+  };
+  parallel_indices(64, 1, work);
+  CHECK(seen == std::set<std::thread::id>{std::this_thread::get_id()});
+  seen.clear();
+  parallel_indices(64, 8, work);
+  CHECK(seen.count(std::this_thread::get_id()) == 1);  // the caller always works
+  if (available_cores() >= 2) {
+    CHECK(seen.size() >= 2);
+    CHECK(static_cast<int>(seen.size()) <= available_cores());  // cores - 1 helpers and the caller
+  } else {
+    CHECK(seen.size() == 1);
   }
 }
 

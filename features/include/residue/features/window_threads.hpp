@@ -2,7 +2,7 @@
 //
 // A request on an idle service should use every core; a busy service should not start more
 // threads than it has cores (that only adds switching and memory). The policy, measured in
-// docs/performance.md ("Windows in parallel"): the process keeps cores - 1 helper threads, started
+// docs/performance.md ("Speed, second round", "Windows in parallel"): the process keeps cores - 1 helper threads, started
 // on first use. A caller always works on its own thread; helpers join only while they are idle and
 // fewer callers than cores are at work, so under load every request runs on its own thread alone,
 // as before. Results do not depend on who computed what: the caller gives each index to exactly one
